@@ -1,0 +1,102 @@
+"""The `truepull` command: one sub-command (verb) per module of this package.
+
+Each verb module defines HELP (one line), add_arguments(parser) and run(args) -> exit code.
+Bad input raises InputError, printed here as one line on stderr with exit code 2; any other
+failure is an internal error, one line and exit code 1 (set TRUEPULL_DEBUG=1 for the traceback).
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import os
+import sys
+
+from truepull.geometry.errors import InputError
+
+# verb -> module (imported only when that verb runs, so start-up stays quick)
+VERBS = {
+    "check": "truepull.cli.check",
+    "compare": "truepull.cli.compare",
+    "scan": "truepull.cli.scan",
+    "bias": "truepull.cli.bias",
+    "fit": "truepull.cli.fit",
+    "reduce": "truepull.cli.reduce",
+    "view": "truepull.cli.view",
+    "mesh": "truepull.cli.mesh",
+    "report": "truepull.cli.report",
+}
+
+VERB_HELP = {
+    "check": "load and validate a scene; bodies, mass properties, group totals, warnings",
+    "compare": "exact force, torque and stiffness beside the point-mass model",
+    "scan": "sweep a turn or a shift of a group; exact and point torque and stiffness",
+    "bias": "sensitivity of torque and G to each body's placement, size and density",
+    "fit": "fit a recorded angle-time run: period, decrement, equilibrium per position",
+    "reduce": "G from the measurement, corrections itemised, uncertainty budget",
+    "view": "3-D picture of the bodies and the attractor's field",
+    "mesh": "inspect a mesh part file and print a [[body]] block for it",
+    "report": "the whole job into a folder of Markdown, JSON and figures",
+}
+
+
+class _OneLineParser(argparse.ArgumentParser):
+    """argparse that reports usage errors in one line with exit code 2."""
+
+    def error(self, message):  # noqa: D401 - argparse API
+        sys.stderr.write(f"{self.prog}: {message}\n")
+        raise SystemExit(2)
+
+
+def _version() -> str:
+    try:
+        from importlib.metadata import version
+
+        return version("truepull")
+    except Exception:  # not installed (running from a source tree)
+        return "unknown"
+
+
+def build_parser(load_verbs: list[str] | None = None) -> argparse.ArgumentParser:
+    parser = _OneLineParser(
+        prog="truepull",
+        description="Exact gravitational pull between extended bodies, beside the point-mass model.",
+    )
+    parser.add_argument("--version", action="version", version=f"truepull {_version()}")
+    sub = parser.add_subparsers(dest="verb", metavar="VERB", parser_class=_OneLineParser)
+    for verb, modname in VERBS.items():
+        p = sub.add_parser(verb, help=VERB_HELP[verb], description=VERB_HELP[verb])
+        p.add_argument("--json", action="store_true", help="machine output (JSON) on stdout, nothing else")
+        if load_verbs is None or verb in load_verbs:
+            mod = importlib.import_module(modname)
+            mod.add_arguments(p)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    argv = list(sys.argv[1:] if argv is None else argv)
+    verb = next((a for a in argv if not a.startswith("-")), None)
+    parser = build_parser([verb] if verb in VERBS else [])
+    args = parser.parse_args(argv)
+    if args.verb is None:
+        parser.print_help()
+        return 2
+    try:
+        module = importlib.import_module(VERBS[args.verb])
+        return int(module.run(args) or 0)
+    except InputError as exc:
+        sys.stderr.write(f"truepull {args.verb}: {exc.one_line()}\n")
+        return 2
+    except KeyboardInterrupt:
+        sys.stderr.write("truepull: interrupted\n")
+        return 1
+    except Exception as exc:  # internal failure: one line, traceback only on request
+        if os.environ.get("TRUEPULL_DEBUG"):
+            raise
+        msg = " ".join(str(exc).split()) or type(exc).__name__
+        sys.stderr.write(f"truepull {args.verb}: internal error: {type(exc).__name__}: {msg}\n")
+        return 1
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
