@@ -1,0 +1,219 @@
+"""Bodies: a shape, where it is, and what it is made of; signed mass properties in the world frame.
+
+A `BodySpec` is the body as the scene states it (values with uncertainties, SI); `build_body` turns
+it into a `Body` (SI floats and arrays). A hole or void (negative density, or `subtract = true`)
+carries negative mass and negative inertia so that sums over a group give the net body.
+Units: m, kg, kg/m^3, rad; inertia in kg m^2.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from truepull.geometry.materials import MATERIALS, material_key
+from truepull.geometry.placement import Placement
+from truepull.geometry.quantities import Measured
+from truepull.geometry.shapes import SIZE_KEYS, MeshShape, Point, shape_from_size
+
+POINTLIKE = ("point", "sphere", "shell")
+"""Shapes whose external field is exactly a point's, and which feel no torque about their centre."""
+
+
+@dataclass(frozen=True, eq=False)
+class BodySpec:
+    """A body as written in the scene, converted to SI.
+
+    `size` maps the scene's size keys to values: radius, length, inner_radius, radius_top;
+    a box's edges as "size.x", "size.y", "size.z"; an ellipsoid's semi-axes as "radii.a", "radii.b",
+    "radii.c"; a mesh has none (its shape is `mesh`, loaded from `file` in `file_units`).
+    Exactly one of density / material / mass is set. Equality and hashing are by identity."""
+
+    name: str
+    group: str
+    shape_kind: str
+    size: dict[str, Measured]
+    at: tuple[Measured, Measured, Measured]
+    axis: tuple[float, float, float] | None = None
+    rotate_axis: tuple[float, float, float] | None = None
+    rotate_angle: Measured = Measured(0.0)
+    density: Measured | None = None
+    material: str | None = None
+    mass: Measured | None = None
+    subtract: bool = False
+    mesh: MeshShape | None = None
+    file: str | None = None
+    file_units: str | None = None
+    scene_file: str | None = None
+
+    def stated_density(self) -> Measured | None:
+        """The density the scene states (directly or by material), without the hole sign; None if mass is given."""
+        if self.density is not None:
+            return self.density
+        if self.material is not None:
+            return Measured(MATERIALS[material_key(self.material)][0], None)
+        return None
+
+
+@dataclass(frozen=True, eq=False)
+class Body:
+    """A placed uniform body. `density` kg/m^3 (negative for a hole); for a `point` body the mass is
+    held in `point_mass` (kg, negative for a subtracted point) and `density` is 0."""
+
+    name: str
+    group: str
+    shape: object
+    placement: Placement
+    density: float
+    spec: BodySpec | None = None
+    point_mass: float = 0.0
+    _cache: dict = field(default_factory=dict, repr=False, compare=False)
+
+    # --- intrinsic properties -------------------------------------------------------------
+    @property
+    def kind(self) -> str:
+        return self.shape.kind
+
+    @property
+    def volume(self) -> float:
+        """Geometric volume (m^3), always >= 0 (also for holes)."""
+        return float(self.shape.volume())
+
+    @property
+    def mass(self) -> float:
+        """Signed mass (kg): negative for a hole."""
+        if isinstance(self.shape, Point):
+            return float(self.point_mass)
+        return self.density * self.volume
+
+    @property
+    def is_hole(self) -> bool:
+        return self.mass < 0
+
+    @property
+    def is_pointlike(self) -> bool:
+        """True for point, sphere and shell: the field outside is a point's (shell theorem)."""
+        return self.shape.kind in POINTLIKE
+
+    # --- world-frame mass properties ------------------------------------------------------
+    @property
+    def com(self) -> np.ndarray:
+        """Centre of mass in the world (m)."""
+        return self.placement.apply(self.shape.centroid())
+
+    @property
+    def inertia_com(self) -> np.ndarray:
+        """Signed inertia tensor about the centre of mass, world axes (kg m^2): R (rho I_local) R^T."""
+        if "inertia_com" not in self._cache:
+            if isinstance(self.shape, Point):
+                i = np.zeros((3, 3))
+            else:
+                i = self.placement.apply_tensor(self.density * self.shape.inertia_unit_density())
+                i = 0.5 * (i + i.T)
+            i.setflags(write=False)
+            self._cache["inertia_com"] = i
+        return self._cache["inertia_com"].copy()
+
+    def inertia_tensor_about(self, point) -> np.ndarray:
+        """Signed inertia tensor about `point` (world, m), world axes, by the parallel-axis theorem."""
+        d = self.com - np.asarray(point, dtype=float)
+        return self.inertia_com + self.mass * (np.dot(d, d) * np.eye(3) - np.outer(d, d))
+
+    def inertia_about(self, point, axis) -> float:
+        """Moment of inertia (kg m^2, signed) about the line through `point` along `axis`."""
+        n = np.asarray(axis, dtype=float)
+        n = n / np.linalg.norm(n)
+        return float(n @ self.inertia_tensor_about(point) @ n)
+
+    # --- geometry in the world ------------------------------------------------------------
+    def bounding_sphere(self) -> tuple[np.ndarray, float]:
+        """(centre (3,), radius) in m of a sphere about the reference point enclosing the whole body."""
+        return self.placement.translation.copy(), float(self.shape.bounding_radius())
+
+    def contains_world(self, points) -> np.ndarray:
+        """Which world points (N, 3) lie inside (or on) the body."""
+        return self.shape.contains(self.placement.inverse().apply(np.asarray(points, dtype=float).reshape(-1, 3)))
+
+    def to_local(self, points) -> np.ndarray:
+        return self.placement.inverse().apply(points)
+
+    def moved(self, placement: Placement) -> "Body":
+        """The same body moved rigidly by a further world placement (applied after its own).
+        `spec` still describes the body as written in the scene."""
+        return replace(self, placement=self.placement.then(placement), _cache={})
+
+    def with_density(self, density: float) -> "Body":
+        return replace(self, density=float(density), _cache={})
+
+    def __repr__(self) -> str:
+        return f"Body({self.name!r}, group={self.group!r}, shape={self.shape!r}, mass={self.mass:.6g} kg)"
+
+
+def build_shape(spec: BodySpec):
+    """The shape object of a spec."""
+    if spec.shape_kind == "mesh":
+        if spec.mesh is None:
+            raise ValueError(f"body {spec.name}: mesh body without a loaded mesh")
+        return spec.mesh
+    return shape_from_size(spec.shape_kind, {k: v.value for k, v in spec.size.items()})
+
+
+def build_body(spec: BodySpec) -> Body:
+    """Build a Body from its spec: shape, placement and density (mass given -> density = mass/volume)."""
+    shape = build_shape(spec)
+    placement = Placement.from_scene(spec.at, spec.axis, spec.rotate_axis, spec.rotate_angle.value)
+    sign = -1.0 if spec.subtract else 1.0
+    if spec.shape_kind == "point":
+        if spec.mass is None:
+            raise ValueError(f"body {spec.name}: a point body needs a mass")
+        return Body(spec.name, spec.group, shape, placement, 0.0, spec, point_mass=sign * spec.mass.value)
+    if spec.mass is not None:
+        density = spec.mass.value / shape.volume()
+    else:
+        density = spec.stated_density().value
+    if spec.subtract:
+        density = -abs(density)
+    return Body(spec.name, spec.group, shape, placement, float(density), spec)
+
+
+def density_parameter(spec: BodySpec) -> str:
+    """'mass' when the scene states the mass (always for a point), otherwise 'density'."""
+    return "mass" if spec.mass is not None else "density"
+
+
+def body_parameters(spec: BodySpec) -> dict[str, Measured]:
+    """The body's parameters in bias order: at.x, at.y, at.z, each size key, then density or mass.
+    Values in SI with the scene's standard uncertainties (None where it states none). Density is
+    the stated (positive) density, also for holes."""
+    out: dict[str, Measured] = {f"at.{c}": m for c, m in zip("xyz", spec.at)}
+    for key in SIZE_KEYS.get(spec.shape_kind, ()):
+        if key in spec.size:
+            out[key] = spec.size[key]
+    if spec.mass is not None:
+        out["mass"] = spec.mass
+    else:
+        out["density"] = spec.stated_density()
+    return out
+
+
+def spec_with(spec: BodySpec, param: str, value: float) -> BodySpec:
+    """A copy of `spec` with ONE parameter (named as in body_parameters) set to `value` (SI); the
+    stated uncertainty is kept. Setting 'density' on a material body replaces the material."""
+    value = float(value)
+    if param.startswith("at.") and param[3:] in ("x", "y", "z") and len(param) == 4:
+        i = "xyz".index(param[3])
+        at = list(spec.at)
+        at[i] = Measured(value, at[i].u)
+        return replace(spec, at=tuple(at))
+    if param in SIZE_KEYS.get(spec.shape_kind, ()):
+        size = dict(spec.size)
+        old = size.get(param)
+        size[param] = Measured(value, old.u if old is not None else None)
+        return replace(spec, size=size)
+    if param == "density" and spec.mass is None and spec.shape_kind != "point":
+        old = spec.stated_density()
+        return replace(spec, density=Measured(value, old.u if old is not None else None), material=None)
+    if param == "mass" and spec.mass is not None:
+        return replace(spec, mass=Measured(value, spec.mass.u))
+    raise KeyError(f"body {spec.name} has no parameter '{param}' (has: {', '.join(body_parameters(spec))})")

@@ -1,0 +1,508 @@
+"""The scene: bodies, the torsion frame, positions and the measurement, read strictly from TOML.
+
+Every number is converted to SI once, here (m, kg, kg/m^3, rad, s). Any key the scene format does not
+know is refused, so a typo cannot silently change a result. Bad input raises InputError naming the
+file, the key (e.g. `body[bob-east].radius`) and the reason.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import tomllib
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+
+import numpy as np
+
+from truepull.geometry.bodies import Body, BodySpec, build_body
+from truepull.geometry.errors import InputError
+from truepull.geometry.materials import known_materials, material_key
+from truepull.geometry.meshes import load_mesh
+from truepull.geometry.placement import Placement
+from truepull.geometry.quantities import Measured, parse_scalar, parse_vector, si_factor
+
+DEFAULT_UNITS = {"length": "m", "mass": "kg", "density": "kg/m^3", "angle": "deg", "time": "s"}
+SHAPE_NAMES = ("point", "sphere", "shell", "cylinder", "box", "cone", "ellipsoid", "mesh")
+METHODS = ("deflection", "swing")
+
+TOP_KEYS = ("scene", "units", "frame", "body", "position", "measurement")
+SCENE_KEYS = ("title", "G")
+FRAME_KEYS = ("pivot", "axis")
+POSITION_KEYS = ("name", "group", "turn", "shift")
+MEASUREMENT_KEYS = ("method", "angle", "period", "decrement", "fiber_q", "amplitude")
+BODY_COMMON_KEYS = ("name", "group", "shape", "at", "axis", "rotate", "density", "material", "mass", "subtract")
+ROTATE_KEYS = ("axis", "angle")
+# shape -> {scene key: required?}; box `size` and ellipsoid `radii` are 3-vectors
+SHAPE_KEYS: dict[str, dict[str, bool]] = {
+    "point": {},
+    "sphere": {"radius": True},
+    "shell": {"radius": True, "inner_radius": True},
+    "cylinder": {"radius": True, "length": True, "inner_radius": False},
+    "box": {"size": True},
+    "cone": {"radius": True, "length": True, "radius_top": False},
+    "ellipsoid": {"radii": True},
+    "mesh": {"file": True, "file_units": False},
+}
+
+
+def _default_G() -> Measured:
+    from scipy.constants import physical_constants
+
+    value, _unit, u = physical_constants["Newtonian constant of gravitation"]
+    return Measured(float(value), float(u))
+
+
+@dataclass(frozen=True, eq=False)
+class Frame:
+    """The torsion (fiber) axis: the line through `pivot` (3,) m along the unit vector `axis` (3,)."""
+
+    pivot: np.ndarray
+    axis: np.ndarray
+
+    def __post_init__(self):
+        p = np.array([float(c) for c in self.pivot], dtype=float)
+        a = np.array([float(c) for c in self.axis], dtype=float)
+        n = np.linalg.norm(a)
+        if not n > 0:
+            raise ValueError("frame axis must not be zero")
+        a = a / n
+        p.setflags(write=False)
+        a.setflags(write=False)
+        object.__setattr__(self, "pivot", p)
+        object.__setattr__(self, "axis", a)
+
+    def turn(self, angle: float) -> Placement:
+        """A right-handed turn by `angle` (rad) about the frame axis through the pivot."""
+        return Placement.turn_about(self.pivot, self.axis, angle)
+
+
+@dataclass(frozen=True)
+class Position:
+    """A state of the apparatus: group `group` turned by `turn` (rad) about the frame axis, then
+    shifted by `shift` (m)."""
+
+    name: str
+    group: str
+    turn: Measured = Measured(0.0)
+    shift: tuple[Measured, Measured, Measured] = (Measured(0.0), Measured(0.0), Measured(0.0))
+
+    def placement(self, frame: Frame) -> Placement:
+        return frame.turn(self.turn.value).then(Placement.shift([s.value for s in self.shift]))
+
+
+@dataclass(frozen=True, eq=False)
+class Measurement:
+    """What was measured. `angle`: position name -> pendulum equilibrium angle (rad).
+    `period` (s): deflection -> one Measured (the free period at the first position in `angle`);
+    swing -> position name -> Measured. `decrement`: logarithmic decrement per period or None.
+    `extra`: optional keys also accepted: "fiber_q" (Measured, dimensionless quality factor of the
+    fiber) and "amplitude" (Measured rad, or position name -> Measured rad: swing amplitude)."""
+
+    method: str
+    angle: dict[str, Measured]
+    period: Measured | dict[str, Measured]
+    decrement: Measured | None = None
+    extra: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True, eq=False)
+class Scene:
+    """A loaded scene, all in SI. Units record what the file used (for display)."""
+
+    title: str
+    G: Measured
+    frame: Frame
+    bodies: tuple[Body, ...]
+    positions: tuple[Position, ...] = ()
+    measurement: Measurement | None = None
+    path: str | None = None
+    length_unit: str = "m"
+    length_factor: float = 1.0
+    angle_unit: str = "deg"
+    angle_factor: float = math.pi / 180.0
+    mass_unit: str = "kg"
+    density_unit: str = "kg/m^3"
+    time_unit: str = "s"
+    base_dir: str | None = None
+    position: str | None = None
+
+    def groups(self) -> tuple[str, ...]:
+        """Group names in the order they first appear in the file."""
+        return tuple(dict.fromkeys(b.group for b in self.bodies))
+
+    def group(self, name: str) -> tuple[Body, ...]:
+        return tuple(b for b in self.bodies if b.group == name)
+
+    def body(self, name: str) -> Body:
+        for b in self.bodies:
+            if b.name == name:
+                return b
+        raise KeyError(f"no body named '{name}'")
+
+    def with_body(self, name: str, new_body: Body) -> "Scene":
+        """A copy with the body called `name` replaced by `new_body`."""
+        self.body(name)
+        return replace(self, bodies=tuple(new_body if b.name == name else b for b in self.bodies))
+
+    def with_bodies(self, bodies) -> "Scene":
+        return replace(self, bodies=tuple(bodies))
+
+    def get_position(self, name: str) -> Position:
+        for p in self.positions:
+            if p.name == name:
+                return p
+        known = ", ".join(p.name for p in self.positions) or "none"
+        raise InputError(self.path, "position", f"no position named '{name}' (positions: {known})")
+
+    def at_position(self, position=None) -> "Scene":
+        """The scene with a position applied: its group turned by `turn` about the frame axis through
+        the pivot, then shifted by `shift`. None returns the scene as drawn."""
+        if position is None:
+            return self
+        if isinstance(position, str):
+            position = self.get_position(position)
+        move = position.placement(self.frame)
+        bodies = tuple(b.moved(move) if b.group == position.group else b for b in self.bodies)
+        return replace(self, bodies=bodies, position=position.name)
+
+
+# ------------------------------------------------------------------------------------------
+# loading
+# ------------------------------------------------------------------------------------------
+
+class _Reader:
+    """Shared state while reading one scene file."""
+
+    def __init__(self, file: str, base_dir: str):
+        self.file = file
+        self.base_dir = base_dir
+        self.units = dict(DEFAULT_UNITS)
+        self.fixed_units = {"gravitational_constant": "m^3/(kg*s^2)", "dimensionless": ""}
+
+    def fail(self, key, reason):
+        raise InputError(self.file, key, reason)
+
+    def table(self, raw, key) -> dict:
+        if not isinstance(raw, dict):
+            self.fail(key, f"expected a table, got {_type_name(raw)}")
+        return raw
+
+    def check_keys(self, table: dict, allowed, where: str, what: str):
+        for k in table:
+            if k not in allowed:
+                self.fail(f"{where}.{k}" if where else k,
+                          f"unknown key '{k}' in {what} (allowed: {', '.join(allowed)})")
+
+    def string(self, raw, key, allow_empty=False) -> str:
+        if not isinstance(raw, str):
+            self.fail(key, f"expected a string, got {_type_name(raw)}")
+        if not allow_empty and not raw.strip():
+            self.fail(key, "must not be empty")
+        return raw
+
+    def scalar(self, raw, kind, key, **kw) -> Measured:
+        unit = self.units[kind] if kind in self.units else self.fixed_units[kind]
+        return parse_scalar(raw, kind, unit, self.file, key, **kw)
+
+    def vector(self, raw, kind, key, nonzero=False) -> tuple[Measured, ...]:
+        unit = self.units[kind] if kind in self.units else self.fixed_units[kind]
+        return parse_vector(raw, kind, unit, self.file, key, 3, nonzero=nonzero)
+
+    def direction(self, raw, key) -> tuple[float, float, float]:
+        v = parse_vector(raw, "dimensionless", "", self.file, key, 3, nonzero=True)
+        return tuple(c.value for c in v)
+
+
+def _type_name(raw) -> str:
+    return {dict: "a table", list: "a list", str: "a string", bool: "true/false", int: "a number",
+            float: "a number"}.get(type(raw), type(raw).__name__)
+
+
+def load_scene(path) -> Scene:
+    """Read and validate a scene file (TOML). Mesh files are found relative to it."""
+    p = Path(path)
+    if not p.exists():
+        raise InputError(str(path), None, "scene file not found")
+    if not p.is_file():
+        raise InputError(str(path), None, "not a file")
+    try:
+        text = p.read_bytes().decode("utf-8")
+    except UnicodeDecodeError:
+        raise InputError(str(path), None, "not a text (UTF-8) file") from None
+    except OSError as exc:
+        raise InputError(str(path), None, f"cannot read the file ({exc.strerror})") from None
+    return load_scene_text(text, str(path), str(p.resolve().parent))
+
+
+def load_scene_text(text: str, path_for_messages: str = "-", base_dir: str | None = None) -> Scene:
+    """Read and validate a scene from TOML text; `base_dir` is where relative mesh paths start."""
+    base_dir = base_dir if base_dir is not None else os.getcwd()
+    r = _Reader(path_for_messages, base_dir)
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        r.fail(None, f"not valid TOML: {exc}")
+    r.check_keys(data, TOP_KEYS, "", "the scene file")
+
+    _read_units(r, data.get("units", {}))
+    title, G = _read_scene_section(r, data.get("scene", {}))
+    frame = _read_frame(r, data.get("frame", {}))
+
+    raw_bodies = data.get("body")
+    if raw_bodies is None:
+        r.fail("body", "the scene has no [[body]] tables")
+    if not isinstance(raw_bodies, list):
+        r.fail("body", "write bodies as [[body]] tables (an array of tables)")
+    if not raw_bodies:
+        r.fail("body", "the scene has no bodies")
+    bodies = []
+    seen = set()
+    for i, raw in enumerate(raw_bodies):
+        spec = _read_body(r, raw, i)
+        if spec.name in seen:
+            r.fail(f"body[{spec.name}].name", f"duplicate body name '{spec.name}'")
+        seen.add(spec.name)
+        bodies.append(build_body(spec))
+    groups = tuple(dict.fromkeys(b.group for b in bodies))
+
+    positions = _read_positions(r, data.get("position", []), groups)
+    measurement = None
+    if "measurement" in data:
+        measurement = _read_measurement(r, data["measurement"], positions)
+
+    return Scene(
+        title=title, G=G, frame=frame, bodies=tuple(bodies), positions=positions, measurement=measurement,
+        path=path_for_messages, length_unit=r.units["length"],
+        length_factor=si_factor(r.units["length"], "length", r.file, "units.length"),
+        angle_unit=r.units["angle"], angle_factor=si_factor(r.units["angle"], "angle", r.file, "units.angle"),
+        mass_unit=r.units["mass"], density_unit=r.units["density"], time_unit=r.units["time"], base_dir=base_dir,
+    )
+
+
+def _read_units(r: _Reader, raw):
+    t = r.table(raw, "units")
+    r.check_keys(t, tuple(DEFAULT_UNITS), "units", "[units]")
+    for kind, value in t.items():
+        unit = r.string(value, f"units.{kind}")
+        si_factor(unit, kind, r.file, f"units.{kind}")  # checks the unit exists and has the right dimension
+        r.units[kind] = unit.strip()
+
+
+def _read_scene_section(r: _Reader, raw):
+    t = r.table(raw, "scene")
+    r.check_keys(t, SCENE_KEYS, "scene", "[scene]")
+    title = r.string(t["title"], "scene.title", allow_empty=True) if "title" in t else ""
+    G = r.scalar(t["G"], "gravitational_constant", "scene.G", positive=True) if "G" in t else _default_G()
+    return title, G
+
+
+def _read_frame(r: _Reader, raw) -> Frame:
+    t = r.table(raw, "frame")
+    r.check_keys(t, FRAME_KEYS, "frame", "[frame]")
+    pivot = r.vector(t["pivot"], "length", "frame.pivot") if "pivot" in t else (0.0, 0.0, 0.0)
+    axis = r.direction(t["axis"], "frame.axis") if "axis" in t else (0.0, 0.0, 1.0)
+    return Frame(np.array([float(c) for c in pivot]), np.array(axis))
+
+
+def _read_body(r: _Reader, raw, index: int) -> BodySpec:
+    t = r.table(raw, f"body[#{index + 1}]")
+    if "name" not in t:
+        r.fail(f"body[#{index + 1}].name", "every body needs a name")
+    name = r.string(t["name"], f"body[#{index + 1}].name").strip()
+    where = f"body[{name}]"
+
+    if "shape" not in t:
+        r.fail(f"{where}.shape", f"missing shape (one of: {', '.join(SHAPE_NAMES)})")
+    kind = r.string(t["shape"], f"{where}.shape").strip().lower()
+    if kind not in SHAPE_NAMES:
+        r.fail(f"{where}.shape", f"unknown shape '{t['shape']}' (one of: {', '.join(SHAPE_NAMES)})")
+    shape_keys = SHAPE_KEYS[kind]
+    allowed = BODY_COMMON_KEYS + tuple(shape_keys)
+    for k in t:
+        if k not in allowed:
+            other = [s for s, keys in SHAPE_KEYS.items() if k in keys]
+            hint = f"; '{k}' belongs to {', '.join(other)} bodies" if other else ""
+            r.fail(f"{where}.{k}", f"unknown key '{k}' for a {kind} body{hint} (allowed: {', '.join(allowed)})")
+
+    if "group" not in t:
+        r.fail(f"{where}.group", "every body needs a group (e.g. pendulum or attractor)")
+    group = r.string(t["group"], f"{where}.group").strip()
+
+    at = r.vector(t["at"], "length", f"{where}.at") if "at" in t else (Measured(0.0),) * 3
+    axis = r.direction(t["axis"], f"{where}.axis") if "axis" in t else None
+    rotate_axis, rotate_angle = None, Measured(0.0)
+    if "rotate" in t:
+        rt = r.table(t["rotate"], f"{where}.rotate")
+        r.check_keys(rt, ROTATE_KEYS, f"{where}.rotate", "rotate")
+        for k in ROTATE_KEYS:
+            if k not in rt:
+                r.fail(f"{where}.rotate.{k}", f"rotate needs both axis and angle (missing {k})")
+        rotate_axis = r.direction(rt["axis"], f"{where}.rotate.axis")
+        rotate_angle = r.scalar(rt["angle"], "angle", f"{where}.rotate.angle")
+
+    subtract = False
+    if "subtract" in t:
+        if not isinstance(t["subtract"], bool):
+            r.fail(f"{where}.subtract", "expected true or false")
+        subtract = t["subtract"]
+
+    size, mesh, file, file_units = _read_size(r, t, kind, where)
+    density, material, mass = _read_matter(r, t, kind, where)
+
+    return BodySpec(name=name, group=group, shape_kind=kind, size=size, at=tuple(at), axis=axis,
+                    rotate_axis=rotate_axis, rotate_angle=rotate_angle, density=density, material=material,
+                    mass=mass, subtract=subtract, mesh=mesh, file=file, file_units=file_units,
+                    scene_file=r.file)
+
+
+def _read_size(r: _Reader, t: dict, kind: str, where: str):
+    """Size keys of the shape -> (size dict of Measured, mesh, file, file_units)."""
+    spec = SHAPE_KEYS[kind]
+    for k, required in spec.items():
+        if required and k not in t:
+            r.fail(f"{where}.{k}", f"a {kind} needs '{k}'")
+    size: dict[str, Measured] = {}
+    mesh = file = file_units = None
+    if kind == "mesh":
+        file = r.string(t["file"], f"{where}.file")
+        file_units = r.string(t["file_units"], f"{where}.file_units").strip() if "file_units" in t \
+            else r.units["length"]
+        si_factor(file_units, "length", r.file, f"{where}.file_units")
+        mesh_path = Path(file)
+        if not mesh_path.is_absolute():
+            mesh_path = Path(r.base_dir) / mesh_path
+        mesh = load_mesh(mesh_path, file_units, file=r.file, key=f"{where}.file")
+        return size, mesh, file, file_units
+    if kind == "box":
+        v = r.vector(t["size"], "length", f"{where}.size")
+        for c, m in zip("xyz", v):
+            if not m.value > 0:
+                r.fail(f"{where}.size", f"every edge must be greater than zero (size.{c} = {m.value:g} m)")
+            size[f"size.{c}"] = m
+        return size, mesh, file, file_units
+    if kind == "ellipsoid":
+        v = r.vector(t["radii"], "length", f"{where}.radii")
+        for c, m in zip("abc", v):
+            if not m.value > 0:
+                r.fail(f"{where}.radii", f"every semi-axis must be greater than zero (radii.{c} = {m.value:g} m)")
+            size[f"radii.{c}"] = m
+        return size, mesh, file, file_units
+    for k in spec:
+        if k in t:
+            positive = k in ("radius", "length")
+            size[k] = r.scalar(t[k], "length", f"{where}.{k}", positive=positive, nonnegative=not positive)
+    if "inner_radius" in size and size["inner_radius"].value >= size["radius"].value:
+        what = "shell" if kind == "shell" else "tube"
+        r.fail(f"{where}.inner_radius", f"inner_radius must be smaller than radius (an inverted {what})")
+    return size, mesh, file, file_units
+
+
+def _read_matter(r: _Reader, t: dict, kind: str, where: str):
+    """-> (density, material, mass): exactly one of them is set."""
+    given = [k for k in ("density", "material", "mass") if k in t]
+    if kind == "point":
+        if given != ["mass"]:
+            r.fail(f"{where}.{given[0] if given and given[0] != 'mass' else 'mass'}",
+                   "a point body has no volume: state its mass (and neither density nor material)")
+    if len(given) == 0:
+        r.fail(f"{where}.density", "state exactly one of density, material or mass (none given)")
+    if len(given) > 1:
+        r.fail(f"{where}.{given[1]}", f"state exactly one of density, material or mass (got {' and '.join(given)})")
+    density = material = mass = None
+    if "density" in t:
+        density = r.scalar(t["density"], "density", f"{where}.density")
+        if density.value == 0:
+            r.fail(f"{where}.density", "must not be zero")
+    elif "material" in t:
+        name = r.string(t["material"], f"{where}.material")
+        key = material_key(name)
+        if key is None:
+            some = ", ".join(known_materials()[:12])
+            r.fail(f"{where}.material", f"unknown material '{name}' (known: {some}, ...; or give density)")
+        material = key
+    else:
+        mass = r.scalar(t["mass"], "mass", f"{where}.mass")
+        if not mass.value > 0:
+            r.fail(f"{where}.mass", "mass must be greater than zero (for a hole use subtract = true)")
+    return density, material, mass
+
+
+def _read_positions(r: _Reader, raw, groups) -> tuple[Position, ...]:
+    if not isinstance(raw, list):
+        r.fail("position", "write positions as [[position]] tables (an array of tables)")
+    out = []
+    seen = set()
+    for i, item in enumerate(raw):
+        t = r.table(item, f"position[#{i + 1}]")
+        if "name" not in t:
+            r.fail(f"position[#{i + 1}].name", "every position needs a name")
+        name = r.string(t["name"], f"position[#{i + 1}].name").strip()
+        where = f"position[{name}]"
+        r.check_keys(t, POSITION_KEYS, where, "a position")
+        if name in seen:
+            r.fail(f"{where}.name", f"duplicate position name '{name}'")
+        seen.add(name)
+        if "group" not in t:
+            r.fail(f"{where}.group", "a position needs the group it moves")
+        group = r.string(t["group"], f"{where}.group").strip()
+        if group not in groups:
+            r.fail(f"{where}.group", f"no body is in group '{group}' (groups: {', '.join(groups)})")
+        turn = r.scalar(t["turn"], "angle", f"{where}.turn") if "turn" in t else Measured(0.0)
+        shift = r.vector(t["shift"], "length", f"{where}.shift") if "shift" in t else (Measured(0.0),) * 3
+        out.append(Position(name, group, turn, tuple(shift)))
+    return tuple(out)
+
+
+def _per_position(r: _Reader, raw, kind, key, names, positive=False) -> dict[str, Measured]:
+    t = r.table(raw, key)
+    if not names:
+        r.fail(key, "needs [[position]] tables to refer to")
+    out = {}
+    for k, v in t.items():
+        if k not in names:
+            r.fail(f"{key}.{k}", f"'{k}' is not a position name (positions: {', '.join(names)})")
+        out[k] = r.scalar(v, kind, f"{key}.{k}", positive=positive)
+    return out
+
+
+def _read_measurement(r: _Reader, raw, positions) -> Measurement:
+    t = r.table(raw, "measurement")
+    r.check_keys(t, MEASUREMENT_KEYS, "measurement", "[measurement]")
+    names = [p.name for p in positions]
+    if "method" not in t:
+        r.fail("measurement.method", f"missing method (one of: {', '.join(METHODS)})")
+    method = r.string(t["method"], "measurement.method").strip().lower()
+    if method not in METHODS:
+        r.fail("measurement.method", f"unknown method '{t['method']}' (one of: {', '.join(METHODS)})")
+    if not names:
+        r.fail("measurement", "a measurement needs [[position]] tables (the states it switches between)")
+    angle = _per_position(r, t["angle"], "angle", "measurement.angle", names) if "angle" in t else {}
+    if "period" not in t:
+        r.fail("measurement.period", "missing period")
+    if method == "deflection":
+        if len(angle) < 2:
+            r.fail("measurement.angle", "a deflection measurement needs the angle at two or more positions")
+        if isinstance(t["period"], dict):
+            r.fail("measurement.period", "a deflection measurement takes one period (the free period), not a table")
+        period = r.scalar(t["period"], "time", "measurement.period", positive=True)
+    else:
+        if not isinstance(t["period"], dict):
+            r.fail("measurement.period", "a swing measurement takes one period per position, "
+                                         "e.g. period = { near = ..., far = ... }")
+        period = _per_position(r, t["period"], "time", "measurement.period", names, positive=True)
+        if len(period) < 2:
+            r.fail("measurement.period", "a swing measurement needs periods at two or more positions")
+    decrement = None
+    if "decrement" in t:
+        decrement = r.scalar(t["decrement"], "dimensionless", "measurement.decrement", nonnegative=True)
+    extra = {}
+    if "fiber_q" in t:
+        extra["fiber_q"] = r.scalar(t["fiber_q"], "dimensionless", "measurement.fiber_q", positive=True)
+    if "amplitude" in t:
+        if isinstance(t["amplitude"], dict):
+            extra["amplitude"] = _per_position(r, t["amplitude"], "angle", "measurement.amplitude", names,
+                                               positive=True)
+        else:
+            extra["amplitude"] = r.scalar(t["amplitude"], "angle", "measurement.amplitude", positive=True)
+    return Measurement(method, angle, period, decrement, extra)
