@@ -138,14 +138,14 @@ def _check_record(time, angle, file, time_key, angle_key, row_name):
         if bad.size:
             i = int(bad[0])
             more = f" (and {bad.size - 1} more rows)" if bad.size > 1 else ""
-            raise InputError(file, key, f"{row_name(i)}: value {values[i]!r} is not a "
+            raise InputError(file, key, f"{row_name(i)}: value {float(values[i])} is not a "
                                         f"finite number{more}")
     steps = np.diff(time)
     bad = np.flatnonzero(~(steps > 0))
     if bad.size:
         i = int(bad[0]) + 1
         raise InputError(file, time_key, f"{row_name(i)}: times must increase strictly, but "
-                                         f"{time[i]!r} follows {time[i - 1]!r}")
+                                         f"{float(time[i]):.12g} follows {float(time[i - 1]):.12g}")
 
 
 # ---------------------------------------------------------------- starting values
