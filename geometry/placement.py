@@ -12,7 +12,7 @@ _Z = np.array([0.0, 0.0, 1.0])
 
 def _as_floats(v) -> np.ndarray:
     """A (3,) float array from numbers or Measured values."""
-    return np.array([float(c) for c in v], dtype=float)
+    return np.array([float(getattr(c, "value", c)) for c in v], dtype=float)
 
 
 def _unit(v) -> np.ndarray:
