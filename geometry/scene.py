@@ -418,8 +418,10 @@ def _read_matter(r: _Reader, t: dict, kind: str, where: str):
         name = r.string(t["material"], f"{where}.material")
         key = material_key(name)
         if key is None:
-            some = ", ".join(known_materials()[:12])
-            r.fail(f"{where}.material", f"unknown material '{name}' (known: {some}, ...; or give density)")
+            common = ["tungsten", "tungsten-alloy", "lead", "brass", "copper", "stainless-steel", "steel",
+                      "aluminium", "titanium", "glass"]
+            r.fail(f"{where}.material", f"unknown material '{name}' (known include: {', '.join(common)}; "
+                                        f"{len(known_materials())} in all; or give density)")
         material = key
     else:
         mass = r.scalar(t["mass"], "mass", f"{where}.mass")
