@@ -324,12 +324,15 @@ def fit_segment(time, angle, position: str | None = None, *, file=None, key: str
     }
     u_of = {name: float(math.sqrt(max(g @ cov @ g, 0.0))) for name, g in grads.items()}
 
+    duration = t[-1] - t[0]
     if not amplitude > MIN_AMPLITUDE_SIGNIFICANCE * u_of["amplitude"]:
         ratio = amplitude / u_of["amplitude"] if u_of["amplitude"] > 0 else 0.0
-        raise InputError(file, key, f"no oscillation resolved above the noise (fitted amplitude {amplitude:.3g} "
-                                    f"rad is {ratio:.1f} times its uncertainty; at least "
-                                    f"{MIN_AMPLITUDE_SIGNIFICANCE:g} needed)")
-    duration = t[-1] - t[0]
+        why = (f"fitted amplitude {amplitude:.3g} rad is {ratio:.1f} times its uncertainty; at least "
+               f"{MIN_AMPLITUDE_SIGNIFICANCE:g} needed")
+        if duration < 1.5 * period:
+            raise InputError(file, key, f"the record ({duration:.6g} s) is shorter than about one period of "
+                                        f"the oscillation, or no oscillation is resolved above the noise ({why})")
+        raise InputError(file, key, f"no oscillation resolved above the noise ({why})")
     if period * MIN_PERIODS > duration:
         raise InputError(file, key, f"the record ({duration:.6g} s) is shorter than about one period "
                                     f"(fitted period {period:.6g} s)")

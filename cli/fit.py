@@ -1,0 +1,350 @@
+"""`truepull fit DATA.csv`: fit a recorded angle-time run per position segment.
+
+Reads a CSV file with a header row, converts time, angle (or light-spot position on an optical-lever
+scale) to SI, fits each contiguous run of one position label (see truepull.integrate.fitting), and
+prints a table, JSON, a picture, or a copy of a scene with its [measurement] table filled in.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+import sys
+from pathlib import Path
+
+import numpy as np
+
+from truepull.cli.output import fmt, format_table, print_json, save_figure_atomic, write_atomic
+from truepull.cli.scene_text import replace_table, toml_key, toml_string
+from truepull.geometry.errors import InputError
+from truepull.geometry.quantities import parse_scalar, si_factor, units
+from truepull.integrate.fitting import SegmentFit, fit_record, spot_to_angle
+
+HELP = "fit a recorded angle-time run: period, decrement, equilibrium per position"
+
+
+def add_arguments(parser) -> None:
+    parser.add_argument("data", metavar="DATA", help="CSV file with a header row")
+    parser.add_argument("--time-column", default="time", help="column of times (default: time)")
+    parser.add_argument("--angle-column", default="angle", help="column of pendulum angles (default: angle)")
+    parser.add_argument("--spot-column", help="column of light-spot positions on an optical-lever scale, "
+                                              "instead of angles (needs --lever-distance)")
+    parser.add_argument("--lever-distance", metavar="D",
+                        help="mirror-to-scale distance for --spot-column, in --length-unit or with its own "
+                             "unit, e.g. '2.5 m'")
+    parser.add_argument("--position-column",
+                        help="column naming the position of each row (default: 'position' when present)")
+    parser.add_argument("--time-unit", default="s", help="unit of the time column (default: s)")
+    parser.add_argument("--angle-unit", default="rad", help="unit of the angle column, also used in the "
+                                                            "table and picture (default: rad)")
+    parser.add_argument("--length-unit", default="m", help="unit of the spot column and the lever "
+                                                           "distance (default: m)")
+    parser.add_argument("--png", metavar="FILE", help="picture of data, fit and residuals per segment")
+    parser.add_argument("--into", metavar="SCENE", help="scene whose [measurement] table to fill in "
+                                                        "(read only; see --out)")
+    parser.add_argument("--out", metavar="NEW_SCENE", help="new scene file to write with --into")
+    parser.add_argument("--force", action="store_true", help="replace NEW_SCENE if it exists")
+    parser.add_argument("--method", choices=("deflection", "swing"),
+                        help="measurement method written with --into (default: deflection)")
+
+
+# ---------------------------------------------------------------- reading the CSV
+
+def _read_columns(path: str, wanted: list[str], labels_column: str | None, labels_required: bool):
+    """Columns `wanted` as float arrays, column `labels_column` as strings (None when it is absent and
+    not required), and the file line number of each data row. Blank lines and lines starting with '#'
+    are skipped; the first remaining line is the header."""
+    p = Path(path)
+    if not p.is_file():
+        raise InputError(path, None, "data file not found" if not p.exists() else "not a file")
+    try:
+        text = p.read_bytes().decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise InputError(path, None, "not a text (UTF-8) file") from None
+    except OSError as exc:
+        raise InputError(path, None, f"cannot read the file ({exc.strerror})") from None
+    lines = [(i + 1, ln) for i, ln in enumerate(text.splitlines()) if ln.strip() and not ln.lstrip().startswith("#")]
+    if not lines:
+        raise InputError(path, None, "the file is empty (a header row and data rows are needed)")
+    try:
+        dialect = csv.Sniffer().sniff(lines[0][1], delimiters=",;\t")
+    except csv.Error:
+        dialect = csv.excel
+    rows = list(csv.reader([ln for _, ln in lines], dialect))
+    header = [h.strip() for h in rows[0]]
+    present = ", ".join(h for h in header if h) or "none"
+    optional = labels_column if labels_column in header or labels_required else None
+    index = {}
+    for name in wanted + ([optional] if optional else []):
+        if name not in header:
+            raise InputError(path, name, f"no column named '{name}' (columns present: {present})")
+        if header.count(name) > 1:
+            raise InputError(path, name, f"more than one column is named '{name}'")
+        index[name] = header.index(name)
+    if len(rows) < 2:
+        raise InputError(path, None, "no data rows below the header")
+    numbers = {name: np.empty(len(rows) - 1) for name in wanted}
+    labels = [] if optional else None
+    line_numbers = np.array([n for n, _ in lines[1:]])
+    for k, (row, line_no) in enumerate(zip(rows[1:], line_numbers)):
+        for name, col in index.items():
+            if col >= len(row):
+                raise InputError(path, name, f"line {line_no}: no value in column '{name}' (the row has "
+                                             f"{len(row)} cells, the header {len(header)})")
+            cell = row[col].strip()
+            if name == optional:
+                if not cell:
+                    raise InputError(path, name, f"line {line_no}: empty position label")
+                labels.append(cell)
+                continue
+            if not cell:
+                raise InputError(path, name, f"line {line_no}: empty cell in column '{name}'")
+            try:
+                numbers[name][k] = float(cell)
+            except ValueError:
+                raise InputError(path, name, f"line {line_no}: '{cell}' in column '{name}' is not a number") from None
+    return numbers, labels, line_numbers
+
+
+def _angle_factor(unit: str) -> float:
+    return si_factor(unit, "angle", None, "--angle-unit")
+
+
+def load_run(args):
+    """(time s, angle rad, labels or None, line numbers, name of the angle-like column)."""
+    if args.lever_distance is not None and not args.spot_column:
+        raise InputError(None, "--lever-distance", "only used with --spot-column")
+    if args.spot_column and args.lever_distance is None:
+        raise InputError(None, "--lever-distance", "required with --spot-column (mirror-to-scale distance)")
+    t_factor = si_factor(args.time_unit, "time", None, "--time-unit")
+    value_column = args.spot_column or args.angle_column
+    if args.time_column == value_column:
+        raise InputError(None, "--time-column", f"time and angle cannot both be column '{value_column}'")
+    numbers, labels, line_numbers = _read_columns(args.data, [args.time_column, value_column],
+                                                  args.position_column or "position",
+                                                  labels_required=args.position_column is not None)
+    time = numbers[args.time_column] * t_factor
+    if args.spot_column:
+        length = si_factor(args.length_unit, "length", None, "--length-unit")
+        distance = parse_scalar(args.lever_distance, "length", args.length_unit, None, "--lever-distance",
+                                positive=True)
+        if distance.u is not None:
+            raise InputError(None, "--lever-distance", "give the distance without an uncertainty: it scales "
+                                                       "every angle alike and is not propagated here")
+        angle = spot_to_angle(numbers[value_column] * length, distance.value)
+    else:
+        angle = numbers[value_column] * _angle_factor(args.angle_unit)
+    return time, angle, labels, line_numbers, value_column
+
+
+# ---------------------------------------------------------------- formatting
+
+def _pm(value: float, u: float, scale: float = 1.0) -> str:
+    return f"{fmt(value / scale)} ± {fmt(u / scale, 2)}"
+
+
+def _unit_label(unit: str) -> str:
+    return unit.strip() or "1"
+
+
+def table_text(fits: tuple[SegmentFit, ...], time_unit: str, angle_unit: str) -> str:
+    tf = si_factor(time_unit, "time", None, "--time-unit")
+    af = _angle_factor(angle_unit)
+    tu, au = _unit_label(time_unit), _unit_label(angle_unit)
+    headers = ["#", "position", f"from [{tu}]", f"to [{tu}]", "points", f"period [{tu}]", "decrement",
+               f"equilibrium [{au}]", f"amplitude [{au}]", f"drift [{au}/{tu}]", f"residual rms [{au}]",
+               "lag-1", "Durbin-Watson"]
+    rows = []
+    for k, f in enumerate(fits, start=1):
+        rows.append([k, f.position if f.position is not None else "-", fmt(f.t_start / tf), fmt(f.t_end / tf),
+                     f.n_points, _pm(f.period, f.u_period, tf), _pm(f.decrement, f.u_decrement),
+                     _pm(f.equilibrium, f.u_equilibrium, af), _pm(f.amplitude, f.u_amplitude, af),
+                     _pm(f.drift, f.u_drift, af / tf), fmt(f.residual_rms / af, 3),
+                     f"{f.lag1_autocorrelation:.3f}", f"{f.durbin_watson:.3f}"])
+    lines = [format_table(headers, rows, "rl" + "r" * (len(headers) - 2)),
+             "equilibrium and amplitude at each segment's mid time; uncertainties are standard (k = 1)"]
+    for k, f in enumerate(fits, start=1):
+        if f.note:
+            lines.append(f"segment {k}{f' ({f.position})' if f.position else ''}: {f.note}")
+    return "\n".join(lines)
+
+
+def write_png(path: str, fits, time, angle, time_unit: str, angle_unit: str) -> None:
+    """Data, fit and residuals for each segment (two rows of axes per segment, up to 3 across)."""
+    from matplotlib.figure import Figure
+
+    tf = si_factor(time_unit, "time", None, "--time-unit")
+    af = _angle_factor(angle_unit)
+    n = len(fits)
+    cols = min(n, 3)
+    rows = math.ceil(n / cols)
+    fig = Figure(figsize=(5.0 * cols, 4.6 * rows), layout="constrained")
+    grid = fig.add_gridspec(2 * rows, cols, height_ratios=[3, 1.3] * rows)
+    for k, f in enumerate(fits):
+        r, c = divmod(k, cols)
+        sel = (time >= f.t_start) & (time <= f.t_end)
+        t, y = time[sel], angle[sel]
+        top = fig.add_subplot(grid[2 * r, c])
+        bottom = fig.add_subplot(grid[2 * r + 1, c], sharex=top)
+        fine = np.linspace(f.t_start, f.t_end, max(400, 20 * int((f.t_end - f.t_start) / f.period + 1)))
+        top.plot(t / tf, y / af, ".", ms=2.5, color="0.45", label="data")
+        top.plot(fine / tf, f.evaluate(fine) / af, "-", lw=1.0, color="C0", label="fit")
+        top.plot(fine / tf, (f.equilibrium + f.drift * (fine - f.t_mid)) / af, "--", lw=0.8, color="C1",
+                 label="equilibrium")
+        name = f"position {f.position}" if f.position is not None else "record"
+        top.set_title(f"segment {k + 1}: {name}\nT = {_pm(f.period, f.u_period, tf)} {_unit_label(time_unit)}, "
+                      f"decrement = {_pm(f.decrement, f.u_decrement)}", fontsize=9)
+        top.set_ylabel(f"angle [{_unit_label(angle_unit)}]")
+        top.legend(fontsize=8, loc="upper right")
+        bottom.plot(t / tf, (y - f.evaluate(t)) / af, ".", ms=2.0, color="C3")
+        bottom.axhline(0.0, color="0.3", lw=0.6)
+        bottom.set_ylabel(f"residual [{_unit_label(angle_unit)}]")
+        bottom.set_xlabel(f"time [{_unit_label(time_unit)}]")
+        top.tick_params(labelbottom=False)
+    save_figure_atomic(fig, path, dpi=110)
+
+
+# ---------------------------------------------------------------- the measurement table
+
+def combine(values, uncertainties) -> tuple[float, float]:
+    """Inverse-variance weighted mean of repeated segments of one position; the uncertainty is
+    widened by the Birge ratio when the segments scatter more than their uncertainties say
+    (common practice). Zero uncertainties fall back to the plain mean and its standard error."""
+    v = np.asarray(values, dtype=float)
+    u = np.asarray(uncertainties, dtype=float)
+    if v.size == 1:
+        return float(v[0]), float(u[0])
+    if not np.all(u > 0):
+        return float(v.mean()), float(v.std(ddof=1) / math.sqrt(v.size))
+    w = 1.0 / u ** 2
+    mean = float(np.sum(w * v) / np.sum(w))
+    internal = math.sqrt(1.0 / np.sum(w))
+    birge = math.sqrt(float(np.sum(w * (v - mean) ** 2)) / (v.size - 1))
+    return mean, internal * max(1.0, birge)
+
+
+def _value_text(value: float, u: float, unit: str = "") -> str:
+    """'v +- u unit' with u to 2 significant digits and v to one digit past u's last."""
+    if u > 0 and math.isfinite(u):
+        digits = max(1, int(math.floor(math.log10(abs(value)))) - int(math.floor(math.log10(u))) + 3) \
+            if value != 0 else 3
+        text = f"{value:.{digits}g} +- {u:.2g}"
+    else:
+        text = f"{value:.12g} +- 0"
+    return f"{text} {unit}".strip()
+
+
+def measurement_block(fits, method: str | None, data_name: str, keep: dict) -> tuple[str, list[str]]:
+    """The [measurement] table text for fits with named positions, and notes for the user."""
+    by_name: dict[str, list[SegmentFit]] = {}
+    for f in fits:
+        by_name.setdefault(f.position, []).append(f)
+    names = list(by_name)
+    method = method or "deflection"
+    notes = []
+
+    def combined(name, field):
+        segs = by_name[name]
+        return combine([getattr(s, field) for s in segs], [getattr(s, "u_" + field) for s in segs])
+
+    def inline(field, unit):
+        items = ", ".join(f"{toml_key(n)} = {toml_string(_value_text(*combined(n, field), unit))}" for n in names)
+        return "{ " + items + " }"
+
+    lines = ["[measurement]", f"# from truepull fit of {data_name}", f"method = {toml_string(method)}"]
+    first = names[0]
+    if method == "deflection":
+        lines.append(f"angle = {inline('equilibrium', 'rad')}")
+        lines.append(f"period = {toml_string(_value_text(*combined(first, 'period'), 's'))}")
+    else:
+        lines.append(f"period = {inline('period', 's')}")
+        lines.append(f"amplitude = {inline('amplitude', 'rad')}")
+    dec, u_dec = combined(first, "decrement")
+    if dec >= 0:
+        lines.append(f"decrement = {toml_string(_value_text(dec, u_dec))}")
+    else:
+        notes.append(f"decrement at {first} came out negative ({dec:.3g} +- {u_dec:.2g}); not written")
+    for key, raw in keep.items():
+        lines.append(f"{key} = {toml_string(raw) if isinstance(raw, str) else repr(raw)}")
+    repeated = [n for n in names if len(by_name[n]) > 1]
+    if repeated:
+        notes.append("positions seen in more than one segment (" + ", ".join(repeated) + ") were combined by "
+                     "the weighted mean, widened by the Birge ratio when they scatter")
+    return "\n".join(lines) + "\n", notes
+
+
+def write_into(args, fits) -> tuple[str, list[str]]:
+    import tomllib
+
+    from truepull.geometry.scene import load_scene_text
+
+    if not args.out:
+        raise InputError(None, "--out", "--into needs --out NEW_SCENE (the scene itself is never overwritten)")
+    scene, out = Path(args.into), Path(args.out)
+    if not scene.is_file():
+        raise InputError(args.into, None, "scene file not found" if not scene.exists() else "not a file")
+    if out.resolve() == scene.resolve() or (out.exists() and out.samefile(scene)):
+        raise InputError(args.out, "--out", "must not be the --into scene: the input is never overwritten")
+    if out.exists() and not args.force:
+        raise InputError(args.out, "--out", "already exists; add --force to replace it")
+    try:
+        text = scene.read_bytes().decode("utf-8")
+    except UnicodeDecodeError:
+        raise InputError(args.into, None, "not a text (UTF-8) file") from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(args.into, None, f"not valid TOML: {exc}") from None
+
+    named = [f for f in fits if f.position is not None]
+    names = list(dict.fromkeys(f.position for f in named))
+    if len(names) < 2:
+        raise InputError(args.data, args.position_column or "position",
+                         f"a measurement needs fits at two or more positions (found {len(names)}); "
+                         f"label each row with its position")
+    raw_positions = data.get("position", [])
+    known = [p.get("name") for p in raw_positions if isinstance(p, dict)] if isinstance(raw_positions, list) else []
+    for name in names:
+        if name not in known:
+            raise InputError(args.data, args.position_column or "position",
+                             f"position '{name}' is not a [[position]] of {args.into} "
+                             f"(positions there: {', '.join(map(str, known)) or 'none'})")
+    old = data.get("measurement", {})
+    keep = {k: old[k] for k in ("fiber_q",) if isinstance(old, dict) and isinstance(old.get(k), (str, int, float))}
+    block, notes = measurement_block(tuple(named), args.method, Path(args.data).name, keep)
+    new_text = replace_table(text, "measurement", block, file=args.into)
+    load_scene_text(new_text, str(out), str(scene.resolve().parent))   # the new scene must load as a scene
+    write_atomic(out, new_text.encode("utf-8"))
+    return str(out), notes
+
+
+# ---------------------------------------------------------------- the verb
+
+def run(args) -> int:
+    if (args.out or args.method or args.force) and not args.into:
+        raise InputError(None, "--into", "--out, --method and --force go with --into SCENE")
+    units()  # the unit registry, once
+    time, angle, labels, line_numbers, value_column = load_run(args)
+    fits = fit_record(time, angle, labels, file=args.data, time_key=args.time_column, angle_key=value_column,
+                      line_numbers=line_numbers)
+    written, notes = (None, [])
+    if args.into:
+        written, notes = write_into(args, fits)
+    if args.png:
+        write_png(args.png, fits, time, angle, args.time_unit, args.angle_unit)
+    if args.json:
+        payload = {"segments": [f.as_dict() for f in fits]}
+        if written:
+            payload["written"] = written
+        print_json(payload)
+        for note in notes:
+            sys.stderr.write(f"truepull fit: {note}\n")
+        return 0
+    print(table_text(fits, args.time_unit, args.angle_unit))
+    for note in notes:
+        print(note)
+    if written:
+        print(f"wrote {written} with its [measurement] table from this fit")
+    if args.png:
+        print(f"wrote {args.png}")
+    return 0
