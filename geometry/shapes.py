@@ -340,7 +340,7 @@ class MeshShape(_ShapeBase):
         return trimesh.Trimesh(vertices=np.array(self.vertices), faces=np.array(self.faces), process=False)
 
     def _mass(self) -> dict:
-        if not self._props:
+        if "volume" not in self._props:
             mp = self.trimesh().mass_properties  # density 1; moment_inertia is about the centre of mass
             self._props.update(volume=float(mp["volume"]), centroid=np.array(mp["center_mass"], dtype=float),
                                inertia=np.array(mp["inertia"], dtype=float))
@@ -359,8 +359,17 @@ class MeshShape(_ShapeBase):
         return float(np.sqrt(np.max(np.einsum("ij,ij->i", self.vertices, self.vertices))))
 
     def triangles(self) -> np.ndarray:
-        """(F, 3, 3) vertex coordinates of every face (m)."""
-        return self.vertices[self.faces]
+        """(F, 3, 3) vertex coordinates of every face (m), read-only, C-contiguous."""
+        if "triangles" not in self._props:
+            t = np.ascontiguousarray(self.vertices[self.faces])
+            t.setflags(write=False)
+            self._props["triangles"] = t
+        return self._props["triangles"]
+
+    def is_convex(self) -> bool:
+        if "convex" not in self._props:
+            self._props["convex"] = bool(self.trimesh().is_convex)
+        return self._props["convex"]
 
     def contains(self, points_local) -> np.ndarray:
         """Inside test by the generalized winding number (about 1 inside, 0 outside)."""
@@ -369,7 +378,7 @@ class MeshShape(_ShapeBase):
         p = _points(points_local)
         if len(p) == 0:
             return np.zeros(0, dtype=bool)
-        return winding_numbers(np.ascontiguousarray(p), np.ascontiguousarray(self.triangles())) > 0.5
+        return winding_numbers(p, self.triangles()) > 0.5
 
     def size_params(self) -> dict[str, float]:
         return {}

@@ -14,31 +14,42 @@ import numpy as np
 from numba import njit, prange
 
 
+@njit(cache=True)
+def _winding_at(px, py, pz, tris):
+    total = 0.0
+    for f in range(tris.shape[0]):
+        ax = tris[f, 0, 0] - px
+        ay = tris[f, 0, 1] - py
+        az = tris[f, 0, 2] - pz
+        bx = tris[f, 1, 0] - px
+        by = tris[f, 1, 1] - py
+        bz = tris[f, 1, 2] - pz
+        cx = tris[f, 2, 0] - px
+        cy = tris[f, 2, 1] - py
+        cz = tris[f, 2, 2] - pz
+        la = math.sqrt(ax * ax + ay * ay + az * az)
+        lb = math.sqrt(bx * bx + by * by + bz * bz)
+        lc = math.sqrt(cx * cx + cy * cy + cz * cz)
+        det = ax * (by * cz - bz * cy) - ay * (bx * cz - bz * cx) + az * (bx * cy - by * cx)
+        den = (la * lb * lc + (ax * bx + ay * by + az * bz) * lc
+               + (ax * cx + ay * cy + az * cz) * lb + (bx * cx + by * cy + bz * cz) * la)
+        total += 2.0 * math.atan2(det, den)
+    return total / (4.0 * math.pi)
+
+
 @njit(cache=True, parallel=True)
-def _winding(points, tris):
-    n = points.shape[0]
-    out = np.zeros(n)
-    for i in prange(n):
-        px, py, pz = points[i, 0], points[i, 1], points[i, 2]
-        total = 0.0
-        for f in range(tris.shape[0]):
-            ax = tris[f, 0, 0] - px
-            ay = tris[f, 0, 1] - py
-            az = tris[f, 0, 2] - pz
-            bx = tris[f, 1, 0] - px
-            by = tris[f, 1, 1] - py
-            bz = tris[f, 1, 2] - pz
-            cx = tris[f, 2, 0] - px
-            cy = tris[f, 2, 1] - py
-            cz = tris[f, 2, 2] - pz
-            la = math.sqrt(ax * ax + ay * ay + az * az)
-            lb = math.sqrt(bx * bx + by * by + bz * bz)
-            lc = math.sqrt(cx * cx + cy * cy + cz * cz)
-            det = ax * (by * cz - bz * cy) - ay * (bx * cz - bz * cx) + az * (bx * cy - by * cx)
-            den = (la * lb * lc + (ax * bx + ay * by + az * bz) * lc
-                   + (ax * cx + ay * cy + az * cz) * lb + (bx * cx + by * cy + bz * cz) * la)
-            total += 2.0 * math.atan2(det, den)
-        out[i] = total / (4.0 * math.pi)
+def _winding_parallel(points, tris):
+    out = np.empty(points.shape[0])
+    for i in prange(points.shape[0]):
+        out[i] = _winding_at(points[i, 0], points[i, 1], points[i, 2], tris)
+    return out
+
+
+@njit(cache=True)
+def _winding_serial(points, tris):
+    out = np.empty(points.shape[0])
+    for i in range(points.shape[0]):
+        out[i] = _winding_at(points[i, 0], points[i, 1], points[i, 2], tris)
     return out
 
 
@@ -46,4 +57,5 @@ def winding_numbers(points: np.ndarray, triangles: np.ndarray) -> np.ndarray:
     """Winding number (N,) of the mesh with `triangles` (F, 3, 3) at `points` (N, 3), same units."""
     p = np.ascontiguousarray(points, dtype=np.float64).reshape(-1, 3)
     t = np.ascontiguousarray(triangles, dtype=np.float64).reshape(-1, 3, 3)
-    return _winding(p, t)
+    # few points: the serial kernel avoids the cost of starting threads
+    return _winding_serial(p, t) if len(p) < 64 else _winding_parallel(p, t)

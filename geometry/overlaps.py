@@ -1,0 +1,188 @@
+"""Which bodies overlap, touch, or (for holes) stick out of the body they are cut from.
+
+Method, per pair: a bounding-sphere prefilter; then the deepest point common to both bodies is
+sought by minimising f(p) = max(d_a(p), d_b(p)) over world points p, with d the signed distance to
+each surface (distance.py): f < 0 inside both, so min f < -tol means the volumes intersect
+("overlap") and |min f| <= tol means they meet without intersecting ("touch"). Start points are a
+dense scrambled-Sobol sample of the region common to both bounding boxes, each refined by
+Nelder-Mead. tol = touch_rtol * (size of the pair), about 1e-9 relative by default.
+
+Honest limits: this is sampling plus local search, not a proof. For convex pairs (sphere, box,
+solid cylinder, cone, ellipsoid) f is convex and the search finds the true minimum; for tubes,
+shells and meshes a very small or very thin overlap, or a touch in a narrow pocket, can be missed.
+Holes are checked by sampling points inside them, so a sliver of a hole outside its host can be missed.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.optimize import minimize
+from scipy.stats import qmc
+
+from truepull.geometry.distance import signed_distance
+from truepull.geometry.shapes import Box, Cone, Cylinder, Ellipsoid, MeshShape, Point, Shell, Sphere
+
+TOUCH_RTOL = 1e-9
+CONVEX = (Sphere, Box, Cone, Ellipsoid)  # and Cylinder without a bore (checked below)
+
+
+def local_bounds(shape) -> tuple[np.ndarray, np.ndarray]:
+    """Axis-aligned box (lo, hi) enclosing the shape in its local frame (m)."""
+    if isinstance(shape, Point):
+        z = np.zeros(3)
+        return z, z.copy()
+    if isinstance(shape, (Sphere, Shell)):
+        r = np.full(3, shape.radius)
+    elif isinstance(shape, Cylinder):
+        r = np.array([shape.radius, shape.radius, shape.length / 2])
+    elif isinstance(shape, Cone):
+        rm = max(shape.radius, shape.radius_top)
+        r = np.array([rm, rm, shape.length / 2])
+    elif isinstance(shape, Box):
+        r = 0.5 * np.asarray(shape.size)
+    elif isinstance(shape, Ellipsoid):
+        r = np.asarray(shape.radii, dtype=float)
+    elif isinstance(shape, MeshShape):
+        return shape.vertices.min(axis=0).copy(), shape.vertices.max(axis=0).copy()
+    else:
+        raise TypeError(f"no bounds for {type(shape).__name__}")
+    return -r, r.copy()
+
+
+def world_bounds(body) -> tuple[np.ndarray, np.ndarray]:
+    """Axis-aligned world box (lo, hi) enclosing a placed body (m)."""
+    lo, hi = local_bounds(body.shape)
+    centre, half = (lo + hi) / 2, (hi - lo) / 2
+    c = body.placement.apply(centre)
+    h = np.abs(body.placement.rotation) @ half
+    return c - h, c + h
+
+
+def _pair_function(a, b):
+    inv_a, inv_b = a.placement.inverse(), b.placement.inverse()
+
+    def f(points):
+        p = np.asarray(points, dtype=float).reshape(-1, 3)
+        return np.maximum(signed_distance(a.shape, inv_a.apply(p)), signed_distance(b.shape, inv_b.apply(p)))
+
+    return f
+
+
+def deepest_common_point(a, b, samples: int = 1024, starts: int = 6, seed: int = 0) -> tuple[float, np.ndarray]:
+    """(min over p of max(d_a, d_b), the point) for two bodies, in m; negative = interpenetration depth."""
+    f = _pair_function(a, b)
+    lo_a, hi_a = world_bounds(a)
+    lo_b, hi_b = world_bounds(b)
+    scale = max(a.shape.bounding_radius(), b.shape.bounding_radius(), 1e-300)
+    pad = 1e-6 * scale
+    lo, hi = np.maximum(lo_a, lo_b) - pad, np.minimum(hi_a, hi_b) + pad
+    if np.any(lo > hi):  # separate boxes: start between the bodies
+        lo, hi = np.minimum(lo, hi), np.maximum(lo, hi)
+    sob = qmc.Sobol(3, scramble=True, seed=seed).random(samples)
+    candidates = np.vstack([lo + sob * (hi - lo), a.com, b.com, (a.com + b.com) / 2,
+                            (lo + hi) / 2])
+    values = f(candidates)
+    order = np.argsort(values)
+    best_val, best_p = float(values[order[0]]), candidates[order[0]]
+    tol = TOUCH_RTOL * scale * 1e-2
+    for idx in order[:starts]:
+        x0 = candidates[idx]
+        span = max(float(np.max(hi - lo)), scale * 1e-3) * 0.05
+        simplex = np.vstack([x0, x0 + np.diag([span] * 3)])
+        res = minimize(lambda x: float(f(x)[0]), x0, method="Nelder-Mead",
+                       options={"initial_simplex": simplex, "xatol": tol, "fatol": tol, "maxiter": 4000,
+                                "maxfev": 8000})
+        if res.fun < best_val:
+            best_val, best_p = float(res.fun), np.asarray(res.x)
+        if best_val < -1e3 * TOUCH_RTOL * scale:
+            break
+    return best_val, best_p
+
+
+def bodies_overlap(a, b, touch_rtol: float = TOUCH_RTOL) -> str | None:
+    """'overlap' if the two bodies' volumes intersect, 'touch' if they meet within touch_rtol of their
+    size without intersecting, else None. Point bodies overlap a body they lie inside and never touch."""
+    ca, ra = a.bounding_sphere()
+    cb, rb = b.bounding_sphere()
+    scale = max(ra, rb)
+    tol = touch_rtol * max(scale, 1e-300)
+    if np.linalg.norm(ca - cb) > ra + rb + tol:
+        return None
+    if isinstance(a.shape, Point) or isinstance(b.shape, Point):
+        if isinstance(a.shape, Point) and isinstance(b.shape, Point):
+            return None
+        point, other = (a, b) if isinstance(a.shape, Point) else (b, a)
+        return "overlap" if other.contains_world(point.com.reshape(1, 3))[0] else None
+    lo_a, hi_a = world_bounds(a)
+    lo_b, hi_b = world_bounds(b)
+    if np.any(np.maximum(lo_a, lo_b) > np.minimum(hi_a, hi_b) + tol):
+        return None
+    sphere, other = (a, b) if isinstance(a.shape, Sphere) else (b, a)
+    if isinstance(sphere.shape, Sphere) and not isinstance(other.shape, Ellipsoid):
+        # exact: a ball meets a body iff the body's distance from the ball's centre is under its radius
+        d = float(signed_distance(other.shape, other.to_local(sphere.com.reshape(1, 3)))[0])
+        gap = d - sphere.shape.radius
+        return "overlap" if gap < -tol else ("touch" if gap <= tol else None)
+    convex = all(isinstance(x.shape, CONVEX) or (isinstance(x.shape, Cylinder) and x.shape.inner_radius == 0)
+                 or (isinstance(x.shape, MeshShape) and x.shape.is_convex()) for x in (a, b))
+    depth, _ = deepest_common_point(a, b, starts=2 if convex else 6)
+    if depth < -tol:
+        return "overlap"
+    if depth <= tol:
+        return "touch"
+    return None
+
+
+def find_overlaps(bodies, touch_rtol: float = TOUCH_RTOL) -> list[tuple[str, str, str]]:
+    """Every pair (name_a, name_b, kind) with kind 'overlap' or 'touch', in body order."""
+    bodies = list(bodies)
+    out = []
+    for i, a in enumerate(bodies):
+        for b in bodies[i + 1:]:
+            kind = bodies_overlap(a, b, touch_rtol)
+            if kind is not None:
+                out.append((a.name, b.name, kind))
+    return out
+
+
+def _points_inside(body, n: int, seed: int = 0) -> np.ndarray:
+    """About n world points spread through the body's volume (scrambled Sobol, rejection)."""
+    lo, hi = local_bounds(body.shape)
+    box = np.prod(hi - lo)
+    frac = body.volume / box if box > 0 else 1.0
+    m = int(min(2**20, max(64, n / max(frac, 1e-3))))
+    m = 1 << int(np.ceil(np.log2(m)))
+    pts = lo + qmc.Sobol(3, scramble=True, seed=seed).random(m) * (hi - lo)
+    pts = pts[body.shape.contains(pts)]
+    return body.placement.apply(pts)
+
+
+def hole_outside_fraction(hole, hosts, samples: int = 4096) -> float:
+    """Fraction (0..1) of sampled points of `hole` that lie in none of the positive bodies `hosts`."""
+    pts = _points_inside(hole, samples)
+    if len(pts) == 0:
+        return 0.0
+    covered = np.zeros(len(pts), dtype=bool)
+    for h in hosts:
+        if h.is_hole or h is hole or isinstance(h.shape, Point):
+            continue
+        c, r = h.bounding_sphere()
+        near = np.linalg.norm(pts - c, axis=1) <= r * (1 + 1e-12)
+        if np.any(near & ~covered):
+            idx = np.nonzero(near & ~covered)[0]
+            covered[idx] = h.contains_world(pts[idx])
+    return float(1.0 - covered.mean())
+
+
+def stray_holes(bodies, samples: int = 4096) -> list[tuple[str, float]]:
+    """Holes not wholly inside the positive bodies of their own group: (name, fraction outside)."""
+    bodies = list(bodies)
+    out = []
+    for h in bodies:
+        if not h.is_hole or isinstance(h.shape, Point):
+            continue
+        hosts = [b for b in bodies if b.group == h.group and not b.is_hole]
+        frac = hole_outside_fraction(h, hosts, samples)
+        if frac > 0:
+            out.append((h.name, frac))
+    return out
