@@ -368,6 +368,8 @@ def monte_carlo(model: Callable[[np.ndarray], float] | None, inputs: Sequence[In
     adds batches of the same layout until twice each of those is within delta (from `tolerance`,
     or u to `digits` significant digits, 7.9.2), or until max_samples (default 100 x samples).
     The model must be picklable for local worker processes (see the module notes)."""
+    if model is None and model_batch is None:
+        raise TypeError("give a model (or model_batch)")
     values, u = _check_inputs(inputs)
     r = _check_correlations(correlations, values.size)
     if not (isinstance(coverage, float | int) and 0 < coverage < 1):
