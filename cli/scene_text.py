@@ -34,6 +34,54 @@ def _first_component(header_name: str) -> str:
     return head
 
 
+_TRIPLES = ('"""', "'''")
+
+
+def _top_level_starts(lines: list[str]) -> list[bool]:
+    """For each line, whether it starts outside any string and any multi-line array, so that a
+    bracket there can only open a table header."""
+    out = []
+    state, depth = None, 0            # state: None, a quote, or a triple quote
+    for line in lines:
+        out.append(state is None and depth == 0)
+        i, n = 0, len(line)
+        while i < n:
+            ch = line[i]
+            if state is None:
+                if ch == "#":
+                    break
+                if line.startswith(_TRIPLES, i):
+                    state = line[i:i + 3]
+                    i += 3
+                    continue
+                if ch in "\"'":
+                    state = ch
+                elif ch == "[":
+                    depth += 1
+                elif ch == "]":
+                    depth = max(depth - 1, 0)
+            elif state in _TRIPLES:
+                if state == '"""' and ch == "\\":
+                    i += 2
+                    continue
+                if line.startswith(state, i):
+                    i += 3
+                    while i < n and line[i] == state[0]:   # up to two quotes may end the content
+                        i += 1
+                    state = None
+                    continue
+            else:
+                if state == '"' and ch == "\\":
+                    i += 2
+                    continue
+                if ch == state:
+                    state = None
+            i += 1
+        if state in ('"', "'"):
+            state = None                # a one-line string cannot run on: tomllib will judge
+    return out
+
+
 def _is_filler(line: str) -> bool:
     s = line.strip()
     return not s or s.startswith("#")
@@ -46,7 +94,8 @@ def replace_table(text: str, table: str, block: str, file=None) -> str:
     newline = "\r\n" if "\r\n" in text else "\n"
     block = block.replace("\r\n", "\n").rstrip("\n").replace("\n", newline) + newline
     lines = text.splitlines(keepends=True)
-    headers = [i for i, ln in enumerate(lines) if _HEADER.match(ln)]
+    clean = _top_level_starts(lines)
+    headers = [i for i, ln in enumerate(lines) if clean[i] and _HEADER.match(ln)]
     spans = []
     for j, i in enumerate(headers):
         if _first_component(_HEADER.match(lines[i]).group("name")) != table:

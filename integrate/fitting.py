@@ -151,9 +151,13 @@ def _check_record(time, angle, file, time_key, angle_key, row_name):
 # ---------------------------------------------------------------- starting values
 
 def _linear_solve(basis: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, float]:
+    """Least-squares coefficients of `basis` columns for y, and the residual sum of squares."""
     coef, *_ = np.linalg.lstsq(basis, y, rcond=None)
     r = y - basis @ coef
     return coef, float(r @ r)
+
+
+GRID_SEARCH_POINTS = 20000                 # the starting-value grid uses at most this many samples
 
 
 def _basis(u, gamma, omega):
@@ -161,50 +165,76 @@ def _basis(u, gamma, omega):
     return np.column_stack([np.ones_like(u), u, e * np.cos(omega * u), e * np.sin(omega * u)])
 
 
-def _starting_values(u: np.ndarray, y: np.ndarray):
-    """Starting parameters in scaled units (u in [-1, 1], y of unit spread): the frequency from the
-    zero-padded FFT of the detrended, evenly resampled record; the decay from its Hilbert envelope;
-    then the best (gamma, omega) of a small grid around them, with the linear parameters solved
-    exactly at each grid point. Returns (p0, frequency_at_low_edge)."""
-    n = u.size
-    line = np.polyfit(u, y, 1)
-    x = y - np.polyval(line, u)
-    m = max(n, 64)
-    grid = np.linspace(u[0], u[-1], m)
-    xu = np.interp(grid, u, x)
-    du = grid[1] - grid[0]
-    span = u[-1] - u[0]
-    pad = 16 * m
-    spectrum = np.abs(np.fft.rfft(xu * np.hanning(m), n=pad))
-    freqs = np.fft.rfftfreq(pad, du)
-    lowest = 0.6 / span
-    allowed = freqs >= lowest
-    k = int(np.flatnonzero(allowed)[np.argmax(spectrum[allowed])])
-    f0 = freqs[k]
-    if 0 < k < spectrum.size - 1:                       # parabolic refinement of the peak
-        a, b, c = spectrum[k - 1], spectrum[k], spectrum[k + 1]
+def _peak(freqs: np.ndarray, power: np.ndarray) -> tuple[float, int]:
+    """Frequency of the highest point of a spectrum, refined by a parabola through its neighbours."""
+    k = int(np.argmax(power))
+    f0 = float(freqs[k])
+    if 0 < k < power.size - 1:
+        a, b, c = power[k - 1], power[k], power[k + 1]
         denom = a - 2 * b + c
         if denom != 0:
-            f0 = freqs[k] + 0.5 * (a - c) / denom * (freqs[1] - freqs[0])
-    at_low_edge = bool(freqs[k] <= lowest * 1.34)       # peak not clearly above the lowest search frequency
-    omega0 = 2 * math.pi * max(f0, lowest)
+            f0 += 0.5 * (a - c) / denom * float(freqs[1] - freqs[0])
+    return f0, k
 
-    # decay rate from the envelope over the central part (the analytic signal rings at the ends)
-    env = np.abs(hilbert(xu))
+
+def _dominant_frequency(u: np.ndarray, x: np.ndarray, lowest: float) -> tuple[float, float]:
+    """(frequency, the spectrum's grid frequency at the peak) of detrended samples x(u), searched from
+    `lowest` up: zero-padded FFT of the Hann-windowed record resampled on an even grid at the median
+    sample step. Grid points inside gaps in the record are set to zero, so nothing is invented there."""
+    steps = np.diff(u)
+    median_step = float(np.median(steps))
+    span = float(u[-1] - u[0])
+    m = int(min(max(span / median_step + 1, 64), 2 ** 20))
+    grid = np.linspace(u[0], u[-1], m)
+    xu = np.interp(grid, u, x)
+    if steps.max() > 1.5 * median_step:
+        j = np.clip(np.searchsorted(u, grid), 1, u.size - 1)
+        nearest = np.minimum(grid - u[j - 1], u[j] - grid)
+        xu[nearest > 1.5 * max(median_step, grid[1] - grid[0])] = 0.0
+    pad = 1 << int(math.ceil(math.log2(m)) + 4)
+    pad = max(min(pad, 1 << 22), 4 * m)
+    power = np.abs(np.fft.rfft(xu * np.hanning(m), n=pad))
+    freqs = np.fft.rfftfreq(pad, grid[1] - grid[0])
+    allowed = freqs >= lowest
+    f0, k = _peak(freqs[allowed], power[allowed])
+    return max(f0, lowest), float(freqs[allowed][k])
+
+
+def _decay_rate(u: np.ndarray, x: np.ndarray) -> float:
+    """Decay rate of the detrended samples from the Hilbert envelope of the evenly resampled record,
+    over its central 70 % (the analytic signal rings at the ends); 0 when it cannot be read."""
+    m = max(u.size, 64)
+    grid = np.linspace(u[0], u[-1], m)
+    env = np.abs(hilbert(np.interp(grid, u, x)))
     lo, hi = int(0.15 * m), int(0.85 * m)
-    gamma0 = 0.0
-    if hi - lo >= 8 and np.all(env[lo:hi] > 0):
-        slope = np.polyfit(grid[lo:hi], np.log(env[lo:hi]), 1)[0]
-        gamma0 = float(np.clip(-slope, 0.0, 3.0 / span))
+    if hi - lo < 8 or not np.all(env[lo:hi] > 0):
+        return 0.0
+    slope = np.polyfit(grid[lo:hi], np.log(env[lo:hi]), 1)[0]
+    return float(np.clip(-slope, 0.0, 3.0 / (u[-1] - u[0])))
 
+
+def _starting_values(u: np.ndarray, y: np.ndarray):
+    """Starting parameters in scaled units (u in [-1, 1], y of unit spread): the frequency from the
+    spectrum of the detrended record, the decay from its envelope, then the best (gamma, omega) of a
+    small grid around them, the linear parameters being solved exactly at each grid point.
+    Returns (p0, peak_at_low_edge)."""
+    x = y - np.polyval(np.polyfit(u, y, 1), u)
+    span = float(u[-1] - u[0])
+    lowest = 0.6 / span
+    f0, f_grid = _dominant_frequency(u, x, lowest)
+    at_low_edge = f_grid <= lowest * 1.34          # peak not clearly above the lowest search frequency
+    gamma0 = _decay_rate(u, x)
+    gammas = {0.0, 0.5 * gamma0, gamma0, 2.0 * gamma0, 0.5 / span, 2.0 / span}
+    stride = max(1, u.size // GRID_SEARCH_POINTS)
+    us, ys = u[::stride], y[::stride]
     best = None
     bin_width = 2 * math.pi / span
-    for gamma in sorted({0.0, 0.5 * gamma0, gamma0, 2.0 * gamma0}):
+    for gamma in sorted(gammas):
         for shift in np.linspace(-1.0, 1.0, 9):
-            omega = omega0 + shift * bin_width
+            omega = 2 * math.pi * f0 + shift * bin_width
             if omega <= 0:
                 continue
-            coef, rss = _linear_solve(_basis(u, gamma, omega), y)
+            coef, rss = _linear_solve(_basis(us, gamma, omega), ys)
             if best is None or rss < best[0]:
                 best = (rss, np.array([*coef, gamma, omega]))
     return best[1], at_low_edge

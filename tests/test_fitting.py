@@ -220,3 +220,15 @@ def test_bad_input_no_oscillation():
         fit_record(t, 1e-3 + 1e-7 * t + rng.normal(0.0, 1e-5, t.size))
     with pytest.raises(InputError, match="no oscillation"):
         fit_record(t, np.full(t.size, 0.25))
+
+
+def test_record_with_a_gap():
+    # Truth: the synthetic parameters; a gap of several periods must not bias the fit (no data are
+    # invented inside it).
+    rng = np.random.default_rng(17)
+    truth = dict(period=400.0, decrement=0.1, equilibrium=3.0e-4, amplitude=1.0e-3, drift=0.0)
+    t = np.r_[np.arange(0.0, 1000.0, 2.0), np.arange(2500.0, 4000.0, 2.0)]
+    y = damped_record(t, phase=1.0, t_mid=0.5 * (t[0] + t[-1]), **truth) + rng.normal(0.0, 1e-6, t.size)
+    fit = fit_segment(t, y)
+    for name in FIELDS:
+        assert abs(getattr(fit, name) - truth[name]) <= 4 * getattr(fit, "u_" + name), name
