@@ -57,7 +57,7 @@ def load_mesh(path, file_units: str = "m", file=None, key=None) -> MeshShape:
     faces = np.asarray(mesh.faces, dtype=np.int64)
     shape = MeshShape(vertices, faces, os.fspath(path))
     if shape.volume() < 0:
-        shape = MeshShape(vertices, faces[:, ::-1], os.fspath(path))
+        shape = MeshShape(vertices, faces[:, ::-1], os.fspath(path), inverted=True)
     if not shape.volume() > 0:
         raise InputError(where, key, f"mesh '{name}' encloses no volume")
     return shape

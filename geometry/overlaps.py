@@ -16,10 +16,7 @@ Holes are checked by sampling points inside them, so a sliver of a hole outside 
 from __future__ import annotations
 
 import numpy as np
-from scipy.optimize import minimize
-from scipy.stats import qmc
 
-from truepull.geometry.distance import signed_distance
 from truepull.geometry.shapes import Box, Cone, Cylinder, Ellipsoid, MeshShape, Point, Shell, Sphere
 
 TOUCH_RTOL = 1e-9
@@ -58,6 +55,19 @@ def world_bounds(body) -> tuple[np.ndarray, np.ndarray]:
     return c - h, c + h
 
 
+def signed_distance(shape, points_local):
+    """Signed distance (distance.py), imported on first use (numba start-up is not free)."""
+    from truepull.geometry.distance import signed_distance as sd
+
+    return sd(shape, points_local)
+
+
+def _sobol(n: int, seed: int) -> np.ndarray:
+    from scipy.stats import qmc
+
+    return qmc.Sobol(3, scramble=True, seed=seed).random(n)
+
+
 def _pair_function(a, b):
     inv_a, inv_b = a.placement.inverse(), b.placement.inverse()
 
@@ -78,13 +88,15 @@ def deepest_common_point(a, b, samples: int = 1024, starts: int = 6, seed: int =
     lo, hi = np.maximum(lo_a, lo_b) - pad, np.minimum(hi_a, hi_b) + pad
     if np.any(lo > hi):  # separate boxes: start between the bodies
         lo, hi = np.minimum(lo, hi), np.maximum(lo, hi)
-    sob = qmc.Sobol(3, scramble=True, seed=seed).random(samples)
+    sob = _sobol(samples, seed)
     candidates = np.vstack([lo + sob * (hi - lo), a.com, b.com, (a.com + b.com) / 2,
                             (lo + hi) / 2])
     values = f(candidates)
     order = np.argsort(values)
     best_val, best_p = float(values[order[0]]), candidates[order[0]]
     tol = TOUCH_RTOL * scale * 1e-2
+    from scipy.optimize import minimize
+
     for idx in order[:starts]:
         x0 = candidates[idx]
         span = max(float(np.max(hi - lo)), scale * 1e-3) * 0.05
@@ -152,7 +164,7 @@ def _points_inside(body, n: int, seed: int = 0) -> np.ndarray:
     frac = body.volume / box if box > 0 else 1.0
     m = int(min(2**20, max(64, n / max(frac, 1e-3))))
     m = 1 << int(np.ceil(np.log2(m)))
-    pts = lo + qmc.Sobol(3, scramble=True, seed=seed).random(m) * (hi - lo)
+    pts = lo + _sobol(m, seed) * (hi - lo)
     pts = pts[body.shape.contains(pts)]
     return body.placement.apply(pts)
 

@@ -312,11 +312,13 @@ class Ellipsoid(_ShapeBase):
 class MeshShape(_ShapeBase):
     """A closed, outward-wound triangle mesh: `vertices` (V, 3) in metres in the local frame (the
     file's origin), `faces` (F, 3) vertex indices; `file` is where it came from. Arrays are stored
-    read-only; equality and hashing are by identity. Mass properties from trimesh (density 1)."""
+    read-only; equality and hashing are by identity. Mass properties from trimesh (density 1).
+    `inverted` records that the file was wound inside-out and its faces were reversed on loading."""
 
     vertices: np.ndarray
     faces: np.ndarray
     file: str = ""
+    inverted: bool = False
     _props: dict = field(default_factory=dict, repr=False, compare=False)
     kind: ClassVar[str] = "mesh"
 
