@@ -318,22 +318,20 @@ def fit_segment(time, angle, position: str | None = None, *, file=None, key: str
     except (ValueError, np.linalg.LinAlgError) as exc:
         raise InputError(file, key, f"the fit did not converge ({exc})") from None
     if res.status <= 0 or not np.all(np.isfinite(res.x)) or not np.all(np.isfinite(res.fun)):
-        raise InputError(file, key, "the fit did not converge (no stable optimum for period and decrement: is there a clear oscillation?)")
+        raise InputError(file, key, "the fit did not converge (no stable optimum for period and decrement: "
+                                    "is there a clear oscillation?)")
 
     p = res.x.copy()
-    sign = np.ones(N_PARAMETERS)
     if p[5] < 0:                                  # the same curve with omega > 0: flip omega and b
         p[5], p[3] = -p[5], -p[3]
-        sign[[3, 5]] = -1.0
     jac = _jacobian(p, u)
     rss = float(np.sum((_model(p, u) - ysc) ** 2))
-    dof = n - N_PARAMETERS
-    svals = np.linalg.svd(jac, compute_uv=False)
+    _, svals, vt = np.linalg.svd(jac, full_matrices=False)
     if not (svals[-1] > 1e-12 * svals[0]):
         raise InputError(file, key, "the fit did not converge: period, decrement and amplitude are not "
                                     "separately determined by these data (is there a clear oscillation?)")
-    _, s_, vt = np.linalg.svd(jac, full_matrices=False)
-    cov_scaled = (vt.T / s_ ** 2) @ vt * (rss / dof)
+    # cov = s^2 (J^T J)^-1 with s^2 = RSS / (n - p), through the SVD J = U S V^T
+    cov_scaled = (vt.T / svals ** 2) @ vt * (rss / (n - N_PARAMETERS))
 
     # back to physical units: theta = ybar + ys * y', tau = h * u
     scale = np.array([ys, ys / h, ys, ys, 1.0 / h, 1.0 / h])
