@@ -68,7 +68,7 @@ class Body:
     density: float
     spec: BodySpec | None = None
     point_mass: float = 0.0
-    _cache: dict = field(default_factory=dict, repr=False, compare=False)
+    _cache: dict = field(default_factory=dict, init=False, repr=False, compare=False)
 
     # --- intrinsic properties -------------------------------------------------------------
     @property
@@ -141,10 +141,10 @@ class Body:
     def moved(self, placement: Placement) -> "Body":
         """The same body moved rigidly by a further world placement (applied after its own).
         `spec` still describes the body as written in the scene."""
-        return replace(self, placement=self.placement.then(placement), _cache={})
+        return replace(self, placement=self.placement.then(placement))
 
     def with_density(self, density: float) -> "Body":
-        return replace(self, density=float(density), _cache={})
+        return replace(self, density=float(density))
 
     def __repr__(self) -> str:
         return f"Body({self.name!r}, group={self.group!r}, shape={self.shape!r}, mass={self.mass:.6g} kg)"

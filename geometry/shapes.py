@@ -319,7 +319,7 @@ class MeshShape(_ShapeBase):
     faces: np.ndarray
     file: str = ""
     inverted: bool = False
-    _props: dict = field(default_factory=dict, repr=False, compare=False)
+    _props: dict = field(default_factory=dict, init=False, repr=False, compare=False)
     kind: ClassVar[str] = "mesh"
 
     def __post_init__(self):

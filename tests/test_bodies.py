@@ -145,3 +145,15 @@ def test_mesh_body_mass_properties_from_trimesh():
     assert list(body_parameters(s)) == ["at.x", "at.y", "at.z", "density"]
     assert not b.is_pointlike
     assert isinstance(b.shape, MeshShape) and Cylinder  # mesh kept as loaded
+
+
+def test_dataclass_replace_does_not_reuse_cached_inertia():
+    from dataclasses import replace
+
+    b = Body("b", "g", Box((0.3, 0.1, 0.1)), Placement.identity(), 1000.0)
+    before = b.inertia_com
+    quarter = Placement.turn_about([0, 0, 0], [0, 0, 1], PI / 2)
+    turned = replace(b, placement=quarter)
+    # a quarter turn about z swaps the x and y moments (R I R^T)
+    assert turned.inertia_com[0, 0] == pytest.approx(before[1, 1])
+    assert turned.inertia_com[1, 1] == pytest.approx(before[0, 0])
