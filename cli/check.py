@@ -62,7 +62,9 @@ def render(scene, data: dict) -> str:
         lines.append(format_table(["position", "group", "turn", "unit", f"shift {u}"], prow, align="llrll"))
     if scene.measurement is not None:
         lines.append("")
-        lines.append(f"measurement: {scene.measurement.method}, positions {', '.join(scene.measurement.angle) or '-'}")
+        m = scene.measurement
+        named = m.angle if m.method == "deflection" else m.period
+        lines.append(f"measurement: {m.method} at positions {', '.join(named) or '-'}")
     lines.append("")
     if data["warnings"]:
         lines.append(f"warnings ({len(data['warnings'])}):")

@@ -100,3 +100,15 @@ def test_stray_holes():
     r, h = 0.5, 0.3
     segment = r * r * math.acos((r - h) / r) - (r - h) * math.sqrt(2 * r * h - h * h)
     assert stray["edge-bore"] == pytest.approx(segment / (math.pi * r * r), abs=0.02)
+
+
+def test_ellipsoid_distance_sign_and_zero_set():
+    # points on the surface a (cos t cos p, ...) (parametric form) give zero; scaled in/out change sign
+    e = Ellipsoid((0.3, 0.5, 0.2))
+    rng = np.random.default_rng(5)
+    t, p = rng.uniform(0, 2 * math.pi, 200), rng.uniform(-math.pi / 2, math.pi / 2, 200)
+    surf = np.c_[0.3 * np.cos(t) * np.cos(p), 0.5 * np.sin(t) * np.cos(p), 0.2 * np.sin(p)]
+    np.testing.assert_allclose(signed_distance(e, surf), 0, atol=1e-15)
+    assert np.all(signed_distance(e, 0.99 * surf) < 0) and np.all(signed_distance(e, 1.01 * surf) > 0)
+    # along a principal axis the estimate is the exact distance
+    assert signed_distance(e, [[0, 0.7, 0]])[0] == pytest.approx(0.2, rel=1e-12)
