@@ -1,0 +1,347 @@
+"""Gravity of a uniform rectangular prism, in closed form (Nagy, Papp and Benedek 2000, J. Geodesy
+74:552), SI units.
+
+The prism is centred at the origin of its local frame with half-sizes (hx, hy, hz); points are given
+in that frame. Sign convention: U = -G rho * integral dV'/|x - x'| (J/kg), g = -grad U (m/s^2, toward
+the mass), T_ij = d g_i / d x_j (1/s^2).
+
+How the closed form is evaluated so that it stays accurate:
+- The eight-corner sums of ln(w + r) terms are taken pairwise along each edge direction, as one
+  logarithm of a ratio written with log1p, so the large logarithms never cancel and the ln(0) of a
+  point in the plane of a face or on the line of an edge never appears (those limits are exact).
+- The four-corner arctangent sums are the solid angles of the faces, taken by the Van Oosterom and
+  Strackee formula with an exact triple product, so they keep full relative precision far away.
+- Terms whose coefficient vanishes (x ln x type limits on faces, edges and vertices) are dropped.
+- Even so the outer differences lose digits with distance and with aspect ratio: measured against
+  a 50-digit mpmath evaluation, about 1e-14 for a cube out to 8 half-diagonals, 1e-13..1e-12 for
+  100:1 plates and rods near the prism, 1e-11 for a 2e4:1 slab. So once a point is more than 1.5
+  largest half-sizes away and a tensor Gauss-Legendre rule of at most _MAX_POINTS nodes reaches
+  double precision there, the defining volume integral is summed by that rule instead; its per-axis
+  order comes from the distance (the integrand is analytic in a Bernstein ellipse whose size grows
+  with distance / half-size), and it was measured at 1e-15 against long-double quadrature.
+The potential and field are finite and continuous everywhere (inside, on faces, edges, vertices). The
+gradient tensor jumps across faces (Poisson) and diverges logarithmically at edges; on a face it is
+the average of the two sides, on an edge or vertex it is not finite.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit, prange
+
+from truepull.geometry.errors import InputError
+
+_DIGITS = 17.0              # target of the far-field quadrature: error below 10^-_DIGITS
+_MAX_ORDER = 16
+_MAX_POINTS = 512
+_CHUNK = 64                 # points per parallel work item (scratch arrays are per item)
+_GL_NODES = np.zeros((_MAX_ORDER + 1, _MAX_ORDER))
+_GL_WEIGHTS = np.zeros((_MAX_ORDER + 1, _MAX_ORDER))
+for _n in range(1, _MAX_ORDER + 1):
+    _x, _w = np.polynomial.legendre.leggauss(_n)
+    _GL_NODES[_n, :_n] = _x
+    _GL_WEIGHTS[_n, :_n] = _w
+del _n, _x, _w
+
+
+@njit(cache=True, inline="always")
+def _log_step(a, w1, w2):
+    """ln(w2 + r2) - ln(w1 + r1) with r_k = sqrt(a + w_k^2), a >= 0, w1 < w2, without cancellation.
+    Infinite only when a == 0 and w1 <= 0 <= w2 (the point on the edge itself)."""
+    r1 = np.sqrt(a + w1 * w1)
+    r2 = np.sqrt(a + w2 * w2)
+    if w1 >= 0.0:
+        den = w1 + r1
+        if den == 0.0:
+            return np.inf
+        return np.log1p((w2 - w1) * (1.0 + (w1 + w2) / (r1 + r2)) / den)
+    if w2 <= 0.0:
+        den = r2 - w2
+        if den == 0.0:
+            return np.inf
+        return np.log1p((w2 - w1) * (1.0 - (w1 + w2) / (r1 + r2)) / den)
+    if a == 0.0:
+        return np.inf
+    # w1 < 0 < w2: w1 + r1 = a / (r1 - w1)
+    return np.log((w2 + r2) * (r1 - w1) / a)
+
+
+@njit(cache=True, inline="always")
+def _triangle_angle(ax, ay, az, bx, by, bz, cx, cy, cz, ra, rb, rc, triple):
+    """Signed solid angle of the triangle a, b, c seen from the origin (Van Oosterom and Strackee
+    1983), given the corner distances and the triple product a . (b x c)."""
+    den = (ra * rb * rc + (ax * bx + ay * by + az * bz) * rc
+           + (ax * cx + ay * cy + az * cz) * rb + (bx * cx + by * cy + bz * cz) * ra)
+    return 2.0 * np.arctan2(triple, den)
+
+
+@njit(cache=True, inline="always")
+def _face_angle(u, v1, v2, w1, w2, r11, r21, r22, r12):
+    """Solid angle of the rectangle {u} x [v1,v2] x [w1,w2] seen from the origin, positive for u > 0;
+    zero when u == 0 (the average of the two sides for a point on the face)."""
+    if u == 0.0:
+        return 0.0
+    triple = u * (v2 - v1) * (w2 - w1)
+    t1 = _triangle_angle(u, v1, w1, u, v2, w1, u, v2, w2, r11, r21, r22, triple)
+    t2 = _triangle_angle(u, v1, w1, u, v2, w2, u, v1, w2, r11, r22, r12, triple)
+    return t1 + t2
+
+
+@njit(cache=True)
+def _closed_form_parts(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R):
+    """Fill the edge logarithms D and face solid angles Om for a point p.
+    D[0, i, j] = step in z at (x_i, y_j); D[1, i, k] = step in y at (x_i, z_k);
+    D[2, j, k] = step in x at (y_j, z_k). Om[axis, side] = solid angle of that face."""
+    X[0] = -hx - px
+    X[1] = hx - px
+    Y[0] = -hy - py
+    Y[1] = hy - py
+    Z[0] = -hz - pz
+    Z[1] = hz - pz
+    for i in range(2):
+        for j in range(2):
+            for k in range(2):
+                R[i, j, k] = np.sqrt(X[i] * X[i] + Y[j] * Y[j] + Z[k] * Z[k])
+    for i in range(2):
+        for j in range(2):
+            D[0, i, j] = _log_step(X[i] * X[i] + Y[j] * Y[j], Z[0], Z[1])
+            D[1, i, j] = _log_step(X[i] * X[i] + Z[j] * Z[j], Y[0], Y[1])
+            D[2, i, j] = _log_step(Y[i] * Y[i] + Z[j] * Z[j], X[0], X[1])
+    for s in range(2):
+        # x-faces: (v, w) = (y, z); y-faces: (v, w) = (z, x); z-faces: (v, w) = (x, y), all right-handed
+        Om[0, s] = _face_angle(X[s], Y[0], Y[1], Z[0], Z[1],
+                               R[s, 0, 0], R[s, 1, 0], R[s, 1, 1], R[s, 0, 1])
+        Om[1, s] = _face_angle(Y[s], Z[0], Z[1], X[0], X[1],
+                               R[0, s, 0], R[0, s, 1], R[1, s, 1], R[1, s, 0])
+        Om[2, s] = _face_angle(Z[s], X[0], X[1], Y[0], Y[1],
+                               R[0, 0, s], R[1, 0, s], R[1, 1, s], R[0, 1, s])
+
+
+@njit(cache=True)
+def _closed_form_point(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R):
+    """Return (I, Jx, Jy, Jz): I = integral dV/r and J = integral (x' - p)/r^3 dV over the prism."""
+    _closed_form_parts(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R)
+    pot = 0.0
+    jx = 0.0
+    jy = 0.0
+    jz = 0.0
+    for i in range(2):
+        for j in range(2):
+            s = 1.0 if i == j else -1.0
+            # step in z at (x_i, y_j)
+            d = D[0, i, j]
+            if X[i] != 0.0 and Y[j] != 0.0:
+                pot += s * X[i] * Y[j] * d
+            if Y[j] != 0.0:
+                jx += s * Y[j] * d
+            if X[i] != 0.0:
+                jy += s * X[i] * d
+            # step in y at (x_i, z_j)
+            d = D[1, i, j]
+            if X[i] != 0.0 and Z[j] != 0.0:
+                pot += s * X[i] * Z[j] * d
+            if Z[j] != 0.0:
+                jx += s * Z[j] * d
+            if X[i] != 0.0:
+                jz += s * X[i] * d
+            # step in x at (y_i, z_j)
+            d = D[2, i, j]
+            if Y[i] != 0.0 and Z[j] != 0.0:
+                pot += s * Y[i] * Z[j] * d
+            if Z[j] != 0.0:
+                jy += s * Z[j] * d
+            if Y[i] != 0.0:
+                jz += s * Y[i] * d
+    for k in range(2):
+        s = 1.0 if k == 1 else -1.0
+        pot -= 0.5 * s * (X[k] * X[k] * Om[0, k] + Y[k] * Y[k] * Om[1, k] + Z[k] * Z[k] * Om[2, k])
+        jx -= s * X[k] * Om[0, k]
+        jy -= s * Y[k] * Om[1, k]
+        jz -= s * Z[k] * Om[2, k]
+    # The sums above are the corner sums of the antiderivatives; J = -(field antiderivative sum).
+    return pot, -jx, -jy, -jz
+
+
+@njit(cache=True, inline="always")
+def _gl_order(dist, h):
+    """Gauss-Legendre order along an axis of half-length h for a point at distance `dist` from the
+    prism, so that the rule's error is below double precision. Along a fibre the integrand's
+    singularities lie at least `dist` from the segment, so outside the Bernstein ellipse of
+    semi-minor axis dist/h, parameter rho = delta + sqrt(delta^2 + 1); the error falls as
+    rho^(-2n) (Trefethen, Approximation Theory and Approximation Practice, ch. 19)."""
+    delta = dist / h
+    rho = delta + np.sqrt(delta * delta + 1.0)
+    n = int(np.ceil(_DIGITS / (2.0 * np.log10(rho)))) + 1
+    if n > _MAX_ORDER:
+        n = _MAX_ORDER
+    return n
+
+
+@njit(cache=True, inline="always")
+def _choose_rule(px, py, pz, hx, hy, hz):
+    """Per-axis Gauss-Legendre orders (nx, ny, nz) if the quadrature is to be used at this point,
+    else (0, 0, 0) for the closed form. The quadrature is used once the point is at least
+    1.5 largest half-sizes away and the rule has at most _MAX_POINTS nodes."""
+    ex = max(abs(px) - hx, 0.0)
+    ey = max(abs(py) - hy, 0.0)
+    ez = max(abs(pz) - hz, 0.0)
+    dist = np.sqrt(ex * ex + ey * ey + ez * ez)
+    if dist < 1.5 * max(hx, max(hy, hz)):
+        return 0, 0, 0
+    nx = _gl_order(dist, hx)
+    ny = _gl_order(dist, hy)
+    nz = _gl_order(dist, hz)
+    if nx * ny * nz > _MAX_POINTS:
+        return 0, 0, 0
+    return nx, ny, nz
+
+
+@njit(cache=True)
+def _quadrature_point(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights):
+    """(I, Jx, Jy, Jz) as in _closed_form_point, by an nx*ny*nz tensor Gauss-Legendre rule."""
+    pot = 0.0
+    jx = 0.0
+    jy = 0.0
+    jz = 0.0
+    for a in range(nx):
+        dx = hx * nodes[nx, a] - px
+        for b in range(ny):
+            dy = hy * nodes[ny, b] - py
+            wab = weights[nx, a] * weights[ny, b]
+            for c in range(nz):
+                dz = hz * nodes[nz, c] - pz
+                w = wab * weights[nz, c]
+                inv_r = 1.0 / np.sqrt(dx * dx + dy * dy + dz * dz)
+                pot += w * inv_r
+                s = w * inv_r * inv_r * inv_r
+                jx += s * dx
+                jy += s * dy
+                jz += s * dz
+    vol = hx * hy * hz
+    return pot * vol, jx * vol, jy * vol, jz * vol
+
+
+@njit(cache=True, parallel=True)
+def _prism_field_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights):
+    n = points.shape[0]
+    U = np.empty(n)
+    g = np.empty((n, 3))
+    scale = G * rho
+    n_chunks = (n + _CHUNK - 1) // _CHUNK
+    for c in prange(n_chunks):
+        D = np.empty((3, 2, 2))
+        Om = np.empty((3, 2))
+        X = np.empty(2)
+        Y = np.empty(2)
+        Z = np.empty(2)
+        R = np.empty((2, 2, 2))
+        for i in range(c * _CHUNK, min(n, (c + 1) * _CHUNK)):
+            px = points[i, 0]
+            py = points[i, 1]
+            pz = points[i, 2]
+            nx, ny, nz = 0, 0, 0
+            if allow_quadrature:
+                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz)
+            if nx > 0:
+                pot, jx, jy, jz = _quadrature_point(px, py, pz, hx, hy, hz, nx, ny, nz,
+                                                    nodes, weights)
+            else:
+                pot, jx, jy, jz = _closed_form_point(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R)
+            U[i] = -scale * pot
+            g[i, 0] = scale * jx
+            g[i, 1] = scale * jy
+            g[i, 2] = scale * jz
+    return U, g
+
+
+@njit(cache=True)
+def _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t):
+    """t += integral (3 d d^T - r^2 I) / r^5 dV by a tensor Gauss-Legendre rule (d = x' - p)."""
+    vol = hx * hy * hz
+    d = np.empty(3)
+    for a in range(nx):
+        d[0] = hx * nodes[nx, a] - px
+        for b in range(ny):
+            d[1] = hy * nodes[ny, b] - py
+            for c in range(nz):
+                d[2] = hz * nodes[nz, c] - pz
+                w = weights[nx, a] * weights[ny, b] * weights[nz, c] * vol
+                r2 = d[0] * d[0] + d[1] * d[1] + d[2] * d[2]
+                inv_r2 = 1.0 / r2
+                s = w * inv_r2 / np.sqrt(r2)
+                for p in range(3):
+                    for q in range(3):
+                        t[p, q] += 3.0 * s * d[p] * d[q] * inv_r2
+                    t[p, p] -= s
+
+
+@njit(cache=True, parallel=True)
+def _prism_gradient_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights):
+    n = points.shape[0]
+    T = np.zeros((n, 3, 3))
+    scale = G * rho
+    for i in prange(n):
+        px = points[i, 0]
+        py = points[i, 1]
+        pz = points[i, 2]
+        t = np.zeros((3, 3))
+        nx, ny, nz = 0, 0, 0
+        if allow_quadrature:
+            nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz)
+        if nx > 0:
+            _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t)
+        else:
+            D = np.empty((3, 2, 2))
+            Om = np.empty((3, 2))
+            X = np.empty(2)
+            Y = np.empty(2)
+            Z = np.empty(2)
+            R = np.empty((2, 2, 2))
+            _closed_form_parts(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R)
+            for k in range(2):
+                s = 1.0 if k == 1 else -1.0
+                for a in range(3):
+                    t[a, a] -= s * Om[a, k]
+            for i2 in range(2):
+                for j2 in range(2):
+                    s = 1.0 if i2 == j2 else -1.0
+                    t[0, 1] += s * D[0, i2, j2]
+                    t[0, 2] += s * D[1, i2, j2]
+                    t[1, 2] += s * D[2, i2, j2]
+            t[1, 0] = t[0, 1]
+            t[2, 0] = t[0, 2]
+            t[2, 1] = t[1, 2]
+        for a in range(3):
+            for b in range(3):
+                T[i, a, b] = scale * t[a, b]
+    return T
+
+
+def _check(points, half_sizes):
+    p = np.ascontiguousarray(points, dtype=np.float64)
+    if p.ndim == 1 and p.shape[0] == 3:
+        p = p.reshape(1, 3)
+    if p.ndim != 2 or p.shape[1] != 3:
+        raise InputError(None, "points", f"expected an (N, 3) array of positions, got {p.shape}")
+    h = np.asarray(half_sizes, dtype=np.float64).reshape(-1)
+    if h.shape != (3,) or not np.all(np.isfinite(h)) or np.any(h <= 0.0):
+        raise InputError(None, "size", f"a box needs three positive half-sizes, got {h.tolist()}")
+    return p, h
+
+
+def prism_field(points, half_sizes, rho, G):
+    """Potential U (N,) in J/kg and field g (N,3) in m/s^2 of a uniform prism of density `rho`
+    (kg/m^3, negative for a hole) centred at the origin with `half_sizes` (hx, hy, hz) in m, at
+    `points` (N,3) in m in the prism's frame. Finite and continuous everywhere."""
+    p, h = _check(points, half_sizes)
+    return _prism_field_kernel(p, h[0], h[1], h[2], float(rho), float(G), True,
+                               _GL_NODES, _GL_WEIGHTS)
+
+
+def prism_gradient(points, half_sizes, rho, G):
+    """Gradient tensor T (N,3,3) in 1/s^2, T_ij = d g_i / d x_j, of the prism of `prism_field`.
+    Symmetric; trace 0 outside and -4 pi G rho inside; on a face the mean of both sides; not finite
+    on edges and vertices (logarithmic singularity)."""
+    p, h = _check(points, half_sizes)
+    return _prism_gradient_kernel(p, h[0], h[1], h[2], float(rho), float(G), True,
+                                  _GL_NODES, _GL_WEIGHTS)
