@@ -38,7 +38,7 @@ def test_demo_check_has_no_overlap_or_touch_warnings():
 
 def test_bobs_clear_the_attractor_by_about_five_mm_at_a_and_b():
     # upright cylinders with overlapping heights: the gap is the distance between axes minus the radii
-    # (plane geometry), here for bob radius 6 mm and attractor radius 25 mm
+    # (plane geometry, from memory), here for bob radius 6 mm and attractor radius 25 mm
     scene = load_scene(demo_path())
     for pos in ("A", "B"):
         moved = scene.at_position(pos)

@@ -21,7 +21,7 @@ def test_bracket_is_closed_outward_and_has_the_l_volume_and_centroid():
     mesh = mb.make_bracket()
     assert mesh.is_watertight and mesh.is_winding_consistent
     assert mesh.volume > 0  # outward winding: positive signed volume
-    # composite of two rectangular boxes (elementary statics: volume-weighted centroid)
+    # composite of two rectangular boxes (elementary statics, from memory: volume-weighted centroid)
     parts = _legs()
     vols = [np.prod(size) for _, size in parts]
     centroid = sum(v * c for v, (c, _) in zip(vols, parts)) / sum(vols)
@@ -36,10 +36,10 @@ def test_bracket_inertia_equals_two_boxes_by_parallel_axes():
     com = sum(v * c for v, (c, _) in zip(vols, parts)) / sum(vols)
     total = np.zeros((3, 3))
     for v, (c, (a, b, cc)) in zip(vols, parts):
-        # box about its centre, density 1: m/12 diag(b^2+c^2, a^2+c^2, a^2+b^2) (handbook)
+        # box about its centre, density 1: m/12 diag(b^2+c^2, a^2+c^2, a^2+b^2) (handbook, from memory)
         box = v / 12.0 * np.diag([b * b + cc * cc, a * a + cc * cc, a * a + b * b])
         d = c - com
-        total += box + v * (d @ d * np.eye(3) - np.outer(d, d))  # parallel-axis theorem (handbook)
+        total += box + v * (d @ d * np.eye(3) - np.outer(d, d))  # parallel-axis theorem (handbook, from memory)
     assert np.allclose(mesh.moment_inertia, total, rtol=1e-12, atol=1e-9 * np.abs(total).max())
 
 

@@ -26,7 +26,7 @@ def test_segments_follow_the_damped_oscillator_ode():
 
 
 def test_decrement_and_period_relation():
-    # omega0^2 = omega_d^2 (1 + (delta / 2 pi)^2) (damped oscillator, textbook mechanics)
+    # omega0^2 = omega_d^2 (1 + (delta / 2 pi)^2) (damped oscillator, textbook mechanics, from memory)
     kappa, gamma, omega_d = mr.oscillator_constants()
     omega0_sq = kappa / mr.INERTIA
     assert np.isclose(omega0_sq, omega_d**2 * (1 + (mr.DECREMENT / (2 * np.pi)) ** 2), rtol=1e-14)
