@@ -1,0 +1,311 @@
+"""Sweeps: the interaction while one group turns about the frame axis or shifts along x, y or z.
+
+Each sweep value gives a row: the exact torque about the axis, the point-model torque, the exact
+stiffness and the exact force on the test group (SI: N m, N m/rad, N), with error estimates.
+A turn of the attractor (or of the pendulum) about the frame axis takes the multipole fast path
+when the pendulum lies inside and the attractor outside a sphere about the pivot: the torque is
+then a Fourier series in the turn (`multipoles`), checked against direct integration at a few
+values and dropped for direct integration if any check disagrees beyond the two error estimates.
+Otherwise every value is integrated directly, in parallel (`executor.map_parallel`: local processes
+or a Dask cluster); a worker re-loads the scene from its file when one is given, so only the path
+and the value travel.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, field
+from functools import lru_cache, partial
+
+import numpy as np
+
+from truepull.geometry.errors import InputError
+from truepull.geometry.placement import Placement
+from truepull.integrate.executor import map_parallel
+
+AXES = {"x": 0, "y": 1, "z": 2}
+DEFAULT_CHECKS = 2
+
+
+@dataclass(frozen=True)
+class Sweep:
+    """What moves: `group` turned (kind "turn", values in rad) about the frame axis through the pivot,
+    or shifted (kind "shift", values in m) along the scene axis `direction` ("x", "y" or "z")."""
+
+    kind: str
+    values: tuple[float, ...]
+    group: str = "attractor"
+    direction: str | None = None
+
+    def placement(self, frame, value: float) -> Placement:
+        if self.kind == "turn":
+            return frame.turn(value)
+        v = np.zeros(3)
+        v[AXES[self.direction]] = value
+        return Placement.shift(v)
+
+
+@dataclass(frozen=True)
+class ScanRow:
+    """One sweep value (rad or m) and the interaction there (SI)."""
+
+    value: float
+    exact_torque_axis: float
+    point_torque_axis: float
+    exact_stiffness_axis: float
+    force: np.ndarray
+    error_torque_axis: float
+    error_stiffness_axis: float
+    error_force: float
+    reached: bool = True
+
+    def to_json(self, value_factor: float = 1.0) -> dict:
+        return {"value": self.value / value_factor, "exact_torque_axis": self.exact_torque_axis,
+                "point_torque_axis": self.point_torque_axis, "exact_stiffness_axis": self.exact_stiffness_axis,
+                "force": [float(f) for f in self.force], "error_torque_axis": self.error_torque_axis,
+                "error_stiffness_axis": self.error_stiffness_axis, "reached": self.reached}
+
+
+@dataclass(frozen=True)
+class CheckResult:
+    """A multipole value set beside direct integration at one sweep value."""
+
+    value: float
+    multipole: float
+    direct: float
+    allowed: float
+
+    @property
+    def agrees(self) -> bool:
+        return abs(self.multipole - self.direct) <= self.allowed
+
+
+@dataclass(frozen=True)
+class ScanResult:
+    """The rows in sweep order; `method` is "multipole" or "direct"; `degree` the series degree used."""
+
+    sweep: Sweep
+    test: str
+    source: str
+    rows: tuple[ScanRow, ...]
+    method: str
+    degree: int | None = None
+    checks: tuple[CheckResult, ...] = ()
+    notes: tuple[str, ...] = field(default_factory=tuple)
+
+    @property
+    def reached(self) -> bool:
+        return all(r.reached for r in self.rows)
+
+
+# ------------------------------------------------------------------------------------------------
+# parsing a range
+
+
+def parse_range(text: str, key: str, file=None) -> tuple[float, ...]:
+    """'START:STOP:STEP' -> start, start + step, ... up to and including STOP (when it falls on the
+    grid, within a millionth of a step). STEP may be negative; never zero."""
+    parts = str(text).split(":")
+    if len(parts) != 3:
+        raise InputError(file, key, f"expected START:STOP:STEP, got '{text}'")
+    try:
+        start, stop, step = (float(p) for p in parts)
+    except ValueError:
+        raise InputError(file, key, f"START, STOP and STEP must be numbers, got '{text}'") from None
+    if not all(math.isfinite(v) for v in (start, stop, step)):
+        raise InputError(file, key, f"START, STOP and STEP must be finite, got '{text}'")
+    if step == 0:
+        raise InputError(file, key, "STEP must not be zero")
+    n = math.floor((stop - start) / step + 1e-6)
+    if n < 0:
+        raise InputError(file, key, f"STEP {step:g} goes away from STOP {stop:g}: no values")
+    if n > 1_000_000:
+        raise InputError(file, key, f"{n + 1} values are too many (at most a million)")
+    return tuple(start + k * step for k in range(n + 1))
+
+
+# ------------------------------------------------------------------------------------------------
+# direct integration of one value (a top-level function, so it can run in worker processes)
+
+
+@dataclass(frozen=True)
+class DirectJob:
+    """Everything a worker needs besides the value: the scene's file (re-loaded there) or the scene
+    itself, and the settings."""
+
+    scene_path: str | None
+    scene: object
+    position: object
+    sweep_kind: str
+    group: str
+    direction: str | None
+    test: str
+    source: str
+    rtol: float
+
+
+@lru_cache(maxsize=4)
+def _load(path: str, mtime: float):
+    from truepull.geometry.scene import load_scene
+
+    return load_scene(path)
+
+
+def _job_scene(job: DirectJob):
+    if job.scene is not None:
+        return job.scene
+    return _load(job.scene_path, os.path.getmtime(job.scene_path))
+
+
+def moved_scene(scene, sweep_kind, group, direction, position, value):
+    """The scene at `position`, then `group` turned or shifted by `value` (rad or m)."""
+    from dataclasses import replace
+
+    sc = scene.at_position(position) if position is not None else scene
+    move = Sweep(sweep_kind, (), group, direction).placement(sc.frame, value)
+    return replace(sc, bodies=tuple(b.moved(move) if b.group == group else b for b in sc.bodies))
+
+
+def direct_row(job: DirectJob, value: float) -> ScanRow:
+    """One row by direct integration (the engine) at one sweep value."""
+    from truepull.integrate.interaction import compare_groups
+
+    sc = moved_scene(_job_scene(job), job.sweep_kind, job.group, job.direction, job.position, value)
+    c = compare_groups(sc, job.test, job.source, None, job.rtol)
+    return ScanRow(float(value), c.exact.torque_axis, c.point.torque_axis, c.exact.stiffness_axis,
+                   np.asarray(c.exact.force, float), c.error.torque_axis, c.error.stiffness_axis,
+                   float(np.linalg.norm(c.error.force)), bool(c.reached))
+
+
+# ------------------------------------------------------------------------------------------------
+# point model over a turn, vectorised
+
+
+def point_torques_turn(scene, sweep: Sweep, test: str, source: str, position=None) -> np.ndarray:
+    """Point-model torque about the axis on the test group at each turn value (every body a point
+    of its mass at its centre of mass; the same model as `point_model`)."""
+    sc = scene.at_position(position) if position is not None else scene
+    p, e, G = sc.frame.pivot, sc.frame.axis, sc.G.value
+    tb, sb = sc.group(test), sc.group(source)
+    mt = np.array([b.mass for b in tb])
+    ms = np.array([b.mass for b in sb])
+    ct = np.array([b.com for b in tb]).reshape(-1, 3)
+    cs = np.array([b.com for b in sb]).reshape(-1, 3)
+    out = np.empty(len(sweep.values))
+    for k, v in enumerate(sweep.values):
+        mv = sweep.placement(sc.frame, v)
+        a = mv.apply(ct) if sweep.group == test else ct
+        b = mv.apply(cs) if sweep.group == source else cs
+        d = b[None, :, :] - a[:, None, :]  # test -> source
+        r3 = np.linalg.norm(d, axis=2) ** 3
+        f = G * (mt[:, None] * ms[None, :] / r3)[:, :, None] * d  # force on each test point
+        tau = np.cross(a[:, None, :] - p, f)
+        out[k] = float(np.sum(tau @ e))
+    return out
+
+
+# ------------------------------------------------------------------------------------------------
+# the scan
+
+
+def _multipole_rows(scene, sweep, test, source, position, rtol, point_tau):
+    """Rows from the multipole series, or raise MultipoleRefused."""
+    from truepull.integrate.multipoles import MultipoleRefused, interaction_series
+
+    sc = scene.at_position(position) if position is not None else scene
+    tb, sb = sc.group(test), sc.group(source)
+    scale = float(np.max(np.abs(point_tau))) if len(point_tau) else 0.0
+    series = interaction_series(tb, sb, sc.frame.pivot, sc.frame.axis, sc.G.value, rtol,
+                                torque_scale=scale if scale > 0 else None)
+    if not series.reached:
+        raise MultipoleRefused("; ".join(series.notes) or "the outer moments did not converge")
+    v = np.asarray(sweep.values, float)
+    phi = v if sweep.group == source else -v
+    tau = series.torque_axis(phi)
+    K = series.stiffness_axis(phi)
+    F = series.force(phi)
+    if sweep.group == test:  # the test group turned by v: the configuration is the attractor turned by -v,
+        F = np.array([sc.frame.turn(x).apply_vector(f) for x, f in zip(v, F)])  # then everything turned by v
+    err = series.errors()
+    if max(abs(tau).max(initial=0.0), scale) > 0 and err["torque_axis"] > rtol * max(np.abs(tau).max(), 1e-300) * 4:
+        # the actual torque is smaller than the point-model size the degree was chosen for
+        series = interaction_series(tb, sb, sc.frame.pivot, sc.frame.axis, sc.G.value, rtol,
+                                    torque_scale=float(np.abs(tau).max()))
+        if not series.reached:
+            raise MultipoleRefused("; ".join(series.notes) or "the outer moments did not converge")
+        tau, K, F = series.torque_axis(phi), series.stiffness_axis(phi), series.force(phi)
+        if sweep.group == test:
+            F = np.array([sc.frame.turn(x).apply_vector(f) for x, f in zip(v, F)])
+        err = series.errors()
+    rows = tuple(ScanRow(float(x), float(t), float(pt), float(k), f, err["torque_axis"], err["stiffness_axis"],
+                         err["force"], True)
+                 for x, t, pt, k, f in zip(v, tau, point_tau, K, F))
+    return rows, series
+
+
+def _check_indices(n: int, checks: int) -> list[int]:
+    if checks <= 0 or n == 0:
+        return []
+    if checks >= n:
+        return list(range(n))
+    return sorted(set(int(round(i)) for i in np.linspace(0, n - 1, checks + 2)[1:-1]))
+
+
+def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor", position=None,
+         rtol: float = 1e-9, workers: int | None = None, scheduler=None, progress: bool = False,
+         scene_path: str | None = None, multipoles: bool = True, checks: int = DEFAULT_CHECKS) -> ScanResult:
+    """Sweep `sweep` and return one row per value (see the module docstring).
+
+    scene_path: when given, worker processes re-load the scene from this file (it must be the file
+    `scene` was loaded from); otherwise the scene itself is sent to them. multipoles: allow the fast
+    path; checks: how many sweep values are also integrated directly to check it."""
+    if not rtol > 0:
+        raise InputError(scene.path, "--rtol", "the tolerance must be greater than zero")
+    if sweep.group not in scene.groups():
+        raise InputError(scene.path, "--group", f"no group '{sweep.group}' (groups: {', '.join(scene.groups())})")
+    for name, flag in ((test, "--test"), (source, "--source")):
+        if name not in scene.groups():
+            raise InputError(scene.path, flag, f"no group '{name}' (groups: {', '.join(scene.groups())})")
+    if sweep.kind not in ("turn", "shift") or (sweep.kind == "shift" and sweep.direction not in AXES):
+        raise InputError(scene.path, "--shift", "a shift goes along x, y or z")
+    if position is not None:
+        if isinstance(position, str):
+            scene.get_position(position)
+    job = DirectJob(scene_path, None if scene_path else scene, position, sweep.kind, sweep.group,
+                    sweep.direction, test, source, rtol)
+    run = partial(direct_row, job)
+    notes: list[str] = []
+
+    if sweep.kind == "turn" and multipoles and sweep.group in (test, source):
+        from truepull.integrate.multipoles import MultipoleRefused
+
+        point_tau = point_torques_turn(scene, sweep, test, source, position)
+        try:
+            rows, series = _multipole_rows(scene, sweep, test, source, position, rtol, point_tau)
+        except MultipoleRefused as exc:
+            notes.append(f"multipole fast path not used: {exc.reason}; every value integrated directly")
+        else:
+            idx = _check_indices(len(rows), checks)
+            direct = map_parallel(run, [rows[i].value for i in idx], workers=workers, scheduler=scheduler,
+                                  progress=progress, desc="checking multipoles")
+            results = []
+            for i, d in zip(idx, direct):
+                mp = rows[i]
+                allowed = 2.0 * (mp.error_torque_axis + d.error_torque_axis) + 64 * np.finfo(float).eps * abs(d.exact_torque_axis)
+                results.append(CheckResult(mp.value, mp.exact_torque_axis, d.exact_torque_axis, allowed))
+            bad = [c for c in results if not c.agrees]
+            if not bad:
+                if idx:
+                    notes.append(f"multipole series of degree {series.L} checked against direct integration at "
+                                 f"{len(idx)} value(s)")
+                notes.extend(series.notes)
+                return ScanResult(sweep, test, source, rows, "multipole", series.L, tuple(results), tuple(notes))
+            worst = max(bad, key=lambda c: abs(c.multipole - c.direct) / max(c.allowed, 1e-300))
+            notes.append(f"multipole series disagreed with direct integration at {worst.value:g} "
+                         f"({worst.multipole:.10g} against {worst.direct:.10g} N m); every value integrated directly")
+    rows = map_parallel(run, list(sweep.values), workers=workers, scheduler=scheduler, progress=progress,
+                        desc=f"{sweep.kind} of {sweep.group}")
+    if not all(r.reached for r in rows):
+        notes.append(f"tolerance {rtol:g} not reached at {sum(not r.reached for r in rows)} value(s)")
+    return ScanResult(sweep, test, source, tuple(rows), "direct", None, (), tuple(notes))
