@@ -1,0 +1,147 @@
+"""The 3-D picture of a scene: bodies in group colours, the source field on a plane, force and torque.
+
+Drawn in the scene's length unit (coordinates divided by the scene's length factor), so the axes
+read in mm when the scene is written in mm. The colour map of |g| is drawn unlit, so its colours
+match the colour bar; bodies are lit. Colours are fixed here so that pictures (and tests) can tell
+the groups apart: pendulum vermillion, attractor reddish purple, other groups from a short list,
+none of them in the blue-green colour map of the field.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+GROUP_COLOURS = {"pendulum": "#D55E00", "attractor": "#CC79A7"}
+OTHER_COLOURS = ("#A8A8A8", "#E69F00", "#F0E442", "#8C564B")
+HOLE_COLOUR = "#505050"
+FORCE_COLOUR = "#000000"
+TORQUE_COLOUR = "#6A3D9A"
+FIELD_ARROW_COLOUR = "#303030"
+FIELD_CMAP = "GnBu"
+BACKGROUND = "white"
+ARROWS_PER_SIDE = 15
+PLANE_OPACITY = 0.8
+"""Slightly see-through, so what lies below the plane (a torque along -z, say) still shows."""
+LOG_SCALE_RATIO = 20.0
+"""Use a logarithmic colour scale when max |g| / min |g| on the plane exceeds this."""
+
+
+def group_colours(groups) -> dict[str, str]:
+    """A colour (hex) per group name, in the order given."""
+    out, spare = {}, iter(OTHER_COLOURS * (1 + len(tuple(groups)) // len(OTHER_COLOURS)))
+    for g in groups:
+        out[g] = GROUP_COLOURS.get(g) or next(spare)
+    return out
+
+
+def _hex_rgb(colour: str) -> np.ndarray:
+    return np.array([int(colour[i:i + 2], 16) for i in (1, 3, 5)], dtype=float)
+
+
+def _scaled(surface, factor: float):
+    s = surface.copy()
+    s.points = np.asarray(s.points) / factor
+    return s
+
+
+def _touches(a, b) -> bool:
+    (ca, ra), (cb, rb) = a.bounding_sphere(), b.bounding_sphere()
+    return float(np.linalg.norm(ca - cb)) <= ra + rb
+
+
+def add_bodies(plotter, bodies, surfaces, colours, factor: float) -> None:
+    """Bodies in their group colour; holes translucent grey, and bodies that may hold a hole half
+    translucent so the hole shows through."""
+    holes = [b for b in bodies if b.is_hole]
+    for body, surf in zip(bodies, surfaces):
+        s = _scaled(surf, factor)
+        if body.is_hole:
+            plotter.add_mesh(s, color=HOLE_COLOUR, opacity=0.45, smooth_shading=True, split_sharp_edges=True)
+            plotter.add_mesh(s.extract_feature_edges(30.0), color="black", line_width=1)
+            continue
+        hosts_hole = any(h.group == body.group and _touches(h, body) for h in holes)
+        plotter.add_mesh(s, color=colours[body.group], opacity=0.5 if hosts_hole else 1.0,
+                         smooth_shading=True, split_sharp_edges=True)
+
+
+def add_field(plotter, field_poly, fp, factor: float) -> dict:
+    """The |g| colour map (unmasked cells only) with a labelled colour bar and arrows along g.
+    Returns the colour scale used."""
+    import pyvista as pv
+
+    mag = fp.g_magnitude[~fp.masked]
+    info = {"log_scale": False}
+    if mag.size == 0:
+        return info
+    keep = np.flatnonzero(~fp.masked)
+    shown = _scaled(field_poly, factor).extract_points(keep, adjacent_cells=False)
+    lo, hi = float(mag.min()), float(mag.max())
+    log = lo > 0 and hi / lo > LOG_SCALE_RATIO
+    info.update(log_scale=bool(log), min=lo, max=hi)
+    if shown.n_cells > 0:
+        plotter.add_mesh(shown, scalars="g_magnitude", cmap=FIELD_CMAP, log_scale=log, clim=(lo, hi),
+                         lighting=False, show_scalar_bar=True, opacity=PLANE_OPACITY,
+                         scalar_bar_args={"title": "magnitude of g (m/s^2)", "fmt": "%.2e", "n_labels": 5,
+                                          "color": "black", "vertical": True, "position_x": 0.88,
+                                          "position_y": 0.12, "height": 0.7, "width": 0.06})
+    n = fp.n
+    step = max(1, int(round((n - 1) / (ARROWS_PER_SIDE - 1))))
+    idx = np.arange(n)[::step]
+    ii, jj = np.meshgrid(idx, idx)
+    pick = (jj * n + ii).ravel()
+    pick = pick[~fp.masked[pick]]
+    if pick.size:
+        g = fp.g[pick]
+        direction = g / np.maximum(np.linalg.norm(g, axis=1, keepdims=True), 1e-300)
+        cloud = pv.PolyData(fp.points[pick] / factor)
+        cloud["direction"] = direction
+        length = 0.8 * step * fp.spacing / factor
+        arrow = pv.Arrow(start=(-0.5, 0.0, 0.0), tip_length=0.35, tip_radius=0.12, shaft_radius=0.04)
+        plotter.add_mesh(cloud.glyph(orient="direction", scale=False, factor=length, geom=arrow),
+                         color=FIELD_ARROW_COLOUR)
+    return info
+
+
+def add_arrow(plotter, start, vector, length: float, colour: str, label: str) -> None:
+    """A labelled arrow of display length `length` from `start` along `vector` (skipped if zero)."""
+    import pyvista as pv
+
+    v = np.asarray(vector, float)
+    norm = np.linalg.norm(v)
+    if not norm > 0:
+        return
+    d = v / norm
+    plotter.add_mesh(pv.Arrow(start=start, direction=d, scale=length, tip_length=0.25, tip_radius=0.07,
+                              shaft_radius=0.025), color=colour)
+    plotter.add_point_labels(np.asarray([np.asarray(start) + d * length * 1.05]), [label], font_size=14,
+                             text_color=colour, shape=None, show_points=False, always_visible=True)
+
+
+def draw(plotter, scene, bodies, surfaces, fp, field_poly, comparison, centre, title: str) -> dict:
+    """Everything on one plotter. Returns facts about what was drawn."""
+    f = scene.length_factor
+    unit = scene.length_unit
+    plotter.set_background(BACKGROUND)
+    colours = group_colours(dict.fromkeys(b.group for b in bodies))
+    add_bodies(plotter, bodies, surfaces, colours, f)
+    info = add_field(plotter, field_poly, fp, f)
+    reach = 0.45 * fp.half_size / f
+    c = comparison
+    add_arrow(plotter, np.asarray(centre) / f, c.exact.force, reach, FORCE_COLOUR,
+              f"net force {np.linalg.norm(c.exact.force):.3e} N")
+    add_arrow(plotter, np.asarray(scene.frame.pivot) / f, c.exact.torque, 0.8 * reach, TORQUE_COLOUR,
+              f"torque {np.linalg.norm(c.exact.torque):.3e} N m (axis {c.exact.torque_axis:.3e})")
+    legend = [[f"{g} (group)", col] for g, col in colours.items()]
+    if any(b.is_hole for b in bodies):
+        legend.append(["hole / void", HOLE_COLOUR])
+    legend += [[f"net force on {c.test}", FORCE_COLOUR], ["torque about pivot", TORQUE_COLOUR],
+               [f"direction of g ({c.source})", FIELD_ARROW_COLOUR]]
+    plotter.add_legend(legend, bcolor="white", border=True, loc="upper left", size=(0.26, 0.22), face="rectangle")
+    plotter.add_text(title, position="upper_edge", font_size=11, color="black")
+    plotter.show_bounds(xtitle=f"x ({unit})", ytitle=f"y ({unit})", ztitle=f"z ({unit})", color="black",
+                        grid=False, location="outer", ticks="outside", font_size=12)
+    plotter.add_axes(color="black")
+    plotter.view_isometric()
+    plotter.camera.zoom(1.1)
+    info["colours"] = colours
+    return info
