@@ -52,7 +52,10 @@ def _centre(bodies) -> np.ndarray:
     return np.mean([b.bounding_sphere()[0] for b in bodies], axis=0)
 
 
-def _check_args(args, path) -> None:
+def _check_args(args, scene) -> None:
+    path = scene.path
+    if args.position is not None:
+        scene.get_position(args.position)
     lo, hi = GRID_RANGE
     if not lo <= args.grid <= hi:
         raise InputError(path, "--grid", f"the grid needs {lo} to {hi} points a side (got {args.grid})")
@@ -80,7 +83,7 @@ def run(args) -> int:
     from truepull.integrate.interaction import compare_groups
 
     scene = load_scene(args.scene)
-    _check_args(args, scene.path)
+    _check_args(args, scene)
     comparison = compare_groups(scene, args.test, args.source, args.position, args.rtol)
     placed = scene.at_position(args.position)
     test, source = placed.group(args.test), placed.group(args.source)
