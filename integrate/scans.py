@@ -14,15 +14,15 @@ and the value travel.
 from __future__ import annotations
 
 import math
-import os
 from dataclasses import dataclass, field
-from functools import lru_cache, partial
+from functools import partial
 
 import numpy as np
 
 from truepull.geometry.errors import InputError
 from truepull.geometry.placement import Placement
 from truepull.integrate.executor import map_parallel
+from truepull.integrate.scene_cache import scene_from
 
 AXES = {"x": 0, "y": 1, "z": 2}
 DEFAULT_CHECKS = 2
@@ -59,12 +59,15 @@ class ScanRow:
     error_stiffness_axis: float
     error_force: float
     reached: bool = True
+    overlap: str = ""
+    """Why the exact values are missing (test and source bodies overlap there), or ""."""
 
     def to_json(self, value_factor: float = 1.0) -> dict:
         return {"value": self.value / value_factor, "exact_torque_axis": self.exact_torque_axis,
                 "point_torque_axis": self.point_torque_axis, "exact_stiffness_axis": self.exact_stiffness_axis,
                 "force": [float(f) for f in self.force], "error_torque_axis": self.error_torque_axis,
-                "error_stiffness_axis": self.error_stiffness_axis, "reached": self.reached}
+                "error_stiffness_axis": self.error_stiffness_axis, "error_force": self.error_force,
+                "reached": self.reached, "overlap": self.overlap or None}
 
 
 @dataclass(frozen=True)
@@ -96,7 +99,7 @@ class ScanResult:
 
     @property
     def reached(self) -> bool:
-        return all(r.reached for r in self.rows)
+        return all(r.reached or r.overlap for r in self.rows)
 
 
 # ------------------------------------------------------------------------------------------------
@@ -145,17 +148,8 @@ class DirectJob:
     rtol: float
 
 
-@lru_cache(maxsize=4)
-def _load(path: str, mtime: float):
-    from truepull.geometry.scene import load_scene
-
-    return load_scene(path)
-
-
 def _job_scene(job: DirectJob):
-    if job.scene is not None:
-        return job.scene
-    return _load(job.scene_path, os.path.getmtime(job.scene_path))
+    return scene_from(job.scene_path, job.scene)
 
 
 def moved_scene(scene, sweep_kind, group, direction, position, value):
@@ -172,10 +166,30 @@ def direct_row(job: DirectJob, value: float) -> ScanRow:
     from truepull.integrate.interaction import compare_groups
 
     sc = moved_scene(_job_scene(job), job.sweep_kind, job.group, job.direction, job.position, value)
-    c = compare_groups(sc, job.test, job.source, None, job.rtol)
+    try:
+        c = compare_groups(sc, job.test, job.source, None, job.rtol)
+    except InputError as exc:
+        if not _is_overlap(exc):
+            raise
+        return overlap_row(sc, job, value, exc.reason)
     return ScanRow(float(value), c.exact.torque_axis, c.point.torque_axis, c.exact.stiffness_axis,
                    np.asarray(c.exact.force, float), c.error.torque_axis, c.error.stiffness_axis,
                    float(np.linalg.norm(c.error.force)), bool(c.reached))
+
+
+def _is_overlap(exc: InputError) -> bool:
+    """True for the engine's refusal of two overlapping bodies (its key names the pair)."""
+    return bool(exc.key) and " / " in exc.key and "overlap" in exc.reason
+
+
+def overlap_row(sc, job: DirectJob, value: float, reason: str) -> ScanRow:
+    """A row where test and source bodies overlap: exact values undefined (NaN), point model kept."""
+    from truepull.integrate.point_model import point_model
+
+    pm = point_model(sc.group(job.test), sc.group(job.source), sc.frame.pivot, sc.frame.axis, sc.G.value)
+    nan = float("nan")
+    return ScanRow(float(value), nan, float(pm[3:6] @ sc.frame.axis), nan, np.full(3, nan), nan, nan, nan,
+                   False, reason)
 
 
 # ------------------------------------------------------------------------------------------------
@@ -244,6 +258,10 @@ def _multipole_rows(scene, sweep, test, source, position, rtol, point_tau):
     return rows, series
 
 
+def _show(sweep: Sweep, value: float) -> str:
+    return f"{math.degrees(value):.6g} deg" if sweep.kind == "turn" else f"{value:.6g} m"
+
+
 def _check_indices(n: int, checks: int) -> list[int]:
     if checks <= 0 or n == 0:
         return []
@@ -302,10 +320,15 @@ def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor",
                 notes.extend(series.notes)
                 return ScanResult(sweep, test, source, rows, "multipole", series.L, tuple(results), tuple(notes))
             worst = max(bad, key=lambda c: abs(c.multipole - c.direct) / max(c.allowed, 1e-300))
-            notes.append(f"multipole series disagreed with direct integration at {worst.value:g} "
+            notes.append(f"multipole series disagreed with direct integration at {_show(sweep, worst.value)} "
                          f"({worst.multipole:.10g} against {worst.direct:.10g} N m); every value integrated directly")
     rows = map_parallel(run, list(sweep.values), workers=workers, scheduler=scheduler, progress=progress,
                         desc=f"{sweep.kind} of {sweep.group}")
-    if not all(r.reached for r in rows):
-        notes.append(f"tolerance {rtol:g} not reached at {sum(not r.reached for r in rows)} value(s)")
+    overlaps = [r for r in rows if r.overlap]
+    if overlaps:
+        notes.append(f"test and source bodies overlap at {len(overlaps)} value(s) (the first at "
+                     f"{_show(sweep, overlaps[0].value)}): no exact values there")
+    missed = sum(not r.reached and not r.overlap for r in rows)
+    if missed:
+        notes.append(f"tolerance {rtol:g} not reached at {missed} value(s)")
     return ScanResult(sweep, test, source, tuple(rows), "direct", None, (), tuple(notes))

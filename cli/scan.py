@@ -1,0 +1,138 @@
+"""`truepull scan SCENE`: sweep a turn or a shift of a group; exact and point torque and stiffness.
+
+The table (CSV) goes to stdout, or to --csv FILE; notes (method used, overlaps, checks) go to
+stderr so that the CSV stays clean. Sweep values: a turn in degrees, a shift in the scene's length
+unit on the command line; in the CSV and JSON a turn is in degrees and a shift in metres.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import sys
+
+import numpy as np
+
+from truepull.cli.output import print_json, save_figure_atomic, write_atomic
+from truepull.geometry.errors import InputError
+from truepull.geometry.scene import load_scene
+from truepull.integrate.scans import DEFAULT_CHECKS, Sweep, parse_range, scan
+
+HELP = "sweep a turn or a shift of a group; exact and point torque and stiffness"
+HEADER = ["value", "exact_torque_axis", "point_torque_axis", "exact_stiffness_axis", "fx", "fy", "fz"]
+
+
+def add_arguments(parser) -> None:
+    parser.add_argument("scene", metavar="SCENE", help="scene file (TOML)")
+    what = parser.add_mutually_exclusive_group(required=True)
+    what.add_argument("--turn", metavar="START:STOP:STEP",
+                      help="turn the group about the frame axis through the pivot, in degrees (STOP included "
+                           "when it falls on the grid)")
+    what.add_argument("--shift", metavar="x|y|z:START:STOP:STEP",
+                      help="shift the group along a scene axis, in the scene's length unit")
+    parser.add_argument("--group", default="attractor", help="the group that moves (default: attractor)")
+    parser.add_argument("--test", default="pendulum", help="group the torque acts on (default: pendulum)")
+    parser.add_argument("--source", default="attractor", help="group that pulls (default: attractor)")
+    parser.add_argument("--position", metavar="NAME", help="start from this [[position]] of the scene")
+    parser.add_argument("--rtol", type=float, default=1e-9, help="relative tolerance (default: 1e-9)")
+    parser.add_argument("--csv", metavar="FILE", help="write the table to FILE instead of stdout")
+    parser.add_argument("--png", metavar="FILE", help="plot of exact and point torque, stiffness and their ratio")
+    parser.add_argument("--scheduler", metavar="ADDRESS",
+                        help="run on a Dask cluster, e.g. tcp://127.0.0.1:8786 (default: local processes)")
+    parser.add_argument("--workers", type=int, help="local worker processes (default: one per core)")
+    parser.add_argument("--no-multipoles", action="store_true",
+                        help="integrate every value directly, even where the multipole series applies")
+    parser.add_argument("--checks", type=int, default=DEFAULT_CHECKS,
+                        help=f"values also integrated directly to check the multipole series (default: "
+                             f"{DEFAULT_CHECKS})")
+
+
+def parse_sweep(scene, args) -> tuple[Sweep, tuple[float, ...], str]:
+    """(sweep in SI, the values as output: degrees for a turn, metres for a shift, that unit's name)."""
+    if args.turn is not None:
+        values = parse_range(args.turn, "--turn", scene.path)
+        return Sweep("turn", tuple(math.radians(v) for v in values), args.group), values, "deg"
+    text = str(args.shift)
+    direction, _, rest = text.partition(":")
+    direction = direction.strip().lower()
+    if direction not in ("x", "y", "z"):
+        raise InputError(scene.path, "--shift", f"expected x|y|z:START:STOP:STEP, got '{text}'")
+    values = parse_range(rest, "--shift", scene.path)
+    f = scene.length_factor
+    si = tuple(v * f for v in values)
+    return Sweep("shift", si, args.group, direction), si, "m"
+
+
+def csv_text(result, shown) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(HEADER)
+    for v, r in zip(shown, result.rows):
+        cells = [v, r.exact_torque_axis, r.point_torque_axis, r.exact_stiffness_axis, *r.force]
+        w.writerow(["" if (isinstance(c, float) and not math.isfinite(c)) else repr(float(c)) for c in cells])
+    return buf.getvalue()
+
+
+def write_png(path: str, result, shown, unit: str, title: str) -> None:
+    from matplotlib.figure import Figure
+
+    x = np.asarray(shown, float)
+    exact = np.array([r.exact_torque_axis for r in result.rows])
+    point = np.array([r.point_torque_axis for r in result.rows])
+    stiff = np.array([r.exact_stiffness_axis for r in result.rows])
+    big = np.nanmax(np.abs(point)) if np.any(np.isfinite(point)) else 0.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        # near the point model's zeros the ratio says nothing; leave those values out
+        ratio = np.where(np.abs(point) > 0.05 * big, exact / point, np.nan)
+    fig = Figure(figsize=(8, 9), layout="constrained")
+    ax = fig.subplots(3, 1, sharex=True)
+    ax[0].plot(x, exact, label="exact", lw=1.6)
+    ax[0].plot(x, point, "--", label="point masses", lw=1.2)
+    ax[0].set_ylabel("torque about the axis (N m)")
+    ax[0].legend()
+    ax[0].set_title(title)
+    ax[1].plot(x, stiff, color="C2", lw=1.4)
+    ax[1].set_ylabel("gravitational stiffness (N m/rad)")
+    ax[2].plot(x, ratio, color="C3", lw=1.4)
+    ax[2].set_ylabel("exact / point torque")
+    ax[2].set_title("ratio where the point torque exceeds 5% of its largest value", fontsize=9)
+    what = "turn" if result.sweep.kind == "turn" else f"shift along {result.sweep.direction}"
+    ax[2].set_xlabel(f"{what} of {result.sweep.group} ({unit})")
+    for a in ax:
+        a.grid(True, alpha=0.3)
+    save_figure_atomic(fig, path, dpi=110)
+
+
+def run(args) -> int:
+    scene = load_scene(args.scene)
+    sweep, shown, unit = parse_sweep(scene, args)
+    if args.checks < 0:
+        raise InputError(scene.path, "--checks", "must be zero or more")
+    result = scan(scene, sweep, test=args.test, source=args.source, position=args.position, rtol=args.rtol,
+                  workers=args.workers, scheduler=args.scheduler, progress=sys.stderr.isatty(),
+                  scene_path=args.scene, multipoles=not args.no_multipoles, checks=args.checks)
+    title = f"{scene.title or scene.path}: {sweep.kind} of {sweep.group}"
+    if args.png:
+        write_png(args.png, result, shown, unit, title)
+    if args.json:
+        rows = [dict(r.to_json(), value=float(v)) for v, r in zip(shown, result.rows)]
+        to_shown = dict(zip(sweep.values, shown))
+        print_json({"rows": rows, "method": result.method,
+                    "degree": result.degree, "unit": unit, "kind": sweep.kind, "group": sweep.group,
+                    "direction": sweep.direction, "test": result.test, "source": result.source,
+                    "rtol": args.rtol, "notes": list(result.notes),
+                    "checks": [{"value": float(to_shown.get(c.value, c.value)), "multipole": c.multipole, "direct": c.direct,
+                                "allowed": c.allowed} for c in result.checks]})
+    else:
+        text = csv_text(result, shown)
+        if args.csv:
+            write_atomic(args.csv, text)
+            print(f"wrote {args.csv}: {len(result.rows)} rows ({result.method})")
+        else:
+            sys.stdout.write(text)
+    for note in result.notes:
+        sys.stderr.write(f"truepull scan: {note}\n")
+    if args.png and not args.json:
+        sys.stderr.write(f"truepull scan: wrote {args.png}\n")
+    return 0

@@ -1,0 +1,588 @@
+"""What moves the result: the sensitivity of the torque (and of G) to every body parameter, and
+what-if changes (offset a body, flatten a sphere, put a void in a body).
+
+Sensitivities d(torque_axis)/d(parameter), per SI unit of the parameter, for each body of the test
+and source groups and each of its parameters (`body_parameters`: at.x, at.y, at.z, the size keys,
+density or mass), and for the turn of each moving group:
+- placement and size: central differences of the engine, Richardson-extrapolated over steps h and
+  2h (`differences.derivatives`, which also bounds the error). Only the pairs of the changed body
+  are recomputed (the others do not depend on it). The step is chosen against the engine tolerance:
+  with engine errors of about rtol times the torque, the extrapolated difference has truncation
+  error ~ (h/l)^4 and noise ~ rtol l/h, balanced at h = rtol^(1/5) l, where l is the body's size
+  (its bounding radius; a point mass: a twentieth of its distance to the nearest other-group body),
+  capped so that the body keeps clear of the other group (the step is halved until the displaced
+  bodies do not overlap);
+- density and mass: exact, since the torque is linear in them: d tau / d rho = tau_b / rho, with
+  tau_b the torque of the body's own pairs;
+- turn of a group about the frame axis: exact, d tau / d phi = K for the source group (the stiffness
+  the engine returns: the torque depends on the difference of the two groups' turns) and -K for
+  the test group.
+ppm of torque per stated uncertainty: 1e6 * d * u / tau.
+
+G, when the scene has a measurement, to first order (the "first-order G model"):
+- deflection: G = kappa (theta_1 - theta_2) / (Gamma_1 - Gamma_2) with kappa = I omega^2, so
+  d ln G = d ln I - d(tau_1 - tau_2) / (tau_1 - tau_2) over the first two measured positions;
+- swing: G = I (omega_1^2 - omega_2^2) / (k_1 - k_2), so d ln G = d ln I - d(K_1 - K_2)/(K_1 - K_2);
+with I the pendulum's moment of inertia about the frame axis through the pivot. For one position
+the torque alone: d ln G = -d tau / tau. The full reduction (`reduction.reduce_measurement`) can
+replace the model for what-ifs (`what_if(..., full_reduction=True)`): G is then reduced for the
+scene before and after the change.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+from functools import partial
+
+import numpy as np
+
+from truepull.geometry.bodies import Body, body_parameters, build_body, spec_with
+from truepull.geometry.errors import InputError
+from truepull.geometry.placement import Placement
+from truepull.integrate.differences import OFFSETS, derivatives
+from truepull.integrate.executor import map_parallel
+from truepull.integrate.scene_cache import scene_from
+
+MIN_STEP_FACTOR = 1e-4
+MAX_STEP_FACTOR = 0.05
+STEP_HALVINGS = 12
+
+
+def step_factor(rtol: float) -> float:
+    """h / l = rtol^(1/5), within [1e-4, 0.05] (module docstring)."""
+    return float(min(MAX_STEP_FACTOR, max(MIN_STEP_FACTOR, rtol ** 0.2)))
+
+
+# ------------------------------------------------------------------------------------------------
+# results
+
+
+@dataclass(frozen=True)
+class SensitivityRow:
+    """d(torque_axis)/d(parameter) (N m per SI unit), its error bound, the step used (SI), the stated
+    uncertainty u (SI or None), the torque change in ppm per u, and the G columns (None without a
+    measurement): d_G (G per SI unit) and G_ppm (per u)."""
+
+    body: str
+    parameter: str
+    value: float
+    d_torque_axis: float
+    d_error: float
+    step: float | None
+    u: float | None
+    torque_ppm: float | None
+    d_G: float | None
+    G_ppm: float | None
+    method: str
+
+    def to_json(self) -> dict:
+        return {"body": self.body, "parameter": self.parameter, "value": self.value,
+                "d_torque_axis": self.d_torque_axis, "u": self.u, "torque_ppm": self.torque_ppm,
+                "d_G": self.d_G, "G_ppm": self.G_ppm, "d_error": self.d_error, "step": self.step,
+                "method": self.method}
+
+
+@dataclass(frozen=True)
+class WhatIfResult:
+    """A change to the scene and what it does: torque about the axis before and after (N m) at the
+    reported position, the change in ppm of the torque, and of G (None without a measurement)."""
+
+    kind: str
+    body: str
+    description: str
+    torque_before: float
+    torque_after: float
+    torque_ppm: float
+    G_ppm: float | None
+    error_torque: float
+    G_method: str | None = None
+
+    @property
+    def d_torque_axis(self) -> float:
+        return self.torque_after - self.torque_before
+
+    def to_json(self) -> dict:
+        return {"kind": self.kind, "body": self.body, "description": self.description,
+                "torque_before": self.torque_before, "torque_after": self.torque_after,
+                "d_torque_axis": self.d_torque_axis, "torque_ppm": self.torque_ppm, "G_ppm": self.G_ppm,
+                "error_torque": self.error_torque, "G_method": self.G_method}
+
+
+@dataclass(frozen=True)
+class BiasResult:
+    """Ranked rows (largest |ppm| first, then largest |d * step|), the torque they refer to (N m) at
+    `position`, the G model used (None without a measurement) and notes."""
+
+    rows: tuple[SensitivityRow, ...]
+    torque_axis: float
+    torque_error: float
+    position: str | None
+    G: float
+    G_model: str | None
+    rtol: float
+    step_factor: float
+    notes: tuple[str, ...] = field(default_factory=tuple)
+
+    def to_json(self) -> dict:
+        return {"rows": [r.to_json() for r in self.rows], "torque_axis": self.torque_axis,
+                "torque_error": self.torque_error, "position": self.position, "G": self.G,
+                "G_model": self.G_model, "rtol": self.rtol, "step_factor": self.step_factor,
+                "notes": list(self.notes)}
+
+
+# ------------------------------------------------------------------------------------------------
+# the model: torque (and stiffness) of one body's pairs at the needed positions
+
+
+def _position_move(scene, position):
+    """(group moved, placement) of a position, or (None, None)."""
+    if position is None:
+        return None, None
+    pos = scene.get_position(position) if isinstance(position, str) else position
+    return pos.group, pos.placement(scene.frame)
+
+
+def placed(scene, body: Body, position) -> Body:
+    """A body as drawn, moved as `position` moves its group."""
+    group, move = _position_move(scene, position)
+    return body.moved(move) if group == body.group else body
+
+
+def body_pairs(scene, body: Body, position, test: str, source: str, rtol: float) -> np.ndarray:
+    """[torque_axis, K, err_torque, err_K] of the pairs of the (drawn) `body` with the other group, at
+    `position`; zeros for a body of neither group."""
+    from truepull.integrate.interaction import interaction_totals
+
+    sc = scene.at_position(position) if position is not None else scene
+    b = placed(scene, body, position)
+    if body.group == test:
+        tb, sb = [b], [x for x in sc.group(source)]
+    elif body.group == source:
+        tb, sb = [x for x in sc.group(test)], [b]
+    else:
+        return np.zeros(4)
+    e = sc.frame.axis
+    v, err, _, _ = interaction_totals(tb, sb, sc.frame.pivot, e, sc.G.value, rtol)
+    return np.array([v[3:6] @ e, v[6], err[3:6] @ np.abs(e), err[6]])
+
+
+@dataclass(frozen=True)
+class StencilJob:
+    """What a worker needs to evaluate one perturbed body: the scene (re-loaded from `scene_path`
+    when given), positions, groups and tolerance."""
+
+    scene_path: str | None
+    scene: object
+    positions: tuple
+    test: str
+    source: str
+    rtol: float
+
+
+def stencil_value(job: StencilJob, item) -> np.ndarray:
+    """(n_positions, 4) body-pair values for one item (body name, parameter, value)."""
+    name, param, value = item
+    scene = scene_from(job.scene_path, job.scene)
+    body = scene.body(name)
+    new = build_body(spec_with(body.spec, param, value))
+    return np.array([body_pairs(scene, new, p, job.test, job.source, job.rtol) for p in job.positions])
+
+
+# ------------------------------------------------------------------------------------------------
+# the G model
+
+
+@dataclass(frozen=True)
+class GModel:
+    """First-order G model of a measurement (module docstring): which positions and quantity."""
+
+    method: str
+    positions: tuple
+    quantity: str  # "torque" or "stiffness"
+
+    @property
+    def description(self) -> str:
+        if len(self.positions) == 1:
+            return f"first order: G proportional to 1 / torque at {self.positions[0]}"
+        what = "torque" if self.quantity == "torque" else "gravitational stiffness"
+        return (f"first order ({self.method}): G proportional to I / ({what} at {self.positions[0]} - "
+                f"{what} at {self.positions[1]})")
+
+    def log_change(self, I0, I1, q0: np.ndarray, q1: np.ndarray) -> float:
+        """ln G(after) - ln G(before) from the inertia and per-position quantities before and after."""
+        if len(self.positions) == 1:
+            return -math.log(q1[0] / q0[0])
+        d0, d1 = q0[0] - q0[1], q1[0] - q1[1]
+        return math.log(I1 / I0) - math.log(d1 / d0)
+
+
+def g_model(scene, test: str = "pendulum") -> GModel | None:
+    """The first-order G model for the scene's measurement, or None without one."""
+    m = scene.measurement
+    if m is None:
+        return None
+    if m.method == "deflection":
+        names = tuple(m.angle)[:2]
+        return GModel("deflection", names, "torque")
+    names = tuple(m.period)[:2] if isinstance(m.period, dict) else tuple(m.angle)[:2]
+    return GModel("swing", names, "stiffness")
+
+
+def pendulum_inertia(scene, test: str, position=None) -> float:
+    """Moment of inertia (kg m^2) of the test group about the frame axis through the pivot."""
+    sc = scene.at_position(position) if position is not None else scene
+    return float(sum(b.inertia_about(sc.frame.pivot, sc.frame.axis) for b in sc.group(test)))
+
+
+# ------------------------------------------------------------------------------------------------
+# steps
+
+
+def _min_centre_distance(scene, body, others) -> float:
+    d = [np.linalg.norm(body.com - o.com) for o in others]
+    return float(min(d)) if d else 1.0
+
+
+def _clear(scene, body: Body, positions, test, source) -> bool:
+    """True when `body` overlaps no body of the other group at any of the positions."""
+    from truepull.geometry.overlaps import bodies_overlap
+
+    other = source if body.group == test else test
+    for p in positions:
+        sc = scene.at_position(p) if p is not None else scene
+        b = placed(scene, body, p)
+        for o in sc.group(other):
+            if o.is_hole or b.is_hole:
+                continue
+            if bodies_overlap(b, o) == "overlap":
+                return False
+    return True
+
+
+def choose_step(scene, body: Body, param: str, value: float, positions, test, source, rtol) -> float:
+    """The difference step for one placement or size parameter (module docstring)."""
+    factor = step_factor(rtol)
+    other = source if body.group == test else test
+    if param.startswith("at."):
+        r = body.shape.bounding_radius()
+        length = r if r > 0 else 0.05 * _min_centre_distance(scene, body, scene.group(other))
+    else:
+        length = abs(value) if value != 0 else body.shape.bounding_radius()
+    h = factor * length
+    for _ in range(STEP_HALVINGS):
+        ok = True
+        for k in (-2.0, 2.0):
+            v = value + k * h
+            if not param.startswith("at.") and v <= 0:
+                ok = False
+                break
+            try:
+                trial = build_body(spec_with(body.spec, param, v))
+            except (ValueError, KeyError):
+                ok = False
+                break
+            if not _clear(scene, trial, positions, test, source):
+                ok = False
+                break
+        if ok:
+            return h
+        h *= 0.5
+    raise InputError(scene.path, f"body[{body.name}].{param}",
+                     "no difference step keeps this body clear of the other group: it nearly touches it")
+
+
+# ------------------------------------------------------------------------------------------------
+# sensitivities
+
+
+def default_position(scene):
+    """The position bias reports by default: the first measured position, else the first position,
+    else the scene as drawn (None)."""
+    if scene.measurement is not None:
+        return next(iter(scene.measurement.angle), None) or (scene.positions[0].name if scene.positions else None)
+    return scene.positions[0].name if scene.positions else None
+
+
+def sensitivities(scene, test: str = "pendulum", source: str = "attractor", position=None, rtol: float = 1e-9,
+                  workers: int | None = None, scheduler=None, progress: bool = False,
+                  scene_path: str | None = None, bodies=None) -> BiasResult:
+    """Every sensitivity row for the scene (module docstring), ranked. `position`: the state whose torque
+    is reported (default `default_position`); `bodies`: limit to these body names."""
+    from truepull.integrate.interaction import compare_groups
+
+    if not rtol > 0:
+        raise InputError(scene.path, "--rtol", "the tolerance must be greater than zero")
+    for name, flag in ((test, "--test"), (source, "--source")):
+        if not scene.group(name):
+            raise InputError(scene.path, flag, f"no bodies in group '{name}' (groups: {', '.join(scene.groups())})")
+    if position is None:
+        position = default_position(scene)
+    if isinstance(position, str):
+        scene.get_position(position)
+    model = g_model(scene, test)
+    positions = [position]
+    if model is not None:
+        positions += [p for p in model.positions if p not in positions]
+    positions = tuple(positions)
+
+    comps = {p: compare_groups(scene, test, source, p, rtol) for p in positions}
+    c0 = comps[position]
+    tau0 = c0.exact.torque_axis
+    G = scene.G.value
+    I0 = pendulum_inertia(scene, test, model.positions[0] if model else None)
+    q_index = 1 if (model is not None and model.quantity == "stiffness") else 0
+
+    def quantity(comp):
+        return comp.exact.stiffness_axis if q_index == 1 else comp.exact.torque_axis
+
+    q0 = np.array([quantity(comps[p]) for p in (model.positions if model else ())])
+
+    def dlnG(dI, dq):
+        """d ln G per unit parameter from dI (kg m^2) and dq (per model position)."""
+        if model is None:
+            return None
+        if len(model.positions) == 1:
+            return -dq[0] / q0[0]
+        return dI / I0 - (dq[0] - dq[1]) / (q0[0] - q0[1])
+
+    chosen = [b for b in scene.bodies if b.group in (test, source) and (bodies is None or b.name in bodies)]
+    if bodies is not None:
+        missing = set(bodies) - {b.name for b in chosen}
+        if missing:
+            raise InputError(scene.path, "--body", f"no body named {', '.join(sorted(missing))} in the "
+                             f"'{test}' or '{source}' group")
+
+    # stencils for placement and size parameters, all in one parallel map
+    items, plan = [], []
+    for b in chosen:
+        if b.spec is None:
+            continue
+        for param, meas in body_parameters(b.spec).items():
+            if param in ("density", "mass"):
+                continue
+            if not param.startswith("at.") and meas.value == 0:
+                continue  # a size at its lower limit (e.g. inner_radius = 0): no two-sided difference
+            h = choose_step(scene, b, param, meas.value, positions, test, source, rtol)
+            plan.append((b, param, meas, h, len(items)))
+            items += [(b.name, param, meas.value + k * h) for k in OFFSETS]
+    job = StencilJob(scene_path, None if scene_path else scene, positions, test, source, rtol)
+    values = map_parallel(partial(stencil_value, job), items, workers=workers, scheduler=scheduler,
+                          progress=progress, desc="sensitivities")
+
+    rows: list[SensitivityRow] = []
+    pos_i = {p: i for i, p in enumerate(positions)}
+    model_i = [pos_i[p] for p in model.positions] if model else []
+    for b, param, meas, h, start in plan:
+        block = np.array(values[start:start + len(OFFSETS)])  # (4, n_pos, 4)
+        centre = np.array([body_pairs(scene, b, p, test, source, rtol) for p in positions])
+        noise = np.max(block[:, :, 2:4], axis=0)  # engine error estimates per position
+        d = np.zeros((len(positions), 2))
+        de = np.zeros((len(positions), 2))
+        for j in range(len(positions)):
+            for qi in range(2):
+                f = block[:, j, qi]
+                rel = max(noise[j, qi] / max(np.max(np.abs(f)), 1e-300), 1e-15)
+                dv, ev = derivatives(f[None, :], np.array([h]), centre[j, qi], rel_noise=rel)
+                d[j, qi], de[j, qi] = dv[0], ev[0]
+        dI = 0.0
+        if model is not None and b.group == test:
+            hI = h
+            Ip = build_body(spec_with(b.spec, param, meas.value + hI))
+            Im = build_body(spec_with(b.spec, param, meas.value - hI))
+            mp0 = model.positions[0]
+            dI = (placed(scene, Ip, mp0).inertia_about(scene.frame.pivot, scene.frame.axis)
+                  - placed(scene, Im, mp0).inertia_about(scene.frame.pivot, scene.frame.axis)) / (2 * hI)
+        lnG = dlnG(dI, d[model_i, q_index]) if model else None
+        rows.append(_row(b.name, param, meas, d[0, 0], de[0, 0], h, tau0, lnG, G,
+                         "central differences (Richardson, steps h and 2h)"))
+
+    # density and mass: linear, exact
+    for b in chosen:
+        if b.spec is None:
+            continue
+        params = body_parameters(b.spec)
+        key = "mass" if "mass" in params else "density"
+        meas = params[key]
+        if meas is None or not meas.value:
+            continue
+        share = np.array([body_pairs(scene, b, p, test, source, rtol) for p in positions])
+        d_all = share[:, 0:2] / meas.value
+        err = share[0, 2] / abs(meas.value)
+        dI = 0.0
+        if model is not None and b.group == test:
+            dI = placed(scene, b, model.positions[0]).inertia_about(scene.frame.pivot, scene.frame.axis) / meas.value
+        lnG = dlnG(dI, d_all[model_i, q_index]) if model else None
+        rows.append(_row(b.name, key, meas, d_all[0, 0], err, None, tau0, lnG, G,
+                         "exact: the torque is linear in the " + key))
+
+    # turns of moving groups
+    moving = []
+    for p in scene.positions:
+        if p.group in (test, source) and p.group not in moving:
+            moving.append(p.group)
+    for grp in moving:
+        sign = 1.0 if grp == source else -1.0
+        pos_obj = scene.get_position(position) if isinstance(position, str) else None
+        turn = pos_obj.turn if (pos_obj is not None and pos_obj.group == grp) else None
+        from truepull.geometry.quantities import Measured
+
+        meas = turn if turn is not None else Measured(0.0, None)
+        dq = np.array([sign * comps[p].exact.stiffness_axis for p in positions])
+        lnG = None
+        if model is not None:
+            # each position turns its own group; a change of the turn of group grp moves all of them alike
+            if model.quantity == "torque":
+                lnG = dlnG(0.0, dq[model_i])
+            else:
+                lnG = None  # the stiffness' own turn derivative is not computed
+        rows.append(_row(grp, "turn", meas, dq[0], c0.error.stiffness_axis, None, tau0, lnG, G,
+                         f"exact: d(torque)/d(turn) = {'+' if sign > 0 else '-'}stiffness"))
+
+    notes = []
+    if model is not None:
+        notes.append(model.description)
+    notes.append(f"difference steps h = {step_factor(rtol):.3g} x the body's size (rtol^(1/5) for rtol {rtol:g}), "
+                 "halved until the displaced body keeps clear")
+    rows.sort(key=_rank_key)
+    return BiasResult(tuple(rows), tau0, c0.error.torque_axis, position if isinstance(position, str) else None,
+                      G, model.description if model else None, rtol, step_factor(rtol), tuple(notes))
+
+
+def _row(body, param, meas, d, err, h, tau0, lnG, G, method) -> SensitivityRow:
+    u = meas.u if meas is not None else None
+    u = float(u) if u else None
+    ppm = 1e6 * d * u / tau0 if (u is not None and tau0 != 0) else None
+    dG = G * lnG if lnG is not None else None
+    Gppm = 1e6 * lnG * u if (lnG is not None and u is not None) else None
+    return SensitivityRow(body, param, float(meas.value) if meas is not None else 0.0, float(d), float(err),
+                          None if h is None else float(h), u, ppm, dG, Gppm, method)
+
+
+def _rank_key(r: SensitivityRow):
+    ppm = r.G_ppm if r.G_ppm is not None else r.torque_ppm
+    return (0 if ppm is not None else 1, -abs(ppm) if ppm is not None else 0.0, r.body, r.parameter)
+
+
+# ------------------------------------------------------------------------------------------------
+# what-ifs
+
+
+def offset_body(scene, name: str, vector) -> Body:
+    """The body moved by `vector` (m, world axes), as drawn."""
+    return scene.body(name).moved(Placement.shift(np.asarray(vector, float)))
+
+
+def flattened_sphere(scene, name: str, flattening: float, polar_axis=None) -> Body:
+    """An ellipsoid of the sphere's mass and density with semi-axes a, a, c = a (1 - f) (oblate for
+    f > 0, prolate for f < 0), a^2 c = R^3, its polar (c) axis along `polar_axis` (default: the frame
+    axis), centred where the sphere is."""
+    b = scene.body(name)
+    key = f"body[{name}]"
+    if b.shape.kind != "sphere":
+        raise InputError(scene.path, key, f"only a sphere can be flattened ('{name}' is a {b.shape.kind})")
+    f = float(flattening)
+    if not -1.0 < f < 1.0:
+        raise InputError(scene.path, "--flatten", f"the flattening must lie between -1 and 1, got {f:g}")
+    axis = np.asarray(scene.frame.axis if polar_axis is None else polar_axis, float)
+    if axis.shape != (3,) or not np.linalg.norm(axis) > 0:
+        raise InputError(scene.path, "--flatten", "the polar axis needs three numbers, not all zero")
+    R = b.shape.radius
+    a = R * (1.0 - f) ** (-1.0 / 3.0)
+    c = a * (1.0 - f)
+    from truepull.geometry.shapes import Ellipsoid
+
+    placement = Placement.from_scene(b.placement.translation, axis)
+    return Body(b.name, b.group, Ellipsoid((a, a, c)), placement, b.density, None)
+
+
+def void_sphere(scene, name: str, radius: float, offset) -> Body:
+    """A void: a sphere of negative density (minus the host's) of `radius` (m) centred at the host's
+    reference point plus `offset` (m, world axes), as drawn; refused unless it lies inside the host."""
+    from truepull.geometry.shapes import Sphere
+
+    host = scene.body(name)
+    key = f"body[{name}]"
+    if host.shape.kind == "point" or host.density == 0:
+        raise InputError(scene.path, key, f"'{name}' has no volume to hold a void")
+    if host.is_hole:
+        raise InputError(scene.path, key, f"'{name}' is itself a hole")
+    r = float(radius)
+    if not r > 0:
+        raise InputError(scene.path, "--void", f"the void's radius must be greater than zero, got {r:g}")
+    centre = host.placement.translation + np.asarray(offset, float)
+    # the void must lie inside the host: its centre and a dense set of points on its surface
+    n = 2000
+    k = np.arange(n) + 0.5
+    z = 1.0 - 2.0 * k / n
+    phi = math.pi * (1.0 + 5.0 ** 0.5) * k
+    s = np.sqrt(1.0 - z * z)
+    surface = centre + r * np.stack([s * np.cos(phi), s * np.sin(phi), z], axis=1)
+    if not np.all(host.contains_world(np.vstack([centre[None, :], surface]))):
+        raise InputError(scene.path, "--void", f"a void of radius {r:g} m at that offset does not fit inside '{name}'")
+    return Body(f"{name}/void", host.group, Sphere(r), Placement.shift(centre), -abs(host.density), None)
+
+
+def _state(scene, positions, test, source, rtol):
+    """(per-position torque, stiffness, torque error) of the whole scene."""
+    from truepull.integrate.interaction import compare_groups
+
+    out = []
+    for p in positions:
+        c = compare_groups(scene, test, source, p, rtol)
+        out.append((c.exact.torque_axis, c.exact.stiffness_axis, c.error.torque_axis))
+    return np.array(out)
+
+
+def what_if(scene, kind: str, body: str, new_scene, description: str, test="pendulum", source="attractor",
+            position=None, rtol=1e-9, full_reduction=False) -> WhatIfResult:
+    """Compare `new_scene` (the scene with one change) with `scene`: torque at `position`, G by the
+    first-order model (or the full reduction when `full_reduction` and the scene has a measurement)."""
+    if position is None:
+        position = default_position(scene)
+    model = g_model(scene, test)
+    positions = [position] + ([p for p in model.positions if p != position] if model else [])
+    before = _state(scene, positions, test, source, rtol)
+    after = _state(new_scene, positions, test, source, rtol)
+    t0, t1 = before[0, 0], after[0, 0]
+    ppm = 1e6 * (t1 - t0) / t0 if t0 != 0 else float("nan")
+    G_ppm, how = None, None
+    if model is not None and full_reduction:
+        from truepull.integrate.reduction import reduce_measurement
+
+        g0 = reduce_measurement(scene, test=test, source=source, rtol=rtol).G
+        g1 = reduce_measurement(new_scene, test=test, source=source, rtol=rtol).G
+        G_ppm, how = 1e6 * (g1 / g0 - 1.0), "full reduction"
+    elif model is not None:
+        idx = [positions.index(p) for p in model.positions]
+        qi = 1 if model.quantity == "stiffness" else 0
+        I0 = pendulum_inertia(scene, test, model.positions[0])
+        I1 = pendulum_inertia(new_scene, test, model.positions[0])
+        G_ppm = 1e6 * math.expm1(model.log_change(I0, I1, before[idx, qi], after[idx, qi]))
+        how = model.description
+    return WhatIfResult(kind, body, description, float(t0), float(t1), float(ppm), G_ppm,
+                        float(before[0, 2] + after[0, 2]), how)
+
+
+def offset_what_if(scene, name, vector, **kw) -> WhatIfResult:
+    v = np.asarray(vector, float)
+    new = scene.with_body(name, offset_body(scene, name, v))
+    desc = f"'{name}' offset by ({', '.join(f'{x:.6g}' for x in v)}) m"
+    return what_if(scene, "offset", name, new, desc, **kw)
+
+
+def flatten_what_if(scene, name, flattening, polar_axis=None, **kw) -> WhatIfResult:
+    body = flattened_sphere(scene, name, flattening, polar_axis)
+    new = scene.with_body(name, body)
+    a, _, c = body.shape.radii
+    desc = (f"sphere '{name}' as an ellipsoid of equal mass, flattening {flattening:g} "
+            f"(semi-axes {a:.6g}, {a:.6g}, {c:.6g} m)")
+    return what_if(scene, "flatten", name, new, desc, **kw)
+
+
+def void_what_if(scene, name, radius, offset, **kw) -> WhatIfResult:
+    void = void_sphere(scene, name, radius, offset)
+    new = scene.with_bodies(list(scene.bodies) + [void])
+    off = np.asarray(offset, float)
+    desc = f"void of radius {radius:.6g} m in '{name}' at offset ({', '.join(f'{x:.6g}' for x in off)}) m"
+    return what_if(scene, "void", name, new, desc, **kw)
