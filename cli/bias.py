@@ -1,0 +1,160 @@
+"""`truepull bias SCENE`: how the torque (and G) move with each body's placement, size and density.
+
+A ranked table of d(torque about the axis)/d(parameter) per SI unit of the parameter, the stated
+uncertainty u in the scene, ppm of torque per u, and, when the scene has a [measurement], the
+change of G (first-order model, see truepull.integrate.sensitivity). What-if options:
+  --offset BODY:dx,dy,dz           move a body (scene length unit, world axes)
+  --flatten BODY:f[:ax,ay,az]      replace a sphere by an ellipsoid of equal mass, flattening f, its
+                                   polar axis along (ax, ay, az) (default: the frame axis)
+  --void BODY:radius:dx,dy,dz      an off-centre spherical void of that radius (scene length unit) at
+                                   that offset from the body's reference point (world axes)
+Each may be given more than once.
+"""
+
+from __future__ import annotations
+
+import sys
+
+from truepull.cli.output import fmt, format_table, print_json
+from truepull.geometry.errors import InputError
+from truepull.geometry.scene import load_scene
+from truepull.integrate.sensitivity import (default_position, flatten_what_if, offset_what_if,
+                                            sensitivities, void_what_if)
+
+HELP = "sensitivity of torque and G to each body's placement, size and density"
+
+
+def add_arguments(parser) -> None:
+    parser.add_argument("scene", metavar="SCENE", help="scene file (TOML)")
+    parser.add_argument("--position", metavar="NAME",
+                        help="the position whose torque is reported (default: the first measured position, "
+                             "else the first position, else the scene as drawn)")
+    parser.add_argument("--test", default="pendulum", help="group the torque acts on (default: pendulum)")
+    parser.add_argument("--source", default="attractor", help="group that pulls (default: attractor)")
+    parser.add_argument("--rtol", type=float, default=1e-9, help="engine tolerance (default: 1e-9)")
+    parser.add_argument("--body", action="append", metavar="NAME", help="only this body (repeatable)")
+    parser.add_argument("--offset", action="append", default=[], metavar="BODY:dx,dy,dz",
+                        help="what if BODY were moved by (dx, dy, dz) in the scene's length unit")
+    parser.add_argument("--flatten", action="append", default=[], metavar="BODY:f[:ax,ay,az]",
+                        help="what if sphere BODY were an ellipsoid of equal mass with flattening f")
+    parser.add_argument("--void", action="append", default=[], metavar="BODY:radius:dx,dy,dz",
+                        help="what if BODY had a spherical void of that radius at that offset")
+    parser.add_argument("--full-reduction", action="store_true",
+                        help="what-ifs: reduce G in full before and after (slower) instead of the first-order "
+                             "model")
+    parser.add_argument("--no-table", action="store_true", help="only the what-ifs, no sensitivity table")
+    parser.add_argument("--scheduler", metavar="ADDRESS", help="run on a Dask cluster (default: local processes)")
+    parser.add_argument("--workers", type=int, help="local worker processes (default: one per core)")
+
+
+def _numbers(text: str, n: int, key: str, file) -> list[float]:
+    parts = [p.strip() for p in text.split(",")]
+    if len(parts) != n:
+        raise InputError(file, key, f"expected {n} comma-separated numbers, got '{text}'")
+    try:
+        values = [float(p) for p in parts]
+    except ValueError:
+        raise InputError(file, key, f"expected numbers, got '{text}'") from None
+    if not all(abs(v) < float("inf") for v in values):
+        raise InputError(file, key, f"numbers must be finite, got '{text}'")
+    return values
+
+
+def _body_name(scene, name: str, key: str) -> str:
+    try:
+        scene.body(name)
+    except KeyError:
+        known = ", ".join(b.name for b in scene.bodies)
+        raise InputError(scene.path, key, f"no body named '{name}' (bodies: {known})") from None
+    return name
+
+
+def parse_what_ifs(scene, args) -> list[tuple]:
+    """[(kind, body, arguments in SI)] from the what-if options."""
+    f = scene.length_factor
+    out = []
+    for text in args.offset:
+        name, sep, rest = text.rpartition(":")
+        if not sep or not name:
+            raise InputError(scene.path, "--offset", f"expected BODY:dx,dy,dz, got '{text}'")
+        v = [x * f for x in _numbers(rest, 3, "--offset", scene.path)]
+        out.append(("offset", _body_name(scene, name, "--offset"), (v,)))
+    for text in args.flatten:
+        parts = text.split(":")
+        if len(parts) not in (2, 3) or not parts[0]:
+            raise InputError(scene.path, "--flatten", f"expected BODY:f or BODY:f:ax,ay,az, got '{text}'")
+        flat = _numbers(parts[1], 1, "--flatten", scene.path)[0]
+        axis = _numbers(parts[2], 3, "--flatten", scene.path) if len(parts) == 3 else None
+        out.append(("flatten", _body_name(scene, parts[0], "--flatten"), (flat, axis)))
+    for text in args.void:
+        parts = text.split(":")
+        if len(parts) != 3 or not parts[0]:
+            raise InputError(scene.path, "--void", f"expected BODY:radius:dx,dy,dz, got '{text}'")
+        radius = _numbers(parts[1], 1, "--void", scene.path)[0] * f
+        offset = [x * f for x in _numbers(parts[2], 3, "--void", scene.path)]
+        out.append(("void", _body_name(scene, parts[0], "--void"), (radius, offset)))
+    return out
+
+
+def run_what_if(scene, item, **kw):
+    kind, name, a = item
+    if kind == "offset":
+        return offset_what_if(scene, name, a[0], **kw)
+    if kind == "flatten":
+        return flatten_what_if(scene, name, a[0], a[1], **kw)
+    return void_what_if(scene, name, a[0], a[1], **kw)
+
+
+def _ppm(x) -> str:
+    return "-" if x is None else f"{x:+.4g}"
+
+
+def render(scene, result, what_ifs) -> str:
+    lines = []
+    if result is not None:
+        where = f"position {result.position}" if result.position else "the scene as drawn"
+        lines.append(f"torque about the axis at {where}: {fmt(result.torque_axis, 10)} N m "
+                     f"(+- {fmt(result.torque_error, 2)})")
+        if result.G_model:
+            lines.append(f"G model: {result.G_model}")
+        headers = ["body", "parameter", "value", "d torque / d parameter", "u", "torque ppm", "d G / d parameter",
+                   "G ppm"]
+        rows = [[r.body, r.parameter, fmt(r.value, 6), fmt(r.d_torque_axis, 6), fmt(r.u, 3) if r.u else "-",
+                 _ppm(r.torque_ppm), fmt(r.d_G, 4) if r.d_G is not None else "-", _ppm(r.G_ppm)]
+                for r in result.rows]
+        lines.append("")
+        lines.append(format_table(headers, rows, "llrrrrrr"))
+        lines.append("")
+        lines.append("values and u in SI (m, kg/m^3, kg, rad); derivatives per SI unit; ppm per stated u")
+        for n in result.notes:
+            lines.append(f"note: {n}")
+    if what_ifs:
+        lines.append("")
+        lines.append("what if")
+        headers = ["change", "torque before (N m)", "after (N m)", "torque ppm", "G ppm"]
+        rows = [[w.description, fmt(w.torque_before, 10), fmt(w.torque_after, 10), _ppm(w.torque_ppm),
+                 _ppm(w.G_ppm)] for w in what_ifs]
+        lines.append(format_table(headers, rows, "lrrrr"))
+    return "\n".join(lines)
+
+
+def run(args) -> int:
+    scene = load_scene(args.scene)
+    items = parse_what_ifs(scene, args)
+    position = args.position if args.position is not None else default_position(scene)
+    if position is not None:
+        scene.get_position(position)
+    result = None
+    if not args.no_table:
+        result = sensitivities(scene, args.test, args.source, position, args.rtol, workers=args.workers,
+                               scheduler=args.scheduler, progress=sys.stderr.isatty(), scene_path=args.scene,
+                               bodies=args.body)
+    what_ifs = [run_what_if(scene, it, test=args.test, source=args.source, position=position, rtol=args.rtol,
+                            full_reduction=args.full_reduction) for it in items]
+    if args.json:
+        data = result.to_json() if result is not None else {"rows": []}
+        data["what_if"] = [w.to_json() for w in what_ifs]
+        print_json(data)
+    else:
+        print(render(scene, result, what_ifs))
+    return 0
