@@ -34,10 +34,6 @@ def group_colours(groups) -> dict[str, str]:
     return out
 
 
-def _hex_rgb(colour: str) -> np.ndarray:
-    return np.array([int(colour[i:i + 2], 16) for i in (1, 3, 5)], dtype=float)
-
-
 def _scaled(surface, factor: float):
     s = surface.copy()
     s.points = np.asarray(s.points) / factor
