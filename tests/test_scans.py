@@ -1,0 +1,150 @@
+"""Sweeps of a turn or a shift.
+
+Outside reference: Newton's law for point masses and uniform spheres (shell theorem), computed in
+each test; a uniform sphere's field outside is a point's.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from truepull.geometry.errors import InputError
+from truepull.geometry.scene import load_scene_text
+from truepull.integrate.scans import Sweep, parse_range, scan
+
+G = 6.6743e-11
+
+
+def _scene(test_points, source_points, shape="point", radius=None, positions=""):
+    """[(mass, (x, y, z))] in the pendulum and attractor groups; spheres of `radius` when given."""
+    parts = []
+    for group, pts in (("pendulum", test_points), ("attractor", source_points)):
+        for k, (m, at) in enumerate(pts):
+            size = f"radius = {radius!r}\n" if shape == "sphere" else ""
+            parts.append(f'[[body]]\nname = "{group}-{k}"\ngroup = "{group}"\nshape = "{shape}"\n{size}'
+                         f'mass = {m!r}\nat = [{at[0]!r}, {at[1]!r}, {at[2]!r}]\n')
+    return load_scene_text(f"[scene]\nG = {G!r}\n" + "\n".join(parts) + positions)
+
+
+def _rot(phi):
+    c, s = math.cos(phi), math.sin(phi)
+    return np.array([[c, -s, 0], [s, c, 0], [0, 0, 1.0]])
+
+
+def _newton_torque(test_points, source_points, move_source=np.eye(3), shift=np.zeros(3), move_test=np.eye(3)):
+    """Torque about z and force on the test masses (Newton's law), each group moved as given."""
+    tau, F = 0.0, np.zeros(3)
+    for m, r in test_points:
+        r = move_test @ np.asarray(r, float)
+        for M, q in source_points:
+            q = move_source @ np.asarray(q, float) + shift
+            d = q - r
+            f = G * m * M * d / np.linalg.norm(d) ** 3
+            F += f
+            tau += np.cross(r, f)[2]
+    return tau, F
+
+
+TEST = [(0.02, (0.03, 0.0, 0.0)), (0.02, (-0.03, 0.0, 0.0))]
+SOURCE = [(1.2, (0.0, 0.08, 0.01)), (1.2, (0.0, -0.08, -0.01))]
+
+
+def test_parse_range_includes_stop_and_refuses_bad_steps():
+    assert parse_range("0:90:30", "--turn") == (0.0, 30.0, 60.0, 90.0)
+    assert parse_range("0:359:1", "--turn")[-1] == 359.0 and len(parse_range("0:359:1", "--turn")) == 360
+    assert parse_range("1:0:-0.5", "--turn") == (1.0, 0.5, 0.0)
+    for bad in ("0:1", "0:1:0", "0:1:-1", "a:1:1", "0:inf:1"):
+        with pytest.raises(InputError):
+            parse_range(bad, "--turn")
+
+
+def test_turn_of_point_masses_is_newton_on_the_multipole_path():
+    sc = _scene(TEST, SOURCE)
+    values = tuple(math.radians(v) for v in range(0, 360, 15))
+    res = scan(sc, Sweep("turn", values, "attractor"), workers=1, checks=2)
+    assert res.method == "multipole" and len(res.checks) == 2 and all(c.agrees for c in res.checks)
+    for row in res.rows:
+        tau, F = _newton_torque(TEST, SOURCE, _rot(row.value))  # Newton, computed here
+        assert abs(row.exact_torque_axis - tau) <= 1e-9 * 1e-12 + 1e-9 * abs(tau)
+        assert abs(row.exact_torque_axis - tau) <= row.error_torque_axis
+        assert abs(row.point_torque_axis - tau) <= 1e-12 * abs(tau) + 1e-25
+        assert np.linalg.norm(row.force - F) <= row.error_force  # the force cancels at some turns
+        # stiffness: -d tau / d theta of the pendulum, by a central difference of Newton
+        h = 1e-5
+        dtau = (_newton_torque(TEST, SOURCE, _rot(row.value + h))[0]
+                - _newton_torque(TEST, SOURCE, _rot(row.value - h))[0]) / (2 * h)
+        assert abs(row.exact_stiffness_axis - dtau) <= 1e-7 * max(abs(dtau), 1e-13)
+
+
+def test_turning_the_pendulum_and_direct_integration_of_spheres():
+    # spheres are points outside themselves (shell theorem): the direct path gives Newton as well
+    sc = _scene(TEST, SOURCE, shape="sphere", radius=0.005)
+    values = tuple(math.radians(v) for v in (0, 50, 100))
+    direct = scan(sc, Sweep("turn", values, "pendulum"), workers=1, multipoles=False)
+    fast = scan(sc, Sweep("turn", values, "pendulum"), workers=1, checks=1)
+    assert direct.method == "direct" and fast.method == "multipole"
+    for a, b in zip(direct.rows, fast.rows):
+        tau, F = _newton_torque(TEST, SOURCE, move_test=_rot(a.value))
+        assert abs(a.exact_torque_axis - tau) <= 1e-12 * abs(tau)
+        assert abs(b.exact_torque_axis - tau) <= 1e-9 * abs(tau)
+        assert np.linalg.norm(a.force - F) <= 1e-12 * np.linalg.norm(F) + 1e-12 * 1e-12
+        assert np.linalg.norm(b.force - F) <= b.error_force
+
+
+def test_shift_scan_and_overlapping_values():
+    source = [(1.2, (0.03, 0.08, 0.0))]
+    sc = _scene(TEST, source, shape="sphere", radius=0.005)
+    values = (-0.02, 0.0, 0.02, -0.078)  # the last brings the source sphere into a test sphere
+    res = scan(sc, Sweep("shift", values, "attractor", "y"), workers=1)
+    assert res.method == "direct"
+    for row in res.rows[:3]:
+        tau, F = _newton_torque(TEST, source, shift=np.array([0, row.value, 0]))
+        assert abs(row.exact_torque_axis - tau) <= 1e-12 * abs(tau)
+    last = res.rows[3]
+    assert last.overlap and math.isnan(last.exact_torque_axis) and math.isfinite(last.point_torque_axis)
+    assert any("overlap" in n for n in res.notes)
+
+
+def test_interleaved_regions_fall_back_to_direct_integration():
+    sc = _scene([(0.02, (0.05, 0.0, 0.0))], [(1.0, (0.0, 0.04, 0.0))])
+    res = scan(sc, Sweep("turn", (0.0, 1.0), "attractor"), workers=1)
+    assert res.method == "direct" and any("interleave" in n for n in res.notes)
+    for row in res.rows:
+        tau, _ = _newton_torque([(0.02, (0.05, 0, 0))], [(1.0, (0, 0.04, 0))], _rot(row.value))
+        assert abs(row.exact_torque_axis - tau) <= 1e-12 * abs(tau)
+
+
+def test_local_processes_and_a_dask_cluster_give_the_same_rows(tmp_path):
+    text = "\n".join(f'[[body]]\nname = "t{k}"\ngroup = "pendulum"\nshape = "sphere"\nradius = 0.004\nmass = {m}\n'
+                     f'at = [{r[0]}, {r[1]}, {r[2]}]\n' for k, (m, r) in enumerate(TEST))
+    text += "\n".join(f'[[body]]\nname = "s{k}"\ngroup = "attractor"\nshape = "sphere"\nradius = 0.02\nmass = {m}\n'
+                      f'at = [{r[0]}, {r[1]}, {r[2]}]\n' for k, (m, r) in enumerate(SOURCE))
+    path = tmp_path / "scene.toml"
+    path.write_text(text)
+    sc = load_scene_text(text, str(path))
+    sweep = Sweep("shift", (0.0, 0.01, 0.02, 0.03), "attractor", "z")
+    serial = scan(sc, sweep, workers=1)
+    pool = scan(sc, sweep, workers=2, scene_path=str(path))  # workers re-load the file
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False, dashboard_address=None) as cl:
+        with distributed.Client(cl) as client:
+            dask = scan(sc, sweep, scheduler=client)
+    for a, b, c in zip(serial.rows, pool.rows, dask.rows):
+        assert a.exact_torque_axis == b.exact_torque_axis == c.exact_torque_axis
+        tau, _ = _newton_torque(TEST, SOURCE, shift=np.array([0, 0, a.value]))
+        assert abs(a.exact_torque_axis - tau) <= 1e-12 * abs(tau)
+
+
+def test_bad_sweeps_are_refused():
+    sc = _scene(TEST, SOURCE)
+    with pytest.raises(InputError):
+        scan(sc, Sweep("turn", (0.0,), "nobody"))
+    with pytest.raises(InputError):
+        scan(sc, Sweep("shift", (0.0,), "attractor", "w"))
+    with pytest.raises(InputError):
+        scan(sc, Sweep("turn", (0.0,), "attractor"), rtol=0.0)
+    with pytest.raises(InputError):
+        scan(sc, Sweep("turn", (0.0,), "attractor"), position="nowhere")
