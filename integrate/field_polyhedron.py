@@ -397,3 +397,19 @@ def polyhedron_gradient(points, data: PolyhedronData, rho, G):
     trace 0 outside, -4 pi G rho inside, the mean of both sides on a face, not finite on edges."""
     tsum = _run(_gradient_kernel, points, data)
     return float(G) * float(rho) * tsum.reshape(-1, 3, 3)
+
+
+def polyhedron_error_estimate(points, data: PolyhedronData):
+    """Bound (N,) on the relative rounding error of `polyhedron_field` at `points`:
+    4 eps (1 + D^2)(1 + aspect^2), with D the distance from the mesh's vertex centroid in units of
+    its bounding radius and aspect = bounding radius / (2 volume / area). The edge and face sums
+    cancel like D^2 far away and like aspect^2 for thin bodies (measured against the prism closed
+    form and its far-field quadrature for cubes, 100:1 plates and rods, 12 to 768 triangles)."""
+    p = _points(points)
+    v = data.vertices
+    centre = v.mean(axis=0)
+    radius = np.linalg.norm(v - centre, axis=1).max()
+    area = 0.5 * np.linalg.norm(data.face_area_normals, axis=1).sum()
+    aspect = radius / (2.0 * data.volume / area)
+    D = np.linalg.norm(p - centre, axis=1) / radius
+    return 4.0 * np.finfo(float).eps * (1.0 + D * D) * (1.0 + aspect * aspect)

@@ -345,3 +345,14 @@ def prism_gradient(points, half_sizes, rho, G):
     p, h = _check(points, half_sizes)
     return _prism_gradient_kernel(p, h[0], h[1], h[2], float(rho), float(G), True,
                                   _GL_NODES, _GL_WEIGHTS)
+
+
+def prism_error_estimate(half_sizes):
+    """Bound on the relative rounding error of `prism_field` (U relative to |U|, g to |g|; where g
+    nearly cancels inside, absolute to G |rho| max(half_sizes)): eps (1000 + 2 (h_max/h_min)^2).
+    The closed form is used only near the prism, where its digits are lost mainly to the aspect
+    ratio (measured against 50-digit mpmath: 1e-14 for cubes, 2e-12 for 100:1 rods, 1.5e-8 for
+    1e4:1 rods, 1e-11 for 1e4:1 plates); the far-field quadrature is good to about 1e-15."""
+    _, h = _check(np.zeros((1, 3)), half_sizes)
+    aspect = h.max() / h.min()
+    return float(np.finfo(float).eps * (1000.0 + 2.0 * aspect * aspect))

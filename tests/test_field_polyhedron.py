@@ -205,3 +205,23 @@ def test_open_or_badly_wound_meshes_are_input_errors():
         PolyhedronData(m.vertices, m.faces[:, ::-1])
     with pytest.raises(InputError):
         PolyhedronData(m.vertices, m.faces + 100)
+
+
+@pytest.mark.parametrize("h", [[0.04, 0.025, 0.015], [0.05, 0.005, 0.0005], [0.05, 0.0005, 0.0005]])
+def test_error_estimate_bounds_the_error(h):
+    # Reference: the prism closed form, which far away switches to Gauss-Legendre quadrature good
+    # to ~1e-15 (tests/test_field_prism.py), so the difference is the polyhedron's rounding.
+    from truepull.integrate.field_polyhedron import polyhedron_error_estimate
+
+    h = np.array(h)
+    data = PolyhedronData(*(lambda m: (m.vertices, m.faces))(box_mesh(h, 1)))
+    rng = np.random.default_rng(13)
+    d = rng.normal(size=(60, 3))
+    d /= np.linalg.norm(d, axis=1)[:, None]
+    pts = d * np.repeat([3.0, 10.0, 100.0, 1000.0], 15)[:, None] * np.linalg.norm(h)
+    U, g = polyhedron_field(pts, data, 1.0, 1.0)
+    Up, gp = prism_field(pts, h, 1.0, 1.0)
+    est = polyhedron_error_estimate(pts, data)
+    assert np.all(np.abs(U / Up - 1) < est)
+    assert np.all(np.linalg.norm(g - gp, axis=1) / np.linalg.norm(gp, axis=1) < est)
+    assert est.max() < 1e-4      # and it is not vacuous

@@ -277,3 +277,49 @@ def test_quadrature_switch_is_seamless():
 def test_bad_sizes_are_input_errors(h):
     with pytest.raises(InputError):
         prism_field([[1.0, 0, 0]], h, RHO, G)
+
+
+def test_error_estimate_bounds_the_rounding_error():
+    # Reference: the plain eight-corner Nagy-Papp-Benedek sums evaluated at 50 digits with mpmath
+    # (arbitrary precision), so the difference is this kernel's rounding alone.
+    mp = pytest.importorskip("mpmath")
+    mp.mp.dps = 50
+
+    def nagy(p, h):
+        p = [mp.mpf(float(c)) for c in p]
+        h = [mp.mpf(float(c)) for c in h]
+        I = mp.mpf(0)
+        J = [mp.mpf(0)] * 3
+
+        def at(a, b, c, r):
+            return mp.atan(b * c / (a * r)) if a != 0 else mp.mpf(0)
+
+        for i in (0, 1):
+            for j in (0, 1):
+                for k in (0, 1):
+                    x = (2 * i - 1) * h[0] - p[0]
+                    y = (2 * j - 1) * h[1] - p[1]
+                    z = (2 * k - 1) * h[2] - p[2]
+                    s = (-1) ** (i + j + k + 1)
+                    r = mp.sqrt(x * x + y * y + z * z)
+                    lx, ly, lz = mp.log(x + r), mp.log(y + r), mp.log(z + r)
+                    I += s * (y * z * lx + x * z * ly + x * y * lz - x * x / 2 * at(x, y, z, r)
+                              - y * y / 2 * at(y, x, z, r) - z * z / 2 * at(z, x, y, r))
+                    J[0] -= s * (y * lz + z * ly - x * at(x, y, z, r))
+                    J[1] -= s * (x * lz + z * lx - y * at(y, x, z, r))
+                    J[2] -= s * (x * ly + y * lx - z * at(z, x, y, r))
+        return float(I), np.array([float(c) for c in J])
+
+    rng = np.random.default_rng(12)
+    for h in ([0.05, 0.03, 0.02], [0.05, 0.0005, 0.0005], [0.05, 0.05, 0.0005]):
+        h = np.array(h)
+        bound = fp.prism_error_estimate(h)
+        for _ in range(12):
+            d = rng.normal(size=3)
+            p = d / np.linalg.norm(d) * rng.uniform(1.0, 4.0) * np.linalg.norm(h)
+            if np.all(np.abs(p) <= h):
+                continue
+            I, J = nagy(p, h)
+            U, g = prism_field([p], h, 1.0, 1.0)
+            assert abs(-U[0] / I - 1) < bound
+            assert np.linalg.norm(g[0] - J) / np.linalg.norm(J) < bound
