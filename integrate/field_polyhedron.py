@@ -97,7 +97,7 @@ class PolyhedronData:
         counts = np.unique(und_sorted, return_counts=True)[1]
         if np.any(counts != 2):
             raise InputError(source, key, "the mesh is not watertight: every edge must be shared "
-                                          "by exactly two triangles")
+                                          "by exactly two triangles (merge duplicate vertices first)")
         first = order[0::2]
         second = order[1::2]
         # Orient each edge as traversed in its first face (face A); face B traverses it backwards.
