@@ -7,11 +7,11 @@ density or mass), and for the turn of each moving group:
 - placement and size: central differences of the engine, Richardson-extrapolated over steps h and
   2h (`differences.derivatives`, which also bounds the error). Only the pairs of the changed body
   are recomputed (the others do not depend on it). The step is chosen against the engine tolerance:
-  with engine errors of about rtol times the torque, the extrapolated difference has truncation
-  error ~ (h/l)^4 and noise ~ rtol l/h, balanced at h = rtol^(1/5) l, where l is the body's size
-  (its bounding radius; a point mass: a twentieth of its distance to the nearest other-group body),
-  capped so that the body keeps clear of the other group (the step is halved until the displaced
-  bodies do not overlap);
+  with engine errors of e times the torque (e: the engine's own estimate for the body's pairs, at
+  most rtol; exact pairs such as point masses and spheres carry only rounding), the extrapolated
+  difference has truncation error ~ (h/l)^4 and noise ~ e l/h, balanced at h = e^(1/5) l, where l is the body's size
+  (the smaller of its bounding radius and its gap to the other group, and for a size the size itself),
+  and the step is halved until the displaced bodies do not overlap;
 - density and mass: exact, since the torque is linear in them: d tau / d rho = tau_b / rho, with
   tau_b the torque of the body's own pairs;
 - turn of a group about the frame axis: exact, d tau / d phi = K for the source group (the stiffness
@@ -47,6 +47,8 @@ from truepull.integrate.scene_cache import scene_from
 MIN_STEP_FACTOR = 1e-4
 MAX_STEP_FACTOR = 0.05
 STEP_HALVINGS = 12
+NOISE_FLOOR = 1e-15
+"""Smallest relative engine error assumed when choosing steps (exact pairs carry a rounding estimate)."""
 
 
 def step_factor(rtol: float) -> float:
@@ -239,9 +241,32 @@ def pendulum_inertia(scene, test: str, position=None) -> float:
 # steps
 
 
-def _min_centre_distance(scene, body, others) -> float:
-    d = [np.linalg.norm(body.com - o.com) for o in others]
-    return float(min(d)) if d else 1.0
+def clearance(scene, body: Body, positions, other: str) -> float:
+    """Distance (m) from the body to the nearest body of group `other` over the positions, sampled:
+    exact for points and spheres (centre distance less the radius), otherwise from the body's
+    quadrature nodes (a mesh: its vertices), which is at least the true gap and close to it."""
+    from truepull.geometry.distance import signed_distance
+    from truepull.integrate.volume_rules import body_nodes
+
+    best = math.inf
+    for p in positions:
+        sc = scene.at_position(p) if p is not None else scene
+        b = placed(scene, body, p)
+        if b.shape.kind in ("point", "sphere", "shell"):
+            nodes, less = b.com[None, :], (b.shape.radius if b.shape.kind != "point" else 0.0)
+        elif b.shape.kind == "mesh":
+            nodes, less = b.placement.apply(b.shape.vertices), 0.0
+        else:
+            nodes, less = body_nodes(b, (6, 8, 6))[0], 0.0
+        for o in sc.group(other):
+            if o.is_hole:
+                continue
+            if o.shape.kind == "point":
+                d = np.linalg.norm(nodes - o.com, axis=1)
+            else:
+                d = signed_distance(o.shape, o.to_local(nodes))
+            best = min(best, float(np.min(d)) - less)
+    return best
 
 
 def _clear(scene, body: Body, positions, test, source) -> bool:
@@ -260,15 +285,19 @@ def _clear(scene, body: Body, positions, test, source) -> bool:
     return True
 
 
-def choose_step(scene, body: Body, param: str, value: float, positions, test, source, rtol) -> float:
-    """The difference step for one placement or size parameter (module docstring)."""
-    factor = step_factor(rtol)
+def choose_step(scene, body: Body, param: str, value: float, positions, test, source, rtol,
+                noise: float | None = None) -> float:
+    """The difference step for one placement or size parameter (module docstring). `noise`: the
+    relative error of the body's pair torques (default: rtol)."""
+    factor = step_factor(rtol if noise is None else noise)
     other = source if body.group == test else test
-    if param.startswith("at."):
-        r = body.shape.bounding_radius()
-        length = r if r > 0 else 0.05 * _min_centre_distance(scene, body, scene.group(other))
-    else:
-        length = abs(value) if value != 0 else body.shape.bounding_radius()
+    r = body.shape.bounding_radius()
+    gap = clearance(scene, body, positions, other)
+    length = min(r if r > 0 else math.inf, gap if gap > 0 else math.inf)
+    if not param.startswith("at."):
+        length = min(length, abs(value)) if value != 0 else length
+    if not math.isfinite(length):
+        length = abs(value) if value != 0 else 1e-3
     h = factor * length
     for _ in range(STEP_HALVINGS):
         ok = True
@@ -353,6 +382,12 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
             raise InputError(scene.path, "--body", f"no body named {', '.join(sorted(missing))} in the "
                              f"'{test}' or '{source}' group")
 
+    # the engine's relative error on each body's pair torques sets its step (at most rtol)
+    noise = {}
+    for b in chosen:
+        share = body_pairs(scene, b, positions[0], test, source, rtol)
+        noise[b.name] = min(rtol, max(share[2] / max(abs(share[0]), 1e-300), NOISE_FLOOR))
+
     # stencils for placement and size parameters, all in one parallel map
     items, plan = [], []
     for b in chosen:
@@ -363,7 +398,7 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
                 continue
             if not param.startswith("at.") and meas.value == 0:
                 continue  # a size at its lower limit (e.g. inner_radius = 0): no two-sided difference
-            h = choose_step(scene, b, param, meas.value, positions, test, source, rtol)
+            h = choose_step(scene, b, param, meas.value, positions, test, source, rtol, noise[b.name])
             plan.append((b, param, meas, h, len(items)))
             items += [(b.name, param, meas.value + k * h) for k in OFFSETS]
     job = StencilJob(scene_path, None if scene_path else scene, positions, test, source, rtol)
@@ -442,8 +477,9 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
     notes = []
     if model is not None:
         notes.append(model.description)
-    notes.append(f"difference steps h = {step_factor(rtol):.3g} x the body's size (rtol^(1/5) for rtol {rtol:g}), "
-                 "halved until the displaced body keeps clear")
+    notes.append(f"difference steps h = e^(1/5) x the body's size or its gap to the other group, whichever is "
+                 f"smaller, e the engine's relative error on the body's pairs (at most rtol = {rtol:g}, so at most "
+                 f"{step_factor(rtol):.3g}); halved until the displaced body keeps clear")
     rows.sort(key=_rank_key)
     return BiasResult(tuple(rows), tau0, c0.error.torque_axis, position if isinstance(position, str) else None,
                       G, model.description if model else None, rtol, step_factor(rtol), tuple(notes))

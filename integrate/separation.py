@@ -65,7 +65,7 @@ def _ellipsoid_distance(radii, y) -> float:
     hi = float(np.linalg.norm(a * y)) + 1.0e-300
     while f(hi) > 0:
         hi *= 2.0
-    t = brentq(f, 0.0, hi, xtol=1e-300, rtol=4e-16, maxiter=400)
+    t = brentq(f, 0.0, hi, xtol=1e-300, rtol=1e-15, maxiter=400)
     x = a * a * y / (a * a + t)
     return float(np.linalg.norm(x - y))
 

@@ -1,0 +1,313 @@
+"""Sensitivities of the torque and G, and the what-if changes.
+
+Outside references: the analytic derivative of Newton's law for point masses (worked out in
+`_newton_gradients`); central finite differences of the engine taken here with their own step;
+the exterior field of a homogeneous ellipsoid in Carlson's form with scipy.special.elliprd
+(Kellogg / Chandrasekhar's ellipsoid potential; from memory, and checked here against the sphere
+limit, Newton); Newton's law for a spherical void (a sphere of negative density, shell theorem).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from scipy.optimize import brentq
+from scipy.special import elliprd
+
+from truepull.geometry.bodies import build_body, spec_with
+from truepull.geometry.errors import InputError
+from truepull.geometry.scene import load_scene_text
+from truepull.integrate.interaction import compare_groups
+from truepull.integrate.sensitivity import (flatten_what_if, offset_what_if, sensitivities, step_factor,
+                                            void_what_if)
+
+G = 6.6743e-11
+
+POINTS = """
+[scene]
+G = 6.6743e-11
+[[body]]
+name = "p1"
+group = "pendulum"
+shape = "point"
+mass = 0.02
+at = ["0.03 +- 1e-5", 0.004, 0.001]
+[[body]]
+name = "p2"
+group = "pendulum"
+shape = "point"
+mass = 0.02
+at = [-0.03, -0.002, 0.0]
+[[body]]
+name = "M1"
+group = "attractor"
+shape = "point"
+mass = "1.5 +- 0.001"
+at = [0.045, "0.05 +- 2e-5", 0.01]
+[[body]]
+name = "M2"
+group = "attractor"
+shape = "point"
+mass = 1.5
+at = [-0.045, -0.05, -0.01]
+"""
+
+
+def _pairs_of(text):
+    sc = load_scene_text(text)
+    return ([(b.mass, b.com) for b in sc.group("pendulum")], [(b.mass, b.com) for b in sc.group("attractor")], sc)
+
+
+def _newton_tau(test, source):
+    tau = 0.0
+    for m, r in test:
+        for M, R in source:
+            d = R - r
+            tau += G * m * M * (r[0] * R[1] - r[1] * R[0]) / np.linalg.norm(d) ** 3
+    return tau
+
+
+def _newton_gradients(m, r, M, R):
+    """Analytic gradients of the pair torque G m M (r x R)_z / |R - r|^3 with respect to R and r."""
+    d = R - r
+    n = np.linalg.norm(d)
+    c = r[0] * R[1] - r[1] * R[0]
+    dR = G * m * M * (np.array([-r[1], r[0], 0.0]) / n**3 - 3 * c * d / n**5)
+    dr = G * m * M * (np.array([R[1], -R[0], 0.0]) / n**3 + 3 * c * d / n**5)
+    return dR, dr
+
+
+def test_point_mass_sensitivities_are_the_analytic_derivatives_of_newton():
+    test, source, sc = _pairs_of(POINTS)
+    res = sensitivities(sc, workers=1)
+    tau = _newton_tau(test, source)
+    assert abs(res.torque_axis - tau) <= 1e-13 * abs(tau)
+    rows = {(r.body, r.parameter): r for r in res.rows}
+    names_t = [b.name for b in sc.group("pendulum")]
+    names_s = [b.name for b in sc.group("attractor")]
+    # d tau / d (attractor position): sum over the test masses of the analytic gradient
+    for j, (M, R) in enumerate(source):
+        grad = sum(_newton_gradients(m, r, M, R)[0] for m, r in test)
+        for k, c in enumerate("xyz"):
+            row = rows[(names_s[j], f"at.{c}")]
+            assert abs(row.d_torque_axis - grad[k]) <= 1e-8 * np.linalg.norm(grad)
+            assert abs(row.d_torque_axis - grad[k]) <= row.d_error + 1e-12 * np.linalg.norm(grad)
+        share = _newton_tau(test, [(M, R)])
+        assert abs(rows[(names_s[j], "mass")].d_torque_axis - share / M) <= 1e-13 * abs(share / M)
+    for i, (m, r) in enumerate(test):
+        grad = sum(_newton_gradients(m, r, M, R)[1] for M, R in source)
+        for k, c in enumerate("xyz"):
+            row = rows[(names_t[i], f"at.{c}")]
+            assert abs(row.d_torque_axis - grad[k]) <= 1e-8 * np.linalg.norm(grad)
+    # ppm per stated uncertainty: the scene states u for p1 at.x, M1 at.y and M1 mass only
+    r = rows[("M1", "at.y")]
+    assert r.u == 2e-5 and abs(r.torque_ppm - 1e6 * r.d_torque_axis * 2e-5 / tau) < 1e-9 * abs(r.torque_ppm)
+    assert rows[("M2", "at.y")].u is None and rows[("M2", "at.y")].torque_ppm is None
+    assert all(row.G_ppm is None and row.d_G is None for row in res.rows)  # no measurement
+    ranked = [abs(row.torque_ppm) for row in res.rows if row.torque_ppm is not None]
+    assert ranked == sorted(ranked, reverse=True) and res.rows[0].torque_ppm is not None
+    assert step_factor(1e-9) == pytest.approx(1e-9 ** 0.2)
+
+
+def test_turn_sensitivity_is_the_derivative_of_newton():
+    text = POINTS + '[[position]]\nname = "A"\ngroup = "attractor"\nturn = "10 +- 0.01"\n'
+    test, source, sc = _pairs_of(text)
+    res = sensitivities(sc, workers=1, bodies=["M1"])
+    row = next(r for r in res.rows if r.parameter == "turn")
+    assert row.body == "attractor" and row.u == pytest.approx(math.radians(0.01))
+
+    def tau_at(phi):
+        c, s = math.cos(phi), math.sin(phi)
+        Rm = np.array([[c, -s, 0], [s, c, 0], [0, 0, 1]])
+        return _newton_tau(test, [(M, Rm @ R) for M, R in source])
+
+    h = 1e-6
+    phi = math.radians(10)
+    dtau = (tau_at(phi + h) - tau_at(phi - h)) / (2 * h)  # central difference of Newton
+    assert abs(row.d_torque_axis - dtau) <= 1e-7 * abs(dtau)
+
+
+EXTENDED = """
+[scene]
+G = 6.6743e-11
+[[body]]
+name = "beam"
+group = "pendulum"
+shape = "box"
+size = ["0.06 +- 1e-5", 0.006, 0.004]
+density = 2700
+at = [0.002, 0.001, 0]
+rotate = { axis = [0, 0, 1], angle = 12 }
+[[body]]
+name = "ball"
+group = "attractor"
+shape = "sphere"
+radius = "0.02 +- 1e-5"
+density = "11340 +- 3"
+at = [0.035, 0.04, 0.005]
+"""
+
+
+def test_extended_body_sensitivities_match_finite_differences_of_the_engine():
+    sc = load_scene_text(EXTENDED)
+    res = sensitivities(sc, workers=1)
+    rows = {(r.body, r.parameter): r for r in res.rows}
+
+    def torque(name, param, value):
+        b = sc.body(name)
+        return compare_groups(sc.with_body(name, build_body(spec_with(b.spec, param, value))),
+                              rtol=1e-11).exact.torque_axis
+
+    def reference(name, param, v0, h):
+        """Central differences of the engine at h and h/2, extrapolated (h^2 error term removed)."""
+        d1 = (torque(name, param, v0 + h) - torque(name, param, v0 - h)) / (2 * h)
+        d2 = (torque(name, param, v0 + h / 2) - torque(name, param, v0 - h / 2)) / h
+        return (4 * d2 - d1) / 3, abs(d2 - d1)
+
+    for name, param in (("beam", "size.x"), ("beam", "at.y"), ("ball", "radius")):
+        spec = sc.body(name).spec
+        v0 = dict(spec.size, **{f"at.{c}": a for c, a in zip("xyz", spec.at)})[param].value
+        ref, spread = reference(name, param, v0, 2e-5)
+        row = rows[(name, param)]
+        scale = max(abs(rows[(name, f"at.{c}")].d_torque_axis) for c in "xyz")  # the gradient's size
+        assert abs(row.d_torque_axis - ref) <= 1e-6 * scale + spread, (name, param)
+        assert abs(row.d_torque_axis - ref) <= row.d_error + spread, (name, param)
+    # density: the torque is linear in it; a central difference of the engine is the same number
+    fd = (torque("ball", "density", 11341.0) - torque("ball", "density", 11339.0)) / 2.0
+    assert abs(rows[("ball", "density")].d_torque_axis - fd) <= 1e-9 * abs(fd)
+
+
+def _ellipsoid_field(x, radii, rho):
+    """Exterior field of a homogeneous ellipsoid at local point x (semi-axes along x, y, z):
+    g_i = -(4/3) pi G rho a b c x_i R_D(..., a_i^2 + lambda), lambda the largest root of
+    sum x_i^2 / (a_i^2 + lambda) = 1 (Carlson's form of the ellipsoid potential; from memory)."""
+    a2 = np.asarray(radii, float) ** 2
+    lam = brentq(lambda t: np.sum(x**2 / (a2 + t)) - 1.0, 0.0, 10 * np.dot(x, x), xtol=1e-300, rtol=1e-15)
+    s = a2 + lam
+    abc = float(np.prod(radii))
+    g = np.empty(3)
+    for i in range(3):
+        others = [s[j] for j in range(3) if j != i]
+        g[i] = -4.0 / 3.0 * math.pi * G * rho * abc * x[i] * elliprd(others[0], others[1], s[i])
+    return g
+
+
+def test_ellipsoid_what_if_against_the_carlson_exterior_field():
+    # sphere limit of the reference (Newton): a = b = c gives -G M x / |x|^3
+    x = np.array([0.05, -0.02, 0.03])
+    g = _ellipsoid_field(x, (0.02, 0.02, 0.02), 1000.0)
+    M = 1000.0 * 4 / 3 * math.pi * 0.02**3
+    assert np.allclose(g, -G * M * x / np.linalg.norm(x) ** 3, rtol=1e-13, atol=0)
+    text = """
+[scene]
+G = 6.6743e-11
+[[body]]
+name = "probe"
+group = "pendulum"
+shape = "point"
+mass = 0.05
+at = [0.04, 0.015, 0.02]
+[[body]]
+name = "ball"
+group = "attractor"
+shape = "sphere"
+radius = 0.025
+density = 11340
+at = [0.09, 0.05, -0.01]
+"""
+    sc = load_scene_text(text)
+    polar = np.array([1.0, 0.5, 0.2])
+    w = flatten_what_if(sc, "ball", 0.08, polar, position=None, rtol=1e-11)
+    # reference: the off-axis point in the Carlson field of the ellipsoid (local axes: polar axis = local z)
+    from truepull.geometry.placement import rotation_z_to
+
+    R = rotation_z_to(polar)
+    a = 0.025 * (1 - 0.08) ** (-1 / 3)
+    radii = (a, a, a * (1 - 0.08))
+    p = np.array([0.04, 0.015, 0.02])
+    c = np.array([0.09, 0.05, -0.01])
+    g = R @ _ellipsoid_field(R.T @ (p - c), radii, 11340.0)
+    tau_ref = 0.05 * np.cross(p, g)[2]
+    assert abs(w.torque_after - tau_ref) <= 1e-9 * abs(tau_ref)
+    tau_sphere = 0.05 * np.cross(p, -G * 11340 * 4 / 3 * math.pi * 0.025**3 * (p - c) / np.linalg.norm(p - c) ** 3)[2]
+    assert abs(w.torque_before - tau_sphere) <= 1e-12 * abs(tau_sphere)
+    assert abs(w.torque_ppm - 1e6 * (tau_ref - tau_sphere) / tau_sphere) <= 1e-3 * abs(w.torque_ppm) + 1e-3
+
+
+MEASURED = POINTS + """
+[[position]]
+name = "A"
+group = "attractor"
+turn = 20
+[[position]]
+name = "B"
+group = "attractor"
+turn = -20
+[measurement]
+method = "deflection"
+angle = { A = "0.0021 rad", B = "-0.0020 rad" }
+period = "400 +- 0.1 s"
+"""
+
+
+def _turned(source, deg):
+    c, s = math.cos(math.radians(deg)), math.sin(math.radians(deg))
+    Rm = np.array([[c, -s, 0], [s, c, 0], [0, 0, 1]])
+    return [(M, Rm @ R) for M, R in source]
+
+
+def test_void_and_offset_what_ifs_against_newton_and_the_first_order_g_model():
+    test, source, sc = _pairs_of(MEASURED)
+    # a void: a sphere of radius 4 mm at 5 mm from the centre of a sphere host of the attractor
+    text = MEASURED.replace('name = "M2"\ngroup = "attractor"\nshape = "point"\nmass = 1.5',
+                            'name = "M2"\ngroup = "attractor"\nshape = "sphere"\nradius = 0.02\ndensity = 11340')
+    test, source, sc = _pairs_of(text)
+    host = sc.body("M2")
+    r_void, off = 0.004, np.array([0.005, -0.002, 0.003])
+    w = void_what_if(sc, "M2", r_void, off, rtol=1e-11)
+    assert w.body == "M2" and w.kind == "void"
+    m_void = -11340 * 4 / 3 * math.pi * r_void**3
+    after = source + [(m_void, host.com + off)]
+    tauA0, tauA1 = _newton_tau(test, _turned(source, 20)), _newton_tau(test, _turned(after, 20))
+    tauB0, tauB1 = _newton_tau(test, _turned(source, -20)), _newton_tau(test, _turned(after, -20))
+    assert w.torque_before == pytest.approx(tauA0, rel=1e-12) and w.torque_after == pytest.approx(tauA1, rel=1e-12)
+    # first-order model: G proportional to I / (tau_A - tau_B); the attractor does not change I
+    G_ppm = 1e6 * ((tauA0 - tauB0) / (tauA1 - tauB1) - 1)
+    assert w.G_ppm == pytest.approx(G_ppm, rel=1e-9)
+    # offset of a pendulum point mass: changes the torque and the moment of inertia
+    d = np.array([0.001, -0.0005, 0.0])
+    w = offset_what_if(sc, "p1", d, rtol=1e-11)
+    test1 = [(test[0][0], test[0][1] + d), test[1]]
+    tA = _newton_tau(test1, _turned(source, 20))
+    tB = _newton_tau(test1, _turned(source, -20))
+    assert w.torque_after == pytest.approx(tA, rel=1e-12)
+    I0 = sum(m * (r[0] ** 2 + r[1] ** 2) for m, r in test)
+    I1 = sum(m * (r[0] ** 2 + r[1] ** 2) for m, r in test1)
+    G_ppm = 1e6 * ((I1 / I0) * (tauA0 - tauB0) / (tA - tB) - 1)
+    assert w.G_ppm == pytest.approx(G_ppm, rel=1e-9)
+
+
+def test_g_columns_follow_the_first_order_model():
+    test, source, sc = _pairs_of(MEASURED)
+    res = sensitivities(sc, workers=1, bodies=["M1"])
+    assert res.position == "A" and res.G_model is not None
+    row = next(r for r in res.rows if r.body == "M1" and r.parameter == "mass")
+    M = source[0][0]
+    dA = _newton_tau(test, _turned(source[:1], 20)) / M
+    dB = _newton_tau(test, _turned(source[:1], -20)) / M
+    delta = _newton_tau(test, _turned(source, 20)) - _newton_tau(test, _turned(source, -20))
+    dlnG = -(dA - dB) / delta
+    assert row.G_ppm == pytest.approx(1e6 * dlnG * 0.001, rel=1e-9)
+    assert row.d_G == pytest.approx(G * dlnG, rel=1e-9)
+
+
+def test_what_ifs_refuse_impossible_changes():
+    sc = load_scene_text(EXTENDED)
+    with pytest.raises(InputError, match="only a sphere"):
+        flatten_what_if(sc, "beam", 0.1)
+    with pytest.raises(InputError, match="does not fit"):
+        void_what_if(sc, "ball", 0.01, [0.015, 0, 0])
+    with pytest.raises(InputError):
+        flatten_what_if(sc, "ball", 1.5)
