@@ -5,8 +5,8 @@ The way is chosen by the pair (published shortcuts first):
 - one point-like: it becomes the source (its field is a point's, exactly) and the other body is
   integrated over its surface; by Newton's third law and rotational invariance the test body's force
   and torque are minus those found, its stiffness and the energy the same;
-- otherwise the body with a closed-form field (box, mesh, ellipsoid) is the source and the other is
-  integrated over its surface; two curved bodies use the adaptive surface field of the source.
+- otherwise the body with the more exact field is the source (ellipsoid, box and mesh have closed forms;
+  cylinders, tubes and cones the semi-analytic band field) and the other is integrated over its surface.
 Results are for the TEST body; torque about the pivot; stiffness -d(torque . e)/d(theta) for a
 right-handed turn theta of the test body about the frame axis e.
 """
@@ -18,10 +18,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from truepull.integrate.patches import body_patches
-from truepull.integrate.sources import CLOSED_FORM_KINDS, POINTLIKE_KINDS, SourceField
+from truepull.integrate.sources import POINTLIKE_KINDS, SourceField
 from truepull.integrate.surface_quadrature import field_tolerances, integrate_surface
 
 EPS = np.finfo(float).eps
+
+SOURCE_PREFERENCE = ("point", "sphere", "shell", "ellipsoid", "box", "mesh", "cylinder", "cone")
+"""Which body of a pair acts as the source: the one whose field is cheapest and most exact (closed forms
+first, then the semi-analytic band field); the other is integrated over its surface."""
 
 
 @dataclass(frozen=True)
@@ -85,7 +89,7 @@ def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=8)
     tk, sk = test_body.shape.kind, source_body.shape.kind
     if tk in POINTLIKE_KINDS and sk in POINTLIKE_KINDS:
         return _pointlike_pair(test_body, source_body, pivot, axis, G)
-    swap = tk in POINTLIKE_KINDS or (sk not in CLOSED_FORM_KINDS and tk in CLOSED_FORM_KINDS)
+    swap = SOURCE_PREFERENCE.index(tk) < SOURCE_PREFERENCE.index(sk)
     integ, src = (source_body, test_body) if swap else (test_body, source_body)
     field = SourceField(src, G)
     patches = body_patches(integ)

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from truepull.integrate.patches import PatchSet, body_patches
+from truepull.integrate.patches import BAND, PatchSet, body_patches
 
 CLOSED_FORM_RTOL = 1e-13
 """Relative error allowed for closed-form fields (rounding in sums of logs and arctangents)."""
@@ -47,6 +47,8 @@ class SourceField:
             "box": "prism closed form",
             "mesh": "polyhedron closed form",
             "ellipsoid": "ellipsoid closed form",
+            "cylinder": "band field (closed form along generators, graded Gauss in azimuth)",
+            "cone": "band field (closed form along generators, graded Gauss in azimuth)",
         }.get(self.kind, "adaptive surface quadrature")
 
     def patches(self) -> PatchSet:
@@ -92,6 +94,10 @@ class SourceField:
 
             U, gl = ellipsoid_field(self._local(points), np.asarray(b.shape.radii, float), b.density, self.G)
             g = self._world_field(gl)
+        elif np.all(self.patches().kinds == BAND):
+            from truepull.integrate.field_band import band_field
+
+            return band_field(points, self.patches(), b.density, self.G)
         else:
             from truepull.integrate.surface_field import surface_field
 
