@@ -258,21 +258,38 @@ def _prism_field_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, wei
 def _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t):
     """t += integral (3 d d^T - r^2 I) / r^5 dV by a tensor Gauss-Legendre rule (d = x' - p)."""
     vol = hx * hy * hz
-    d = np.empty(3)
+    sxx = 0.0
+    syy = 0.0
+    szz = 0.0
+    sxy = 0.0
+    sxz = 0.0
+    syz = 0.0
     for a in range(nx):
-        d[0] = hx * nodes[nx, a] - px
+        dx = hx * nodes[nx, a] - px
         for b in range(ny):
-            d[1] = hy * nodes[ny, b] - py
+            dy = hy * nodes[ny, b] - py
+            wab = weights[nx, a] * weights[ny, b]
             for c in range(nz):
-                d[2] = hz * nodes[nz, c] - pz
-                w = weights[nx, a] * weights[ny, b] * weights[nz, c] * vol
-                r2 = d[0] * d[0] + d[1] * d[1] + d[2] * d[2]
+                dz = hz * nodes[nz, c] - pz
+                r2 = dx * dx + dy * dy + dz * dz
                 inv_r2 = 1.0 / r2
-                s = w * inv_r2 / np.sqrt(r2)
-                for p in range(3):
-                    for q in range(3):
-                        t[p, q] += 3.0 * s * d[p] * d[q] * inv_r2
-                    t[p, p] -= s
+                s = wab * weights[nz, c] * inv_r2 / np.sqrt(r2)
+                s3 = 3.0 * s * inv_r2
+                sxx += s3 * dx * dx - s
+                syy += s3 * dy * dy - s
+                szz += s3 * dz * dz - s
+                sxy += s3 * dx * dy
+                sxz += s3 * dx * dz
+                syz += s3 * dy * dz
+    t[0, 0] += vol * sxx
+    t[1, 1] += vol * syy
+    t[2, 2] += vol * szz
+    t[0, 1] += vol * sxy
+    t[1, 0] += vol * sxy
+    t[0, 2] += vol * sxz
+    t[2, 0] += vol * sxz
+    t[1, 2] += vol * syz
+    t[2, 1] += vol * syz
 
 
 @njit(cache=True, parallel=True)
@@ -280,40 +297,43 @@ def _prism_gradient_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, 
     n = points.shape[0]
     T = np.zeros((n, 3, 3))
     scale = G * rho
-    for i in prange(n):
-        px = points[i, 0]
-        py = points[i, 1]
-        pz = points[i, 2]
-        t = np.zeros((3, 3))
-        nx, ny, nz = 0, 0, 0
-        if allow_quadrature:
-            nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz)
-        if nx > 0:
-            _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t)
-        else:
-            D = np.empty((3, 2, 2))
-            Om = np.empty((3, 2))
-            X = np.empty(2)
-            Y = np.empty(2)
-            Z = np.empty(2)
-            R = np.empty((2, 2, 2))
-            _closed_form_parts(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R)
-            for k in range(2):
-                s = 1.0 if k == 1 else -1.0
-                for a in range(3):
-                    t[a, a] -= s * Om[a, k]
-            for i2 in range(2):
-                for j2 in range(2):
-                    s = 1.0 if i2 == j2 else -1.0
-                    t[0, 1] += s * D[0, i2, j2]
-                    t[0, 2] += s * D[1, i2, j2]
-                    t[1, 2] += s * D[2, i2, j2]
-            t[1, 0] = t[0, 1]
-            t[2, 0] = t[0, 2]
-            t[2, 1] = t[1, 2]
-        for a in range(3):
-            for b in range(3):
-                T[i, a, b] = scale * t[a, b]
+    n_chunks = (n + _CHUNK - 1) // _CHUNK
+    for c in prange(n_chunks):
+        t = np.empty((3, 3))
+        D = np.empty((3, 2, 2))
+        Om = np.empty((3, 2))
+        X = np.empty(2)
+        Y = np.empty(2)
+        Z = np.empty(2)
+        R = np.empty((2, 2, 2))
+        for i in range(c * _CHUNK, min(n, (c + 1) * _CHUNK)):
+            px = points[i, 0]
+            py = points[i, 1]
+            pz = points[i, 2]
+            t[:, :] = 0.0
+            nx, ny, nz = 0, 0, 0
+            if allow_quadrature:
+                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz)
+            if nx > 0:
+                _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t)
+            else:
+                _closed_form_parts(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R)
+                for k in range(2):
+                    s = 1.0 if k == 1 else -1.0
+                    for a in range(3):
+                        t[a, a] -= s * Om[a, k]
+                for i2 in range(2):
+                    for j2 in range(2):
+                        s = 1.0 if i2 == j2 else -1.0
+                        t[0, 1] += s * D[0, i2, j2]
+                        t[0, 2] += s * D[1, i2, j2]
+                        t[1, 2] += s * D[2, i2, j2]
+                t[1, 0] = t[0, 1]
+                t[2, 0] = t[0, 2]
+                t[2, 1] = t[1, 2]
+            for a in range(3):
+                for b in range(3):
+                    T[i, a, b] = scale * t[a, b]
     return T
 
 

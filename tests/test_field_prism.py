@@ -271,6 +271,9 @@ def test_quadrature_switch_is_seamless():
     Uq, gq = prism_field(pts, H, RHO, G)
     np.testing.assert_allclose(Uq, Uc, rtol=1e-12)
     assert np.all(np.linalg.norm(gq - gc, axis=1) < 1e-12 * np.linalg.norm(gc, axis=1))
+    Tc = fp._prism_gradient_kernel(pts, *H, RHO, G, False, fp._GL_NODES, fp._GL_WEIGHTS)
+    Tq = prism_gradient(pts, H, RHO, G)
+    assert np.all(np.abs(Tq - Tc).max(axis=(1, 2)) < 1e-11 * np.abs(Tc).max(axis=(1, 2)))
 
 
 @pytest.mark.parametrize("h", [[0.1, -0.1, 0.1], [0.1, 0.0, 0.1], [0.1, 0.2], [np.nan, 1, 1]])
