@@ -127,9 +127,18 @@ def outer_clearance(body, pivot) -> float:
 
 
 def regions(test_bodies, source_bodies, pivot) -> Separation:
-    """The inner reach of the test bodies and the outer clearance of the source bodies about `pivot`."""
-    reach = [(inner_reach(b, pivot), b.name) for b in test_bodies]
-    clear = [(outer_clearance(b, pivot), b.name) for b in source_bodies]
+    """How far the test bodies reach from `pivot` and how near the source bodies come, by their
+    actual extent (farthest and nearest points; a mesh source also by its convex hull). When the
+    reach is the smaller, a sphere about the pivot separates the groups at every turn, so no turn
+    can make them overlap. (The truncation bounds then use the sharper radii of `inner_reach` and
+    `outer_clearance`, which are never worse.)"""
+    reach = [(separation.farthest(b, pivot), b.name) for b in test_bodies]
+    clear = []
+    for b in source_bodies:
+        d = separation.nearest(b, pivot)
+        if b.shape.kind == "mesh" and d > 0:
+            d = min(d, separation.convex_hull_clearance(b, pivot))
+        clear.append((d, b.name))
     a, an = max(reach) if reach else (0.0, "")
     c, cn = min(clear) if clear else (math.inf, "")
     return Separation(float(a), float(c), an, cn)
