@@ -1,0 +1,652 @@
+"""`truepull report [SCENE] [--out DIR]`: the whole job in one go, into one folder.
+
+Check, compare at every position, a turn scan, the bias ranking, the reduction with its budget (when
+the scene has a [measurement]) and the fit of a recorded run (--data); figures (torque versus turn,
+the 3-D view, the fit, the budget as a bar chart), a Markdown report with tables and one JSON of
+everything. With no SCENE, the built-in demo. The folder is built beside its target and renamed into
+place, so it is written whole or not at all; a non-empty existing folder is replaced only with
+--force, and only when it holds an earlier truepull report.
+
+Each section calls the Python API of its verb. A section whose module is not part of this build is
+listed as not available, with the reason, rather than left out silently.
+"""
+
+from __future__ import annotations
+
+import argparse
+import contextlib
+import hashlib
+import io
+import json
+import math
+import os
+import shutil
+import sys
+import tempfile
+import time
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+
+import numpy as np
+
+from truepull.cli.output import dumps, fmt, print_json, save_figure_atomic, to_jsonable, write_atomic
+from truepull.geometry.errors import InputError
+from truepull.geometry.scene import load_scene
+
+HELP = "the whole job into a folder of Markdown, JSON and figures"
+DEFAULT_OUT = "truepull-report"
+SURVEY_RTOL = 1e-6
+SCAN_STEPS = 24
+MARKER = "report.json"
+
+CAUTIONS = (
+    "Lead is toxic: wear gloves when handling lead masses, keep food and drink away, wash your hands "
+    "afterwards, and use sealed or painted masses.",
+    "Heavy masses crush and tip: move them with rated lifting gear and fix them on secured mounts.",
+    "Laser optical levers: use low-power lasers only; never let the beam or its reflection reach an eye.",
+    "A loaded fiber can snap: keep the case closed and stand clear.",
+    "Local codes, your laboratory's safety rules and licensed practice come first.",
+)
+
+FIGURES = {
+    "scan": ("torque_vs_turn.png", "torque versus turn"),
+    "view": ("view.png", "3-D view"),
+    "fit": ("fit.png", "fit of the recorded run"),
+    "budget": ("budget.png", "uncertainty budget"),
+}
+
+
+def add_arguments(parser) -> None:
+    parser.add_argument("scene", metavar="SCENE", nargs="?",
+                        help="scene file (TOML); default: the built-in demo")
+    parser.add_argument("--out", metavar="DIR", default=DEFAULT_OUT,
+                        help=f"folder to write (default: {DEFAULT_OUT}); must not exist or be empty")
+    parser.add_argument("--force", action="store_true",
+                        help="replace DIR when it holds an earlier truepull report")
+    parser.add_argument("--data", metavar="CSV",
+                        help="recorded run to fit (columns time, angle, position as for `truepull fit`)")
+    parser.add_argument("--data-time-unit", default="s", help="unit of the run's time column (default: s)")
+    parser.add_argument("--data-angle-unit", default="rad", help="unit of the run's angle column (default: rad)")
+    parser.add_argument("--rtol", type=float, default=1e-9,
+                        help="engine tolerance of compare and the reduction (default: 1e-9)")
+    parser.add_argument("--survey-rtol", type=float, default=SURVEY_RTOL,
+                        help=f"engine tolerance of the turn scan, the bias ranking and the 3-D view's field "
+                             f"(default: {SURVEY_RTOL:g})")
+    parser.add_argument("--turn", metavar="START:STOP:STEP",
+                        help="turn scan in degrees (default: across the positions' turns)")
+    parser.add_argument("--samples", type=int, default=200,
+                        help="Monte Carlo draws of the budget (default: 200; 0 skips it)")
+    parser.add_argument("--workers", type=int, default=None,
+                        help="local worker processes (default: one per core)")
+    parser.add_argument("--no-view", action="store_true", help="skip the 3-D picture")
+    parser.add_argument("--no-bias", action="store_true", help="skip the bias ranking")
+
+
+# ------------------------------------------------------------------------------------------------
+# sections
+
+
+@dataclass
+class Section:
+    """One part of the report: its JSON data, its Markdown text, the figure files it wrote and
+    whether its computation reached the tolerance (None where no tolerance applies)."""
+
+    name: str
+    title: str
+    data: dict = field(default_factory=dict)
+    markdown: str = ""
+    figures: list[str] = field(default_factory=list)
+    reached: bool | None = None
+    available: bool = True
+    reason: str = ""
+    seconds: float = 0.0
+
+    def to_json(self) -> dict:
+        out = {"available": self.available, "seconds": self.seconds}
+        if not self.available:
+            out["reason"] = self.reason
+        out["reached"] = self.reached
+        out["figures"] = list(self.figures)
+        out.update(self.data)
+        return out
+
+
+class PieceMissing(Exception):
+    """A module that a section needs is not part of this build."""
+
+
+def _need(module: str):
+    """Import a truepull module a section depends on; PieceMissing when it is not there."""
+    import importlib
+
+    try:
+        return importlib.import_module(module)
+    except ModuleNotFoundError as exc:
+        if exc.name and exc.name.startswith("truepull"):
+            raise PieceMissing(f"{exc.name} is not part of this build") from None
+        raise
+
+
+@dataclass
+class Context:
+    """What every section reads: the scene, where it came from, the options and the folder."""
+
+    scene: object
+    scene_path: str
+    scene_text: str
+    args: argparse.Namespace
+    folder: Path
+    comparisons: list = field(default_factory=list)
+
+    @property
+    def lf(self) -> float:
+        return self.scene.length_factor
+
+    @property
+    def lu(self) -> str:
+        return self.scene.length_unit
+
+
+def _md_table(headers, rows, align=None) -> str:
+    align = align or ("l" + "r" * (len(headers) - 1))
+    marks = {"l": ":--", "r": "--:", "c": ":-:"}
+    lines = ["| " + " | ".join(str(h) for h in headers) + " |",
+             "|" + "|".join(marks[a] for a in align) + "|"]
+    for r in rows:
+        lines.append("| " + " | ".join(str(c).replace("|", "\\|") for c in r) + " |")
+    return "\n".join(lines)
+
+
+def _vec(v, factor=1.0, digits=6) -> str:
+    return "(" + ", ".join(fmt(float(x) / factor, digits) for x in np.asarray(v, float)) + ")"
+
+
+def _rel(err, value) -> float | None:
+    return float(abs(err) / abs(value)) if value else None
+
+
+# --- check ---------------------------------------------------------------------------------------
+
+def section_check(ctx: Context) -> Section:
+    from truepull.cli.check import check_data
+
+    s = Section("check", "Bodies and mass properties")
+    data = check_data(ctx.scene)
+    s.data = to_jsonable(data)
+    lf, lu = ctx.lf, ctx.lu
+    rows = []
+    for b, d in zip(ctx.scene.bodies, data["bodies"]):
+        kind = d["shape"] + (" (hole)" if b.is_hole else "")
+        principal = np.linalg.eigvalsh(np.asarray(d["inertia_com"])) / lf**2
+        rows.append([d["name"], d["group"], kind, fmt(d["mass"] * 1e3), fmt(d["volume"] / lf**3),
+                     _vec(d["com"], lf), " ".join(fmt(x, 5) for x in principal)])
+    parts = [_md_table(["body", "group", "shape", "mass (g)", f"volume ({lu}^3)", f"centre of mass ({lu})",
+                        f"principal moments (kg {lu}^2)"], rows, "lllrrll")]
+    grows = [[name, fmt(g["mass"] * 1e3), _vec(g["com"], lf), fmt(g["inertia_axis"] / lf**2)]
+             for name, g in data["groups"].items()]
+    parts.append(_md_table(["group", "net mass (g)", f"centre of mass ({lu})",
+                            f"moment of inertia about the fiber axis (kg {lu}^2)"], grows, "lrlr"))
+    if ctx.scene.positions:
+        prow = [[p.name, p.group, fmt(p.turn.value / ctx.scene.angle_factor), ctx.scene.angle_unit,
+                 _vec([c.value for c in p.shift], lf)] for p in ctx.scene.positions]
+        parts.append(_md_table(["position", "group", "turn", "unit", f"shift ({lu})"], prow, "llrll"))
+    if data["warnings"]:
+        parts.append("Warnings:\n\n" + "\n".join(f"- {w}" for w in data["warnings"]))
+    else:
+        parts.append("No warnings.")
+    s.markdown = "\n\n".join(parts)
+    return s
+
+
+# --- compare -------------------------------------------------------------------------------------
+
+def section_compare(ctx: Context) -> Section:
+    from truepull.integrate.interaction import compare_positions
+
+    s = Section("compare", "Exact interaction beside the point-mass model")
+    comps = compare_positions(ctx.scene, rtol=ctx.args.rtol)
+    ctx.comparisons = comps
+    results = [c.to_json() for c in comps]
+    worst = [x for c in comps for x in (_rel(c.error.torque_axis, c.exact.torque_axis),
+                                        _rel(c.error.stiffness_axis, c.exact.stiffness_axis)) if x is not None]
+    s.reached = all(c.reached for c in comps)
+    s.data = {"rtol": ctx.args.rtol, "largest_relative_error": max(worst) if worst else None, "results": results}
+    head = ["position", "torque exact (N m)", "torque point (N m)", "exact/point", "error (N m)",
+            "stiffness exact (N m/rad)", "stiffness point (N m/rad)", "exact/point", "|force| (N)", "reached"]
+    rows = []
+    for c in comps:
+        corr = c.correction
+        rows.append([c.position or "as drawn", fmt(c.exact.torque_axis, 10), fmt(c.point.torque_axis, 10),
+                     fmt(corr["torque_axis"], 8), fmt(c.error.torque_axis, 2), fmt(c.exact.stiffness_axis, 8),
+                     fmt(c.point.stiffness_axis, 8), fmt(corr["stiffness_axis"], 8),
+                     fmt(float(np.linalg.norm(c.exact.force)), 8), "yes" if c.reached else "NO"])
+    parts = [f"Test group `{comps[0].test}`, source group `{comps[0].source}`; torque about the fiber axis, "
+             f"stiffness -d(torque)/d(turn of the test group); requested tolerance {ctx.args.rtol:g}.",
+             _md_table(head, rows, "l" + "r" * 8 + "l")]
+    for c in comps:
+        total = c.exact.torque_axis
+        prow = []
+        for p in c.pairs:
+            t = p.torque_axis(c.axis)
+            share = f"{100 * t / total:.3g} %" if total else "-"
+            prow.append([p.test, p.source, fmt(t, 8), share, p.method])
+        where = f"position {c.position}" if c.position else "the scene as drawn"
+        parts.append(f"Pairs at {where}:\n\n" + _md_table(["test body", "source body", "torque (N m)", "share",
+                                                           "method"], prow, "llrrl"))
+        for n in c.notes:
+            parts.append(f"Note ({where}): {n}")
+    s.markdown = "\n\n".join(parts)
+    return s
+
+
+# --- scan ----------------------------------------------------------------------------------------
+
+def default_turns(scene) -> tuple[str, tuple[float, ...]]:
+    """(moving group, turn values in degrees): across the turns of the first moving group's
+    positions in SCAN_STEPS steps, or a whole turn in 15-degree steps."""
+    group = scene.positions[0].group if scene.positions else "attractor"
+    turns = [math.degrees(p.turn.value) for p in scene.positions if p.group == group]
+    lo, hi = (min(turns), max(turns)) if turns else (0.0, 0.0)
+    if hi - lo < 1e-9:
+        return group, tuple(float(v) for v in np.arange(-180.0, 180.0 + 1e-9, 15.0))
+    return group, tuple(float(v) for v in np.linspace(lo, hi, SCAN_STEPS + 1))
+
+
+def section_scan(ctx: Context) -> Section:
+    scans = _need("truepull.integrate.scans")
+    from truepull.cli.scan import csv_text, write_png
+
+    s = Section("scan", "Torque versus turn")
+    scene = ctx.scene
+    group, shown = default_turns(scene)
+    if ctx.args.turn:
+        shown = scans.parse_range(ctx.args.turn, "--turn", scene.path)
+    if group not in scene.groups():
+        s.available, s.reason = False, f"no group '{group}' to turn"
+        return s
+    sweep = scans.Sweep("turn", tuple(math.radians(v) for v in shown), group)
+    result = scans.scan(scene, sweep, rtol=ctx.args.survey_rtol, workers=ctx.args.workers,
+                        scene_path=ctx.scene_path, progress=False)
+    png, caption = FIGURES["scan"]
+    write_png(str(ctx.folder / png), result, shown, "deg", f"{scene.title or scene.path}: turn of {group}")
+    write_atomic(ctx.folder / "scan.csv", csv_text(result, shown))
+    s.figures = [png, "scan.csv"]
+    s.reached = bool(result.reached)
+    rows = [dict(r.to_json(), value=float(v)) for v, r in zip(shown, result.rows)]
+    s.data = {"group": group, "unit": "deg", "method": result.method, "degree": result.degree,
+              "rtol": ctx.args.survey_rtol, "notes": list(result.notes), "rows": rows}
+    exact = np.array([r.exact_torque_axis for r in result.rows], float)
+    finite = np.isfinite(exact)
+    parts = [f"Turn of `{group}` about the fiber axis from {fmt(shown[0])} to {fmt(shown[-1])} deg, "
+             f"{len(shown)} values, by {result.method} integration at tolerance {ctx.args.survey_rtol:g}; "
+             f"the table is in `scan.csv`.", f"![{caption}]({png})"]
+    if finite.any():
+        k = int(np.nanargmax(np.abs(np.where(finite, exact, np.nan))))
+        r = result.rows[k]
+        ratio = r.exact_torque_axis / r.point_torque_axis if r.point_torque_axis else float("nan")
+        parts.append(f"Largest torque {fmt(r.exact_torque_axis, 8)} N m at {fmt(shown[k])} deg "
+                     f"(point model {fmt(r.point_torque_axis, 8)} N m, exact/point {fmt(ratio, 8)}).")
+    parts += [f"Note: {n}" for n in result.notes]
+    s.markdown = "\n\n".join(parts)
+    return s
+
+
+# --- bias ----------------------------------------------------------------------------------------
+
+BIAS_ROWS_SHOWN = 15
+
+
+def section_bias(ctx: Context) -> Section:
+    sens = _need("truepull.integrate.sensitivity")
+    s = Section("bias", "What moves the result")
+    result = sens.sensitivities(ctx.scene, rtol=ctx.args.survey_rtol, workers=ctx.args.workers,
+                                scene_path=ctx.scene_path, progress=False)
+    s.data = result.to_json()
+    where = f"position {result.position}" if result.position else "the scene as drawn"
+    head = ["body", "parameter", "value (SI)", "d torque / d parameter", "u (SI)", "torque ppm", "G ppm"]
+    rows = [[r.body, r.parameter, fmt(r.value, 6), fmt(r.d_torque_axis, 6), fmt(r.u, 3) if r.u else "-",
+             "-" if r.torque_ppm is None else f"{r.torque_ppm:+.4g}",
+             "-" if r.G_ppm is None else f"{r.G_ppm:+.4g}"] for r in result.rows[:BIAS_ROWS_SHOWN]]
+    parts = [f"Sensitivity of the torque about the fiber axis at {where} "
+             f"({fmt(result.torque_axis, 10)} N m) to each body's placement, size and density, ranked by the "
+             f"change a stated uncertainty makes (ppm per u); derivatives per SI unit, at tolerance "
+             f"{ctx.args.survey_rtol:g}." + (f" G model: {result.G_model}." if result.G_model else ""),
+             _md_table(head, rows, "llrrrrr")]
+    if len(result.rows) > BIAS_ROWS_SHOWN:
+        parts.append(f"The {BIAS_ROWS_SHOWN} largest of {len(result.rows)} rows; all are in report.json.")
+    parts += [f"Note: {n}" for n in result.notes]
+    s.markdown = "\n\n".join(parts)
+    return s
+
+
+# --- reduce --------------------------------------------------------------------------------------
+
+def section_reduce(ctx: Context) -> Section:
+    red = _need("truepull.integrate.reduction")
+    bud = _need("truepull.integrate.reduction_budget")
+    s = Section("reduce", "G from the measurement")
+    scene = ctx.scene
+    reduction = red.reduce_measurement(scene, rtol=ctx.args.rtol)
+    data = reduction.to_json()
+    budget = bud.reduction_budget(scene, reduction, ctx.scene_text, samples=ctx.args.samples,
+                                  workers=ctx.args.workers, progress=False)
+    data.update(budget.to_json(reduction.G))
+    s.data = data
+    s.reached = bool(reduction.reached)
+    G, u = data["G"], data["u_G"]
+    unit = "m^3 kg^-1 s^-2"
+    parts = [f"**G = {G:.9g} {unit}**" + (f" ± {u:.3g} ({u / G * 1e6:.3g} ppm, GUM, k = 1)" if u else "")
+             + f"; method {data['method']}; numerical error about {data['numerical_error'] / G * 1e6:.2g} ppm "
+             f"at engine tolerance {data['rtol']:g}" + ("" if data["reached"] else " (NOT reached everywhere)") + "."]
+    mc = data.get("monte_carlo")
+    if mc:
+        lo, hi = mc["interval_95"]
+        parts.append(f"Monte Carlo (JCGM 101): u = {mc['u_G']:.3g} ({mc['u_G_ppm']:.3g} ppm), mean {mc['mean']:.9g}, "
+                     f"95 % interval [{lo:.9g}, {hi:.9g}], {mc['draws']} draws.")
+    if data["G_point"] is not None:
+        parts.append(f"Point-mass value (textbook formula): G_point = {data['G_point']:.9g} {unit}. "
+                     "The corrections below take it to G; their product is exact.")
+    crow = [[c["name"], fmt(c["factor"], 12), f"{c['ppm']:+.3f}", "yes" if c["applied"] else "no input", c["note"]]
+            for c in data["corrections"]]
+    parts.append(_md_table(["correction", "factor", "ppm", "applied", "note"], crow, "lrrll"))
+    prow = [[p["position"], fmt(p["equilibrium"] * 1e3, 9), fmt(p["torque_axis"], 6), fmt(p["stiffness_axis"], 6)]
+            for p in data["positions"]]
+    parts.append(_md_table(["position", "equilibrium (mrad)", "torque (N m)", "stiffness (N m/rad)"], prow, "lrrr"))
+    parts.append(f"Moment of inertia {fmt(data['inertia'], 9)} kg m^2 (as points: {fmt(data['inertia_point'], 9)}); "
+                 f"fiber constant {fmt(data['fiber_constant'], 9)} N m/rad.")
+    if data["budget"]:
+        brow = [[b["input"], fmt(b["value"], 9), fmt(b["u"], 3), b["unit"], fmt(b["sensitivity"], 4),
+                 f"{b['contribution_ppm']:.3g}", f"{b['share'] * 100:.1f} %"]
+                for b in sorted(data["budget"], key=lambda b: -b["contribution"])]
+        parts.append("Uncertainty budget (JCGM 100, linear propagation):\n\n" +
+                     _md_table(["input", "value", "u", "unit", "sensitivity", "ppm of G", "share"], brow, "lrrlrrr"))
+        png, caption = FIGURES["budget"]
+        budget_png(ctx.folder / png, data["budget"], G)
+        s.figures.append(png)
+        parts.append(f"![{caption}]({png})")
+    parts += [f"Note: {n}" for n in list(data.get("notes", [])) + list(data.get("budget_notes", []))]
+    s.markdown = "\n\n".join(parts)
+    return s
+
+
+def budget_png(path, rows, G: float, top: int = 20) -> None:
+    """Horizontal bars: each input's contribution to u(G) in ppm, largest at the top."""
+    from matplotlib.figure import Figure
+
+    rows = sorted(rows, key=lambda b: -b["contribution"])[:top][::-1]
+    names = [b["input"] for b in rows]
+    ppm = [b["contribution_ppm"] for b in rows]
+    fig = Figure(figsize=(8, 0.9 + 0.32 * max(len(rows), 1)), layout="constrained")
+    ax = fig.subplots()
+    ax.barh(range(len(rows)), ppm, color="C0")
+    ax.set_yticks(range(len(rows)), names, fontsize=8)
+    ax.set_xlabel("contribution to u(G) (ppm of G)")
+    ax.set_title(f"uncertainty budget of G = {G:.7g} m^3 kg^-1 s^-2", fontsize=10)
+    ax.grid(True, axis="x", alpha=0.3)
+    save_figure_atomic(fig, path, dpi=110)
+
+
+# --- fit -----------------------------------------------------------------------------------------
+
+def section_fit(ctx: Context) -> Section:
+    from truepull.cli import fit as fit_cli
+    from truepull.integrate.fitting import fit_record
+
+    s = Section("fit", "Fit of the recorded run")
+    parser = argparse.ArgumentParser()
+    fit_cli.add_arguments(parser)
+    fargs = parser.parse_args([ctx.args.data, "--time-unit", ctx.args.data_time_unit,
+                               "--angle-unit", ctx.args.data_angle_unit])
+    t, angle, labels, lines, column = fit_cli.load_run(fargs)
+    fits = fit_record(t, angle, labels, file=ctx.args.data, time_key=fargs.time_column, angle_key=column,
+                      line_numbers=lines)
+    png, caption = FIGURES["fit"]
+    fit_cli.write_png(str(ctx.folder / png), fits, t, angle, fargs.time_unit, fargs.angle_unit)
+    s.figures = [png]
+    s.data = {"data": str(ctx.args.data), "segments": [f.as_dict() for f in fits]}
+    rows = [[k, f.position or "-", fmt(f.t_start), fmt(f.t_end), f.n_points, f"{fmt(f.period)} ± {fmt(f.u_period, 2)}",
+             f"{fmt(f.decrement)} ± {fmt(f.u_decrement, 2)}", f"{fmt(f.equilibrium)} ± {fmt(f.u_equilibrium, 2)}",
+             fmt(f.residual_rms, 3)] for k, f in enumerate(fits, start=1)]
+    parts = [f"`{Path(ctx.args.data).name}`: a damped sinusoid with drift and offset per segment of one position "
+             "(SI: s, rad; standard uncertainties).",
+             _md_table(["#", "position", "from (s)", "to (s)", "points", "period (s)", "decrement",
+                        "equilibrium (rad)", "residual rms (rad)"], rows, "rlrrrrrrr"),
+             f"![{caption}]({png})"]
+    parts += [f"Note (segment {k}): {f.note}" for k, f in enumerate(fits, start=1) if f.note]
+    named = [f for f in fits if f.position is not None]
+    known = {p.name for p in ctx.scene.positions}
+    if len({f.position for f in named}) >= 2 and {f.position for f in named} <= known:
+        block, notes = fit_cli.measurement_block(tuple(named), None, Path(ctx.args.data).name, {})
+        s.data["measurement_block"] = block
+        parts.append("A `[measurement]` table from this fit (`truepull fit --into` writes it into a new scene):\n\n"
+                     "```toml\n" + block + "```")
+        parts += [f"Note: {n}" for n in notes]
+    s.markdown = "\n\n".join(parts)
+    return s
+
+
+# --- view ----------------------------------------------------------------------------------------
+
+def section_view(ctx: Context) -> Section:
+    view = _need("truepull.cli.view")
+    s = Section("view", "3-D view")
+    png, caption = FIGURES["view"]
+    parser = argparse.ArgumentParser()
+    view.add_arguments(parser)
+    argv = [ctx.scene_path, "--png", str(ctx.folder / png), "--rtol", repr(ctx.args.survey_rtol)]
+    position = ctx.scene.positions[0].name if ctx.scene.positions else None
+    if position:
+        argv += ["--position", position]
+    vargs = parser.parse_args(argv)
+    vargs.json = True
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        code = view.run(vargs)
+    if code != 0 or not (ctx.folder / png).is_file():
+        why = " ".join(err.getvalue().split()) or f"truepull view ended with code {code}"
+        s.available, s.reason = False, f"the 3-D picture could not be drawn here: {why}"
+        return s
+    s.data = json.loads(out.getvalue())
+    s.data["files"] = {"png": png}
+    s.figures = [png]
+    where = f" at position {position}" if position else ""
+    s.markdown = (f"The bodies{where} in their group colours, the field of the attractor on a plane through the "
+                  f"pendulum's centre of mass, and the net force and torque on the pendulum (engine tolerance "
+                  f"{ctx.args.survey_rtol:g}).\n\n![{caption}]({png})")
+    return s
+
+
+# ------------------------------------------------------------------------------------------------
+# the folder, written whole or not at all
+
+
+def _is_inside(path: Path, folder: Path) -> bool:
+    try:
+        path.resolve().relative_to(folder.resolve())
+        return True
+    except ValueError:
+        return False
+
+
+def check_target(out: Path, force: bool, inputs) -> None:
+    """Refuse a target we must not replace (InputError naming --out)."""
+    if out.exists() and not out.is_dir():
+        raise InputError(str(out), "--out", "exists and is not a folder")
+    for p in inputs:
+        if p and _is_inside(Path(p), out):
+            raise InputError(str(out), "--out", f"the input {p} lies inside it; choose another folder")
+    if out.is_dir() and any(out.iterdir()):
+        if not force:
+            raise InputError(str(out), "--out", "already exists and is not empty; add --force to replace it")
+        marker = out / MARKER
+        try:
+            ok = json.loads(marker.read_text()).get("tool", {}).get("name") == "truepull"
+        except (OSError, ValueError, AttributeError):
+            ok = False
+        if not ok:
+            raise InputError(str(out), "--out", "holds files that are not a truepull report; not replacing it, "
+                                                "even with --force")
+
+
+def replace_folder(tmp: Path, out: Path) -> None:
+    """Move the finished folder `tmp` into place at `out` (replacing an earlier report there)."""
+    if out.is_dir() and any(out.iterdir()):
+        old = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=out.parent))
+        os.rmdir(old)
+        os.rename(out, old)
+        try:
+            os.rename(tmp, out)
+        except BaseException:
+            os.rename(old, out)
+            raise
+        shutil.rmtree(old, ignore_errors=True)
+    else:
+        os.replace(tmp, out)  # out absent, or an empty folder
+
+
+# ------------------------------------------------------------------------------------------------
+# the verb
+
+
+def _version() -> str:
+    try:
+        from importlib.metadata import version
+
+        return version("truepull")
+    except Exception:
+        return "unknown"
+
+
+def _validate(args) -> None:
+    for key, value in (("--rtol", args.rtol), ("--survey-rtol", args.survey_rtol)):
+        if not (value > 0 and math.isfinite(value)):
+            raise InputError(None, key, "the tolerance must be a finite number greater than zero")
+    if args.samples < 0:
+        raise InputError(None, "--samples", f"must be 0 or more, got {args.samples}")
+    if args.workers is not None and args.workers < 1:
+        raise InputError(None, "--workers", "must be 1 or more")
+    if args.data is not None and not Path(args.data).is_file():
+        raise InputError(args.data, "--data", "data file not found" if not Path(args.data).exists() else "not a file")
+
+
+def plan(scene, args) -> list:
+    """The sections to run, in report order."""
+    steps = [section_check, section_compare, section_scan]
+    if not args.no_bias:
+        steps.append(section_bias)
+    if args.data:
+        steps.append(section_fit)
+    if scene.measurement is not None:
+        steps.append(section_reduce)
+    if not args.no_view:
+        steps.append(section_view)
+    return steps
+
+
+def _progress(msg: str) -> None:
+    sys.stderr.write(f"truepull report: {msg}\n")
+    sys.stderr.flush()
+
+
+def build(ctx: Context) -> list[Section]:
+    sections = []
+    for step in plan(ctx.scene, ctx.args):
+        start = time.perf_counter()
+        name = step.__name__.removeprefix("section_")
+        _progress(f"{name} ...")
+        try:
+            s = step(ctx)
+        except PieceMissing as exc:
+            s = Section(name, name, available=False, reason=str(exc))
+        s.seconds = round(time.perf_counter() - start, 3)
+        _progress(f"{name} done in {s.seconds:.1f} s" + ("" if s.available else f" (not available: {s.reason})"))
+        sections.append(s)
+    return sections
+
+
+def summary(ctx: Context, sections: list[Section], started: float) -> dict:
+    reached = [s.reached for s in sections if s.reached is not None]
+    missing = [{"section": s.name, "reason": s.reason} for s in sections if not s.available]
+    if ctx.scene.measurement is None:
+        missing.append({"section": "reduce", "reason": "the scene has no [measurement] table"})
+    if not ctx.args.data:
+        missing.append({"section": "fit", "reason": "no recorded run given (--data CSV)"})
+    return {
+        "tool": {"name": "truepull", "version": _version()},
+        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "scene": {"path": ctx.scene_path, "title": ctx.scene.title,
+                  "sha256": hashlib.sha256(ctx.scene_text.encode("utf-8")).hexdigest()},
+        "rtol": ctx.args.rtol, "survey_rtol": ctx.args.survey_rtol,
+        "tolerance_reached": all(reached) if reached else None,
+        "seconds": round(time.perf_counter() - started, 3),
+        "not_included": missing,
+        "sections": {s.name: s.to_json() for s in sections},
+        "cautions": list(CAUTIONS),
+    }
+
+
+def markdown(ctx: Context, sections: list[Section], info: dict) -> str:
+    scene = ctx.scene
+    reached = info["tolerance_reached"]
+    lines = [f"# truepull report: {scene.title or Path(ctx.scene_path).name}", "",
+             f"- scene: `{ctx.scene_path}` (sha256 {info['scene']['sha256'][:16]}...)",
+             f"- tool: truepull {info['tool']['version']}; written {info['created']} in {info['seconds']:.1f} s",
+             f"- engine tolerance: {ctx.args.rtol:g} for compare and the reduction, {ctx.args.survey_rtol:g} for the "
+             f"scan, the bias ranking and the 3-D field; reached: "
+             + ("yes, everywhere" if reached else "NO, see the sections marked" if reached is False else "-"),
+             "- units: SI in the tables unless a column says otherwise; lengths of the scene in "
+             f"{scene.length_unit}", "",
+             "Safety first: see the cautions at the end of this report.", ""]
+    if info["not_included"]:
+        lines += ["Not included:", ""]
+        lines += [f"- {m['section']}: {m['reason']}" for m in info["not_included"]]
+        lines.append("")
+    for s in sections:
+        if not s.available:
+            continue
+        flag = "" if s.reached is not False else " (tolerance NOT reached)"
+        lines += [f"## {s.title}{flag}", "", s.markdown, ""]
+    lines += ["## Cautions", ""] + [f"- {c}" for c in CAUTIONS] + [""]
+    lines += ["Files: `report.json` holds every number above and more (SI units)."
+              + ("" if not any(s.figures for s in sections) else " Figures: "
+                 + ", ".join(f"`{f}`" for s in sections for f in s.figures) + "."), ""]
+    return "\n".join(lines)
+
+
+def run(args) -> int:
+    _validate(args)
+    if args.scene is None:
+        from truepull.shapes import demo_path
+
+        scene_path = str(demo_path())
+    else:
+        scene_path = args.scene
+    scene = load_scene(scene_path)
+    scene_text = Path(scene_path).read_text(encoding="utf-8")
+    out = Path(args.out)
+    check_target(out, args.force, [scene_path, args.data])
+    out.parent.mkdir(parents=True, exist_ok=True)
+    started = time.perf_counter()
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.tmp-", dir=out.parent))
+    try:
+        ctx = Context(scene, scene_path, scene_text, args, tmp)
+        sections = build(ctx)
+        info = summary(ctx, sections, started)
+        files = sorted(p.name for p in tmp.iterdir()) + ["report.md", MARKER]
+        info["files"] = sorted(set(files))
+        write_atomic(tmp / "report.md", markdown(ctx, sections, info))
+        write_atomic(tmp / MARKER, dumps(info))
+        check_target(out, args.force, [])  # nothing new appeared there meanwhile
+        replace_folder(tmp, out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    if args.json:
+        print_json(dict(info, out=str(out)))
+    else:
+        print(f"wrote {out}/: {', '.join(info['files'])}")
+        print(f"tolerance reached: {'yes' if info['tolerance_reached'] else 'no' if info['tolerance_reached'] is False else '-'}")
+        for m in info["not_included"]:
+            print(f"not included: {m['section']}: {m['reason']}")
+    return 0
