@@ -14,9 +14,11 @@ density or mass), and for the turn of each moving group:
   and the step is halved until the displaced bodies do not overlap;
 - density and mass: exact, since the torque is linear in them: d tau / d rho = tau_b / rho, with
   tau_b the torque of the body's own pairs;
-- turn of a group about the frame axis: exact, d tau / d phi = K for the source group (the stiffness
-  the engine returns: the torque depends on the difference of the two groups' turns) and -K for
-  the test group.
+- the turn of each position (parameter "turn[NAME]", body = the group it turns; "turn" of the
+  source group when the scene has no positions): exact, d tau / d phi = K for the source group (the
+  stiffness the engine returns: the torque depends on the difference of the two groups' turns) and
+  -K for the test group, at that position (zero for the torque at another position). The G column
+  of a turn is left empty for a swing measurement (it would need the stiffness' own derivative).
 ppm of torque per stated uncertainty: 1e6 * d * u / tau.
 
 G, when the scene has a measurement, to first order (the "first-order G model"):
@@ -451,28 +453,25 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
         rows.append(_row(b.name, key, meas, d_all[0, 0], err, None, tau0, lnG, G,
                          "exact: the torque is linear in the " + key))
 
-    # turns of moving groups
-    moving = []
-    for p in scene.positions:
-        if p.group in (test, source) and p.group not in moving:
-            moving.append(p.group)
-    for grp in moving:
-        sign = 1.0 if grp == source else -1.0
-        pos_obj = scene.get_position(position) if isinstance(position, str) else None
-        turn = pos_obj.turn if (pos_obj is not None and pos_obj.group == grp) else None
-        from truepull.geometry.quantities import Measured
+    # turns: each position that turns the test or source group about the frame axis (its own stated
+    # uncertainty); without positions, the source group's turn as drawn
+    from truepull.geometry.quantities import Measured
 
-        meas = turn if turn is not None else Measured(0.0, None)
-        dq = np.array([sign * comps[p].exact.stiffness_axis for p in positions])
+    turns = [(p.group, f"turn[{p.name}]", p.name, p.turn) for p in scene.positions
+             if p.group in (test, source) and p.name in positions]
+    if not scene.positions:
+        turns = [(source, "turn", None, Measured(0.0, None))]
+    for grp, label, pname, meas in turns:
+        sign = 1.0 if grp == source else -1.0
+        k = sign * comps[pname].exact.stiffness_axis
+        d_here = k if pname == position else 0.0
         lnG = None
-        if model is not None:
-            # each position turns its own group; a change of the turn of group grp moves all of them alike
-            if model.quantity == "torque":
-                lnG = dlnG(0.0, dq[model_i])
-            else:
-                lnG = None  # the stiffness' own turn derivative is not computed
-        rows.append(_row(grp, "turn", meas, dq[0], c0.error.stiffness_axis, None, tau0, lnG, G,
-                         f"exact: d(torque)/d(turn) = {'+' if sign > 0 else '-'}stiffness"))
+        if model is not None and model.quantity == "torque":
+            dq = np.array([k if p == pname else 0.0 for p in model.positions])
+            lnG = dlnG(0.0, dq)
+        err = comps[pname].error.stiffness_axis if pname == position else 0.0
+        rows.append(_row(grp, label, meas, d_here, err, None, tau0, lnG, G,
+                         f"exact: d(torque)/d(turn) = {'+' if sign > 0 else '-'}stiffness at that position"))
 
     notes = []
     if model is not None:

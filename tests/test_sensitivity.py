@@ -115,7 +115,7 @@ def test_turn_sensitivity_is_the_derivative_of_newton():
     text = POINTS + '[[position]]\nname = "A"\ngroup = "attractor"\nturn = "10 +- 0.01"\n'
     test, source, sc = _pairs_of(text)
     res = sensitivities(sc, workers=1, bodies=["M1"])
-    row = next(r for r in res.rows if r.parameter == "turn")
+    row = next(r for r in res.rows if r.parameter == "turn[A]")
     assert row.body == "attractor" and row.u == pytest.approx(math.radians(0.01))
 
     def tau_at(phi):
@@ -301,6 +301,12 @@ def test_g_columns_follow_the_first_order_model():
     dlnG = -(dA - dB) / delta
     assert row.G_ppm == pytest.approx(1e6 * dlnG * 0.001, rel=1e-9)
     assert row.d_G == pytest.approx(G * dlnG, rel=1e-9)
+    # the turn of position B: d ln G / d turn_B = +K_B / (tau_A - tau_B), K_B = d tau_B / d turn (Newton)
+    turn_b = next(r for r in res.rows if r.parameter == "turn[B]")
+    h = 1e-4
+    K_B = (_newton_tau(test, _turned(source, -20 + h)) - _newton_tau(test, _turned(source, -20 - h))) / math.radians(2 * h)
+    assert turn_b.d_torque_axis == 0.0 and turn_b.u is None and turn_b.G_ppm is None
+    assert turn_b.d_G == pytest.approx(G * K_B / delta, rel=1e-6)
 
 
 def test_what_ifs_refuse_impossible_changes():
