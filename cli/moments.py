@@ -13,7 +13,20 @@ from __future__ import annotations
 import numpy as np
 
 from truepull.cli.output import fmt, format_table
-from truepull.integrate.multipoles import moments_table
+from truepull.geometry.errors import InputError
+from truepull.integrate.multipoles import MAX_DEGREE, moments_table
+
+
+def _degree(scene, degree) -> int:
+    """The degree as a whole number in 0..MAX_DEGREE, or InputError naming --moments."""
+    try:
+        d = int(degree)
+    except (TypeError, ValueError):
+        raise InputError(scene.path, "--moments", f"the degree must be a whole number, got {degree!r}") from None
+    if d != degree and not isinstance(degree, str) or not 0 <= d <= MAX_DEGREE:
+        raise InputError(scene.path, "--moments", f"the degree must be a whole number from 0 to {MAX_DEGREE}, "
+                                                  f"got {degree!r}")
+    return d
 
 
 def _entries(moments, degree: int, small: float):
@@ -35,7 +48,8 @@ def _entries(moments, degree: int, small: float):
 def moments_json(scene, degree: int, test: str = "pendulum", source: str = "attractor", position=None) -> dict:
     """The moments as JSON-ready data (SI): {"degree", "pivot", "axis", "inner_radius", "outer_radius",
     "valid", "reason", "inner": [{"l", "m", "re", "im", "error"}], "outer": [...] or null, "outer_reason"}."""
-    t = moments_table(scene, int(degree), test, source, position)
+    degree = _degree(scene, degree)
+    t = moments_table(scene, degree, test, source, position)
 
     def listing(mom):
         if mom is None:
@@ -52,7 +66,8 @@ def moments_json(scene, degree: int, test: str = "pendulum", source: str = "attr
 
 def format_moments(scene, degree: int, test: str = "pendulum", source: str = "attractor", position=None) -> str:
     """A readable table of the moments (values below 1e-12 of the largest of their degree left out)."""
-    t = moments_table(scene, int(degree), test, source, position)
+    degree = _degree(scene, degree)
+    t = moments_table(scene, degree, test, source, position)
     lines = [f"multipole moments about the pivot, degree <= {degree} (z = frame axis, orthonormal Y_lm, "
              "Condon-Shortley phase; m >= 0 shown, X_l,-m = (-1)^m conj(X_lm))",
              f"{test} reaches {fmt(t['inner_radius'], 6)} m from the pivot; {source} comes within "

@@ -314,3 +314,21 @@ def test_interleaved_regions_are_refused_with_a_reason():
         body_outer_moments(sc2.body("block"), ExpansionFrame.of(sc2.frame.pivot, sc2.frame.axis), 4)
     t = moments_table(sc2, 3)
     assert t["outer"] is None and "reaches the pivot" in t["outer_reason"]
+
+
+def test_moments_display_and_json(tmp_path):
+    # the point-pair closed form again, through the display layer the compare verb uses
+    from truepull.cli.moments import format_moments, moments_json
+    from truepull.geometry.errors import InputError
+
+    sc = _points_scene([(0.25, (0.04, 0, 0)), (0.25, (-0.04, 0, 0))], [(1.0, (0, 0.3, 0))])
+    data = moments_json(sc, 4)
+    assert data["valid"] and data["outer"] is not None
+    q22 = next(e for e in data["inner"] if (e["l"], e["m"]) == (2, 2))
+    ref = 2 * 0.25 * 0.04**2 * np.conj(sph_harm_y(2, 2, np.pi / 2, 0.0))  # scipy.special
+    assert abs(complex(q22["re"], q22["im"]) - ref) < 1e-15
+    text = format_moments(sc, 2)
+    assert "inner moments q_lm of pendulum" in text and "outer moments Q_lm of attractor" in text
+    for bad in (-1, 2.5, "x", 1000):
+        with pytest.raises(InputError):
+            moments_json(sc, bad)
