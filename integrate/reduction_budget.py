@@ -1,0 +1,269 @@
+"""The uncertainty budget of a reduced G: every stated `+-` of the scene through the whole model.
+
+Inputs (SI, standard uncertainties k = 1, only those the scene states with a nonzero u): each body's
+parameters of the pendulum and attractor groups as bias names them (geometry.bodies.body_parameters:
+at.x, at.y, at.z, size keys, density or mass) and its rotate.angle; the turn and shift of each
+measured position; the measured angles, periods, decrement, amplitudes and fiber Q.
+
+The model G(x) rebuilds the scene with the input values (bodies.spec_with + build_body, positions
+replaced), recomputes the moment of inertia and the exact torque curves at the nominal reduction's
+equilibrium samples (budget_nodes), and solves the exact reduction (reduction.final_G). It is a top-level
+function of (context, x), the context holding the scene text, so it can run in worker processes and
+on a Dask cluster. Curves are cached per geometry, so stepping a measured value costs no engine work.
+
+- GUM (JCGM 100:2008): sensitivities by Richardson central differences with steps of u/10, the
+  engine at the reduction's tolerance; the model's relative noise given to the derivative error
+  bound is the reduction's own numerical error estimate relative to G.
+- Monte Carlo (JCGM 101:2008): normal inputs, the engine at a looser tolerance (default 1e-6, so a
+  draw stays affordable; G's numerical error is then about that size relative, far below the
+  uncertainties a budget is for), seeded, parallel through executor.map_parallel.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+from functools import lru_cache, partial
+
+import numpy as np
+
+from truepull.geometry.bodies import body_parameters, build_body, spec_with
+from truepull.geometry.errors import InputError
+from truepull.geometry.quantities import Measured
+from truepull.integrate.reduction import (NODE_GAP, Reduction, StepUndefined, final_G, measurement_values,
+                                          observations, pendulum_inertia, per_unit_g)
+from truepull.integrate.torque_curve import sample_curve
+from truepull.integrate.uncertainty import Input, budget_table, gum_linear, monte_carlo
+
+MC_RTOL = 1e-6
+STEP_FRACTION = 0.1
+
+_UNITS = {"at": "m", "density": "kg/m^3", "mass": "kg", "rotate": "rad", "turn": "rad", "shift": "m"}
+
+
+@dataclass(frozen=True)
+class InputRef:
+    """One uncertain input: its budget name, what it changes (kind "body", "rotate", "turn", "shift" or
+    "measurement"), the body or position it belongs to, the parameter, value and u (SI), unit."""
+
+    name: str
+    kind: str
+    target: str
+    param: str
+    value: float
+    u: float
+    unit: str
+
+
+def uncertain_inputs(scene, test: str = "pendulum", source: str = "attractor",
+                     fiber_q: Measured | None = None) -> tuple[InputRef, ...]:
+    """Every input with a stated nonzero standard uncertainty that can change G."""
+    refs: list[InputRef] = []
+    for body in scene.bodies:
+        if body.group not in (test, source) or body.spec is None:
+            continue
+        spec = body.spec
+        for param, m in body_parameters(spec).items():
+            if m is not None and m.u:
+                unit = _UNITS.get(param.split(".")[0], "m")
+                refs.append(InputRef(f"body[{body.name}].{param}", "body", body.name, param, m.value, m.u, unit))
+        if spec.rotate_axis is not None and spec.rotate_angle.u:
+            refs.append(InputRef(f"body[{body.name}].rotate.angle", "rotate", body.name, "angle",
+                                 spec.rotate_angle.value, spec.rotate_angle.u, "rad"))
+    measured = measurement_values(scene, fiber_q)
+    used = _measured_positions(scene)
+    for pos in scene.positions:
+        if pos.name not in used or pos.group not in (test, source):
+            continue
+        if pos.turn.u:
+            refs.append(InputRef(f"position[{pos.name}].turn", "turn", pos.name, "turn", pos.turn.value,
+                                 pos.turn.u, "rad"))
+        for c, s in zip("xyz", pos.shift):
+            if s.u:
+                refs.append(InputRef(f"position[{pos.name}].shift.{c}", "shift", pos.name, c, s.value, s.u, "m"))
+    for name, m in measured.items():
+        if m.u:
+            kind = name.split(".")[1]
+            unit = {"angle": "rad", "period": "s", "amplitude": "rad"}.get(kind, "")
+            refs.append(InputRef(name, "measurement", "", name, m.value, m.u, unit))
+    return tuple(refs)
+
+
+def _measured_positions(scene) -> set[str]:
+    m = scene.measurement
+    return set(m.angle) if m.method == "deflection" else set(m.period)
+
+
+def apply_inputs(scene, refs, x) -> tuple[object, dict[str, float]]:
+    """(scene with the body and position inputs set to x, {measurement name: value})."""
+    specs: dict[str, object] = {}
+    positions = {p.name: p for p in scene.positions}
+    measured: dict[str, float] = {}
+    for ref, value in zip(refs, x):
+        value = float(value)
+        if ref.kind == "body":
+            spec = specs.get(ref.target, scene.body(ref.target).spec)
+            specs[ref.target] = spec_with(spec, ref.param, value)
+        elif ref.kind == "rotate":
+            spec = specs.get(ref.target, scene.body(ref.target).spec)
+            specs[ref.target] = replace(spec, rotate_angle=Measured(value, spec.rotate_angle.u))
+        elif ref.kind == "turn":
+            p = positions[ref.target]
+            positions[ref.target] = replace(p, turn=Measured(value, p.turn.u))
+        elif ref.kind == "shift":
+            p = positions[ref.target]
+            shift = list(p.shift)
+            i = "xyz".index(ref.param)
+            shift[i] = Measured(value, shift[i].u)
+            positions[ref.target] = replace(p, shift=tuple(shift))
+        else:
+            measured[ref.param] = value
+    bodies = tuple(build_body(specs[b.name]) if b.name in specs else b for b in scene.bodies)
+    new = replace(scene, bodies=bodies, positions=tuple(positions[p.name] for p in scene.positions))
+    return new, measured
+
+
+# ---------------------------------------------------------------------------------------------
+# the model, for worker processes
+
+
+@dataclass(frozen=True)
+class ModelContext:
+    """Everything the model needs besides x, as plain picklable, hashable values."""
+
+    scene_text: str
+    path: str
+    base_dir: str | None
+    test: str
+    source: str
+    rtol: float
+    refs: tuple[InputRef, ...]
+    nodes: tuple[tuple[float, ...], ...]
+    state: tuple[float, ...]
+    fiber_q: tuple[float, float | None] | None
+
+
+@lru_cache(maxsize=4)
+def _scene(text: str, path: str, base_dir: str | None):
+    from truepull.geometry.scene import load_scene_text
+
+    return load_scene_text(text, path, base_dir)
+
+
+@lru_cache(maxsize=8)
+def _geometry(context: ModelContext, geometry_values: tuple[float, ...]):
+    """(torque curves per position, moment of inertia) for one set of geometry inputs."""
+    scene = _scene(context.scene_text, context.path, context.base_dir)
+    refs = [r for r in context.refs if r.kind != "measurement"]
+    scene, _ = apply_inputs(scene, refs, geometry_values)
+    inertia, _ = pendulum_inertia(scene, context.test)
+    s1 = per_unit_g(scene)
+    obs_positions = _positions_in_order(scene)
+    curves = tuple(sample_curve(s1, p, n, context.test, context.source, context.rtol)
+                   for p, n in zip(obs_positions, context.nodes))
+    return curves, inertia, scene
+
+
+def _positions_in_order(scene) -> tuple[str, ...]:
+    m = scene.measurement
+    return tuple(m.angle) if m.method == "deflection" else tuple(m.period)
+
+
+def g_model(context: ModelContext, x) -> float:
+    """G (m^3 kg^-1 s^-2) for the input values x, in the order of context.refs."""
+    x = np.asarray(x, dtype=float)
+    geometry = tuple(float(v) for r, v in zip(context.refs, x) if r.kind != "measurement")
+    curves, inertia, scene = _geometry(context, geometry)
+    measured = {r.param: float(v) for r, v in zip(context.refs, x) if r.kind == "measurement"}
+    q = None if context.fiber_q is None else Measured(*context.fiber_q)
+    obs = observations(scene, q, measured, test=context.test)
+    try:
+        G, _ = final_G(obs, curves, inertia, context.state)
+    except StepUndefined:
+        return math.nan
+    return float(G)
+
+
+# ---------------------------------------------------------------------------------------------
+# the budget
+
+
+@dataclass(frozen=True)
+class Budget:
+    """u_G from the GUM (None without inputs), its rows (budget_table dicts), the Monte Carlo result
+    (None when not run), with the tolerances used and notes."""
+
+    u_G: float | None
+    u_G_error: float | None
+    rows: tuple[dict, ...]
+    gum_value: float | None
+    monte_carlo: object | None
+    mc_rtol: float
+    notes: tuple[str, ...] = ()
+
+    def to_json(self, G: float) -> dict:
+        out = {"u_G": self.u_G, "u_G_ppm": (self.u_G / G * 1e6 if self.u_G is not None else None),
+               "u_G_error": self.u_G_error,
+               "budget": [{k: row[k] for k in ("input", "value", "u", "unit", "sensitivity", "sensitivity_error",
+                                                 "contribution", "contribution_ppm", "share")} for row in self.rows]}
+        mc = self.monte_carlo
+        out["monte_carlo"] = None if mc is None else {
+            "mean": mc.value, "u_G": mc.u, "u_G_ppm": mc.u / G * 1e6, "interval_95": list(mc.interval),
+            "shortest_95": list(mc.shortest), "draws": mc.draws, "seed": mc.seed, "rtol": self.mc_rtol,
+            "stable": mc.stable, "tolerance_u": mc.tolerance.u}
+        out["budget_notes"] = list(self.notes)
+        return out
+
+
+def budget_nodes(scene, reduction: Reduction, fiber_q=None) -> tuple[tuple[float, ...], ...]:
+    """The turns at which the budget model samples each torque curve: the reduction's samples at the
+    equilibrium (and, for a swing of amplitude A, at the equilibrium -+ A), without the pose as drawn
+    when the pendulum hangs elsewhere. The model moves the equilibrium only by the small changes of the
+    inputs, over which the curve through these samples is exact to far below the uncertainties (its
+    error is second order in the move)."""
+    obs = observations(scene, None if fiber_q is None else Measured(*fiber_q))
+    out = []
+    for i, (nodes, theta) in enumerate(zip(reduction.nodes, reduction.equilibrium)):
+        reach = float(obs.amplitudes[i]) if obs.amplitudes is not None else 0.0
+        keep = tuple(t for t in nodes if abs(t - theta) <= reach * (1 + 1e-9) + NODE_GAP)
+        out.append(keep or nodes)
+    return tuple(out)
+
+
+def reduction_budget(scene, reduction: Reduction, scene_text: str, *, test: str = "pendulum",
+                     source: str = "attractor", fiber_q: Measured | None = None, samples: int = 200,
+                     seed: int | None = 0, mc_rtol: float = MC_RTOL, workers: int | None = None,
+                     scheduler=None, progress: bool = False) -> Budget:
+    """The GUM budget and (samples > 0) the Monte Carlo propagation for a reduction of `scene`, whose
+    TOML text is `scene_text`."""
+    if isinstance(samples, bool) or not isinstance(samples, int) or samples < 0:
+        raise InputError(scene.path, "--samples", f"must be a whole number of at least 0, got {samples!r}")
+    if not mc_rtol > 0:
+        raise InputError(scene.path, "--mc-rtol", "the tolerance must be greater than zero")
+    refs = uncertain_inputs(scene, test, source, fiber_q)
+    notes = []
+    if not refs:
+        return Budget(None, None, (), None, None, mc_rtol,
+                      ("the scene states no uncertainties (write values as '12.7 +- 0.01'), so there is no budget",))
+    others = [b.name for b in scene.bodies if b.group not in (test, source) and b.spec is not None
+              and any(m is not None and m.u for m in body_parameters(b.spec).values())]
+    if others:
+        notes.append(f"uncertainties of bodies outside the {test} and {source} groups do not change G: "
+                     f"{', '.join(others)}")
+    q = None if fiber_q is None else (fiber_q.value, fiber_q.u)
+    context = ModelContext(scene_text, scene.path or "-", scene.base_dir, test, source, reduction.rtol, refs,
+                           budget_nodes(scene, reduction, q), reduction.state, q)
+    inputs = [Input(r.name, r.value, r.u, r.unit) for r in refs]
+    steps = [STEP_FRACTION * r.u for r in refs]
+    rel_noise = max(reduction.numerical_error / abs(reduction.G), 1e-14)
+    gum = gum_linear(partial(g_model, context), inputs, steps=steps, rel_noise=rel_noise, workers=workers,
+                     scheduler=scheduler, progress=progress)
+    rows = tuple(budget_table(gum, y_scale=reduction.G))
+    if abs(gum.value - reduction.G) > 10 * reduction.numerical_error + 1e-12 * abs(reduction.G):
+        notes.append(f"the budget model's G differs from the reduction's by {(gum.value / reduction.G - 1) * 1e6:.3g} ppm")
+    mc = None
+    if samples > 0:
+        mc_context = replace(context, rtol=mc_rtol)
+        mc = monte_carlo(partial(g_model, mc_context), inputs, samples=samples, seed=seed, workers=workers,
+                         scheduler=scheduler, progress=progress)
+    return Budget(gum.u_c, gum.u_c_error, rows, gum.value, mc, mc_rtol, tuple(notes))
