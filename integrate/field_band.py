@@ -8,7 +8,8 @@ so the s-integral is done in closed form (arcsinh); and (x'-x) . N' is r(s) time
 both need only J(phi') = integral over s of r(s)/|x'-x| ds. What remains is one integral over the
 azimuth phi' of the source, which is even about the point's own azimuth: it runs over [0, pi] on panels
 graded geometrically toward phi' = 0, where the point is nearest, with a Gauss rule on each panel. Each
-point's value is computed with N_HIGH and N_LOW points per panel; their difference is the error estimate.
+point's value is computed with N_HIGH and N_LOW points per panel; their signed difference is returned as
+the refinement error estimate.
 """
 
 from __future__ import annotations
@@ -23,6 +24,9 @@ from truepull.integrate.patches import BAND
 
 N_HIGH = 12
 N_LOW = 10
+GRADING = 3.0
+"""Panel ratio toward the nearest azimuth: a panel [a, 3a] sees the log-type peak at least a away, so
+Gauss converges like (2 + sqrt 3)^(-2n), about 1e-14 for n = 12."""
 
 
 @njit(cache=True, inline="always")
@@ -75,7 +79,8 @@ def _segment_distance(r0, z0, r1, z1, rho, z):
 
 @njit(cache=True, inline="always")
 def _band_at_point(p, rho, z, xh, wh, xl, wl):
-    """(IU, IG_rho, IG_z) and their error estimates for one band at a point (rho, 0, z) of its frame.
+    """(IU, IG_rho, IG_z), their signed refinement differences (high minus low rule) and the sum of
+    magnitudes, for one band at a point (rho, 0, z) of its frame.
     IU = integral of ((x'-x).N')/R, IG = integral of N'/R (components along e_rho and the axis)."""
     r0 = p[12]
     z0 = p[13]
@@ -89,7 +94,7 @@ def _band_at_point(p, rho, z, xh, wh, xl, wl):
     eps = dmin / rmax
     m = 1
     if eps < 1.0:
-        m = int(math.ceil(math.log(math.pi / max(eps, 1e-14)) / math.log(2.0))) + 1
+        m = int(math.ceil(math.log(math.pi / max(eps, 1e-14)) / math.log(GRADING))) + 1
         if m < 1:
             m = 1
     iu = 0.0
@@ -99,14 +104,14 @@ def _band_at_point(p, rho, z, xh, wh, xl, wl):
     egr = 0.0
     egz = 0.0
     mag = 0.0
-    # panels [0, pi 2^-m], then [pi 2^-k, pi 2^-(k-1)] for k = m .. 1
+    # panels [0, pi q^-m], then [pi q^-k, pi q^-(k-1)] for k = m .. 1 (q = GRADING)
     for k in range(m + 1):
         if k == 0:
             a = 0.0
-            b = math.pi * 2.0 ** (-m)
+            b = math.pi * GRADING ** (-m)
         else:
-            a = math.pi * 2.0 ** (-(m - k + 1))
-            b = 2.0 * a
+            a = math.pi * GRADING ** (-(m - k + 1))
+            b = GRADING * a
         L = b - a
         hu = 0.0
         hr = 0.0
@@ -132,22 +137,25 @@ def _band_at_point(p, rho, z, xh, wh, xl, wl):
         iu += hu
         igr += hr
         igz += hz
-        eu += abs(hu - lu)
-        egr += abs(hr - lr)
-        egz += abs(hz - lz)
+        eu += hu - lu
+        egr += hr - lr
+        egz += hz - lz
     f = 2.0 * sign  # the integral over [-pi, pi] is twice that over [0, pi]
-    return f * iu, f * igr, f * igz, 2.0 * eu, 2.0 * math.sqrt(egr * egr + egz * egz), mag
+    return f * iu, f * igr, f * igz, f * eu, f * egr, f * egz, mag
 
 
 @njit(cache=True, parallel=True)
 def band_body_field(points, kinds, params, xh, wh, xl, wl):
     """Unit-density, unit-G integrals IU (N,), IG (N, 3) over all BAND patches of one body (rows of
-    `params` that share the body's frame), with error estimates EU, EG (N,)."""
+    `params` that share the body's frame); DU, DG the same minus their low-order values (signed), and
+    RU (N,) a rounding estimate (a few hundred ulps of the sum of magnitudes, in IU's units)."""
     n = points.shape[0]
     IU = np.zeros(n)
     IG = np.zeros((n, 3))
-    EU = np.zeros(n)
-    EG = np.zeros(n)
+    DU = np.zeros(n)
+    DG = np.zeros((n, 3))
+    RU = np.zeros(n)
+    RG = np.zeros(n)
     for q in prange(n):
         for k in range(kinds.shape[0]):
             if kinds[k] != BAND:
@@ -169,27 +177,32 @@ def band_body_field(points, kinds, params, xh, wh, xl, wl):
                 ex = p[3]
                 ey = p[4]
                 ez = p[5]
-            iu, igr, igz, eu, eg, mag = _band_at_point(p, rho, z, xh, wh, xl, wl)
+            iu, igr, igz, du, dgr, dgz, mag = _band_at_point(p, rho, z, xh, wh, xl, wl)
             IU[q] += iu
             IG[q, 0] += igr * ex + igz * p[9]
             IG[q, 1] += igr * ey + igz * p[10]
             IG[q, 2] += igr * ez + igz * p[11]
-            # rounding floor: a few hundred ulps of the sum of magnitudes
-            rf = 256 * 2.220446049250313e-16 * mag * (abs(p[12]) + abs(p[14]) + abs(p[13]) + abs(p[15]) + rho + abs(z))
-            EU[q] += eu + rf
-            EG[q] += eg + rf
-    return IU, IG, EU, EG
+            DU[q] += du
+            DG[q, 0] += dgr * ex + dgz * p[9]
+            DG[q, 1] += dgr * ey + dgz * p[10]
+            DG[q, 2] += dgr * ez + dgz * p[11]
+            ext = abs(p[12]) + abs(p[14]) + abs(p[13]) + abs(p[15]) + rho + abs(z)
+            RU[q] += 64 * 2.220446049250313e-16 * mag * ext * ext
+            RG[q] += 64 * 2.220446049250313e-16 * mag * ext
+    return IU, IG, DU, DG, RU, RG
 
 
 def band_field(points, patchset, density, G):
-    """Potential U (J/kg), field g (m/s^2) and their error estimates at world points for a uniform body
-    whose surface is made of BAND patches only (cylinder, tube, cone, frustum)."""
+    """Field of a uniform body bounded by BAND patches only (cylinder, tube, cone, frustum) at world
+    points: (U J/kg, g m/s^2, dU, dg, rU, rg) with dU, dg the signed differences between the N_HIGH and
+    N_LOW rules (a refinement error estimate that keeps its sign, so that integrals over a test surface
+    can estimate their own error with the cancellations they have) and rU, rg rounding magnitudes."""
     if np.any(patchset.kinds != BAND):
         raise ValueError("band_field needs a body bounded by bands only")
     points = np.ascontiguousarray(points, float).reshape(-1, 3)
     xh, wh = gauss_unit(N_HIGH)
     xl, wl = gauss_unit(N_LOW)
-    IU, IG, EU, EG = band_body_field(points, patchset.kinds, patchset.params, xh, wh, xl, wl)
+    IU, IG, DU, DG, RU, RG = band_body_field(points, patchset.kinds, patchset.params, xh, wh, xl, wl)
     fu = -0.5 * G * density
     fg = -G * density
-    return fu * IU, fg * IG, abs(fu) * EU, abs(fg) * EG
+    return fu * IU, fg * IG, fu * DU, fg * DG, abs(fu) * RU, abs(fg) * RG

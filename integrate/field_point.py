@@ -15,6 +15,9 @@ from numba import njit, prange
 
 from truepull.geometry.errors import InputError
 
+SMALL = 4096
+"""Below this many point-source pairs plain numpy is used: a parallel kernel's start-up costs more."""
+
 
 @njit(cache=True, parallel=True)
 def _point_field_kernel(points, centres, masses, G):
@@ -100,6 +103,14 @@ def point_field(points, centres, masses, G):
     (the field of a point is undefined there)."""
     p = _as_points(points)
     c, m = _as_sources(centres, masses)
+    if p.shape[0] * c.shape[0] <= SMALL:
+        d = c[None, :, :] - p[:, None, :]
+        r = np.sqrt(np.einsum("ijk,ijk->ij", d, d))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            gm_r = np.where(r > 0, float(G) * m[None, :] / r, np.nan)
+            U = -gm_r.sum(axis=1)
+            g = np.einsum("ij,ijk->ik", gm_r / r**2, d)
+        return U, g
     return _point_field_kernel(p, c, m, float(G))
 
 
@@ -108,6 +119,13 @@ def point_gradient(points, centres, masses, G):
     Traceless away from the sources (Laplace)."""
     p = _as_points(points)
     c, m = _as_sources(centres, masses)
+    if p.shape[0] * c.shape[0] <= SMALL:
+        d = c[None, :, :] - p[:, None, :]
+        r = np.sqrt(np.einsum("ijk,ijk->ij", d, d))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            gm = np.where(r > 0, float(G) * m[None, :], np.nan)
+            T = np.einsum("ij,ijk,ijl->ikl", 3.0 * gm / r**5, d, d) - np.einsum("ij->i", gm / r**3)[:, None, None] * np.eye(3)
+        return T
     return _point_gradient_kernel(p, c, m, float(G))
 
 

@@ -112,9 +112,32 @@ def check_separated(test_bodies, source_bodies, file=None) -> list[str]:
     return notes
 
 
-def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9):
-    """Sum of pair interactions: (values (8,), errors (8,), pairs, reached)."""
-    pairs = [pair_interaction(t, s, pivot, axis, G, rtol) for t in test_bodies for s in source_bodies]
+def pair_tolerances(test_bodies, source_bodies, pivot, axis, G, rtol):
+    """Absolute tolerances (n_test, n_source, 8) per pair, so that the summed errors stay within rtol of
+    the group totals: each pair gets rtol times the smaller of its own point-model size and the group's
+    point-model total shared among the pairs (a floor keeps totals that vanish by symmetry workable)."""
+    from truepull.integrate.pairs import tolerance_scales
+
+    pp = point_pair_values(test_bodies, source_bodies, pivot, axis, G)
+    n = max(pp.shape[0] * pp.shape[1], 1)
+    tot = pp.sum(axis=(0, 1))
+    group = np.array([np.linalg.norm(tot[0:3])] * 3 + [np.linalg.norm(tot[3:6])] * 3 + [abs(tot[6]), abs(tot[7])])
+    tols = np.empty(pp.shape)
+    for i, t in enumerate(test_bodies):
+        for j, s in enumerate(source_bodies):
+            own = G * tolerance_scales(t, s, pivot)
+            share = np.maximum(group / n, 1e-3 * own)
+            tols[i, j] = rtol * np.minimum(own, share)
+    return tols
+
+
+def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, tols=None):
+    """Sum of pair interactions: (values (8,), errors (8,), pairs, reached). `tols` (n_test, n_source, 8)
+    absolute per-pair tolerances (default: pair_tolerances)."""
+    if tols is None:
+        tols = pair_tolerances(test_bodies, source_bodies, pivot, axis, G, rtol)
+    pairs = [pair_interaction(t, s, pivot, axis, G, rtol, tol=tols[i, j])
+             for i, t in enumerate(test_bodies) for j, s in enumerate(source_bodies)]
     values = np.sum([p.values for p in pairs], axis=0) if pairs else np.zeros(8)
     errors = np.sum([p.errors for p in pairs], axis=0) if pairs else np.zeros(8)
     return values, errors, pairs, all(p.reached for p in pairs)
@@ -152,7 +175,8 @@ def compare_groups(scene, test: str = "pendulum", source: str = "attractor", pos
     short = _shortfall(values, errors, axis, rtol)
     if short > 1.0:
         tighter = max(rtol / (4.0 * short), RTOL_FLOOR)
-        values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, tighter)
+        values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, tighter,
+                                                            pair_tolerances(tb, sb, pivot, axis, G, tighter))
         short = _shortfall(values, errors, axis, rtol)
     if short > 1.0:
         reached = False

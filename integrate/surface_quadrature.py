@@ -9,9 +9,9 @@ divergence theorem gives (U harmonic inside the test body, as no source mass is 
     E      = (rho / 3) * surface integral of [U (q . N) + |q|^2 (g . N) / 2]   (interaction energy)
 K follows from turning the body by theta about the axis: r x N turns with it, its axial part stays.
 
-The surface is refined adaptively: each cell's Gauss value is compared with the sum over its four
-children, the children are kept when every component differs by less than the cell's share (by area)
-of its tolerance, and the differences plus the propagated field errors form the error estimate.
+The surface is refined adaptively: each cell's Gauss value is compared with a rule two points smaller
+on the same cell; cells that agree to their share (by area) of the tolerance are kept, the others split
+in four. Rule differences plus the propagated field differences and rounding form the error estimate.
 """
 
 from __future__ import annotations
@@ -38,29 +38,32 @@ class SurfaceResult:
     levels: int
 
 
-def _node_terms(X, W, U, g, eU, eg, rho, pivot, axis, centroid):
-    """Per-node integrands (M, 8) and their propagated field errors (M, 8)."""
+def _node_values(X, W, U, g, rho, pivot, axis, centroid, magnitude=False):
+    """Per-node integrands (M, 8) of the eight quantities, linear in (U, g). With magnitude=True the
+    absolute values of the coefficients are used (to carry error magnitudes)."""
     r = X - pivot
     q = X - centroid
     rxW = np.cross(r, W)
     exr = np.cross(axis, r)
     e_rxW = rxW @ axis
-    g_exr = np.einsum("ij,ij->i", g, exr)
     qW = np.einsum("ij,ij->i", q, W)
     q2 = np.einsum("ij,ij->i", q, q)
-    gW = np.einsum("ij,ij->i", g, W)
     vals = np.empty((X.shape[0], N_QUANTITIES))
+    if magnitude:
+        a = abs(rho)
+        gm = np.asarray(g).reshape(-1)
+        vals[:, 0:3] = a * U[:, None] * np.abs(W)
+        vals[:, 3:6] = a * U[:, None] * np.abs(rxW)
+        vals[:, 6] = a * gm * np.linalg.norm(exr, axis=1) * np.abs(e_rxW)
+        vals[:, 7] = (a / 3.0) * (U * np.abs(qW) + 0.5 * q2 * np.linalg.norm(W, axis=1) * gm)
+        return vals
+    g_exr = np.einsum("ij,ij->i", g, exr)
+    gW = np.einsum("ij,ij->i", g, W)
     vals[:, 0:3] = -rho * U[:, None] * W
     vals[:, 3:6] = -rho * U[:, None] * rxW
     vals[:, 6] = -rho * g_exr * e_rxW
     vals[:, 7] = (rho / 3.0) * (U * qW + 0.5 * q2 * gW)
-    a = abs(rho)
-    errs = np.empty_like(vals)
-    errs[:, 0:3] = a * eU[:, None] * np.abs(W)
-    errs[:, 3:6] = a * eU[:, None] * np.abs(rxW)
-    errs[:, 6] = a * eg * np.linalg.norm(exr, axis=1) * np.abs(e_rxW)
-    errs[:, 7] = (a / 3.0) * (eU * np.abs(qW) + 0.5 * q2 * np.linalg.norm(W, axis=1) * eg)
-    return vals, errs
+    return vals
 
 
 def field_tolerances(patchset: PatchSet, rho, pivot, axis, centroid, tol, order=8):
@@ -82,49 +85,62 @@ def field_tolerances(patchset: PatchSet, rho, pivot, axis, centroid, tol, order=
     return tol_u, tol_g
 
 
-def integrate_surface(patchset: PatchSet, rho: float,
-                      field: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]],
-                      pivot: np.ndarray, axis: np.ndarray, centroid: np.ndarray, tol: np.ndarray,
-                      order: int = 8, max_levels: int = 30) -> SurfaceResult:
-    """Adaptive surface integration of the four quantities; `field(points) -> (U, g, err_U, err_g)`."""
-    xg, wg = gauss_unit(order)
-    nn = order * order
+def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np.ndarray, axis: np.ndarray,
+                      centroid: np.ndarray, tol: np.ndarray, order: int = 8, max_levels: int = 30) -> SurfaceResult:
+    """Adaptive surface integration of the eight quantities [F, torque, K, E].
+
+    `field(points) -> (U, g, dU, dg, rU, rg)`: the source's potential and field, their signed refinement
+    differences and rounding magnitudes (SourceField.field_with_differences). Each cell is integrated
+    with the order x order Gauss rule and with the rule two points smaller; a cell whose two values agree
+    to its share (by area) of the tolerance is kept, the others are split in four. The error estimate adds
+    three parts: the kept cells' rule differences (summed in magnitude), the field's refinement carried
+    through the integral with its signs (the same integral of dU, dg), and rounding.
+    """
+    hi = gauss_unit(order)
+    lo = gauss_unit(order - 2)
     pivot = np.asarray(pivot, float)
     axis = np.asarray(axis, float)
     centroid = np.asarray(centroid, float)
     tol = np.asarray(tol, float)
 
+    def per_cell(a, n):
+        return a.reshape(-1, n * n, N_QUANTITIES).sum(axis=1)
+
     def cell_values(cp, cd):
-        X, W = cell_nodes(patchset.kinds, patchset.params, cp, cd, xg, wg)
-        U, g, eU, eg = field(X)
-        v, e = _node_terms(X, W, U, g, eU, eg, rho, pivot, axis, centroid)
-        area = np.linalg.norm(W, axis=1).reshape(-1, nn).sum(axis=1)
-        return (v.reshape(-1, nn, N_QUANTITIES).sum(axis=1), e.reshape(-1, nn, N_QUANTITIES).sum(axis=1),
-                area, X.shape[0])
+        X, W = cell_nodes(patchset.kinds, patchset.params, cp, cd, *hi)
+        Xl, Wl = cell_nodes(patchset.kinds, patchset.params, cp, cd, *lo)
+        m = X.shape[0]
+        U, g, dU, dg, rU, rg = field(np.concatenate([X, Xl]))
+        v = per_cell(_node_values(X, W, U[:m], g[:m], rho, pivot, axis, centroid), order)
+        vl = per_cell(_node_values(Xl, Wl, U[m:], g[m:], rho, pivot, axis, centroid), order - 2)
+        d = per_cell(_node_values(X, W, dU[:m], dg[:m], rho, pivot, axis, centroid), order)
+        r = per_cell(_node_values(X, W, rU[:m], rg[:m], rho, pivot, axis, centroid, magnitude=True), order)
+        area = np.linalg.norm(W, axis=1).reshape(-1, order * order).sum(axis=1)
+        return v, np.abs(v - vl), d, r, area, m + Xl.shape[0]
 
     cp, cd = patchset.cell_patch, patchset.cell_dom
-    val, ferr, area, nev = cell_values(cp, cd)
-    total_area = area.sum()
     total = np.zeros(N_QUANTITIES)
-    error = np.zeros(N_QUANTITIES)
+    rule = np.zeros(N_QUANTITIES)
+    field_diff = np.zeros(N_QUANTITIES)
+    rounding = np.zeros(N_QUANTITIES)
     reached = True
     level = 0
+    nev = 0
+    total_area = None
     while cp.size:
-        level += 1
-        kp, kd = split_cells(cp, cd)
-        kval, kerr, karea, n = cell_values(kp, kd)
+        val, diff, fdiff, rnd, area, n = cell_values(cp, cd)
         nev += n
-        ksum = kval.reshape(-1, 4, N_QUANTITIES).sum(axis=1)
-        kerr_sum = kerr.reshape(-1, 4, N_QUANTITIES).sum(axis=1)
-        diff = np.abs(ksum - val)
+        if total_area is None:
+            total_area = area.sum()
         share = (area / total_area)[:, None] * tol[None, :]
         done = np.all(diff <= share, axis=1)
+        level += 1
         if level >= max_levels:
             reached = bool(np.all(done))
             done[:] = True
-        total += ksum[done].sum(axis=0)
-        error += diff[done].sum(axis=0) + kerr_sum[done].sum(axis=0)
-        keep = np.repeat(~done, 4)
-        cp, cd = kp[keep], kd[keep]
-        val, area = kval[keep], karea[keep]
-    return SurfaceResult(total, error, reached, nev, level)
+        total += val[done].sum(axis=0)
+        rule += diff[done].sum(axis=0)
+        field_diff += fdiff[done].sum(axis=0)
+        rounding += rnd[done].sum(axis=0)
+        cp, cd = split_cells(cp[~done], cd[~done])
+    return SurfaceResult(total, rule + np.abs(field_diff) + rounding, reached, nev, level)

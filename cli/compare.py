@@ -1,0 +1,92 @@
+"""`truepull compare SCENE`: exact force, torque and stiffness beside the point-mass model."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from truepull.cli.output import fmt, format_table, print_json
+from truepull.geometry.scene import load_scene
+from truepull.integrate.interaction import compare_positions
+
+HELP = "exact force, torque and stiffness beside the point-mass model"
+
+
+def add_arguments(parser) -> None:
+    parser.add_argument("scene", metavar="SCENE", help="scene file (TOML)")
+    parser.add_argument("--test", default="pendulum", help="group that feels the pull (default: pendulum)")
+    parser.add_argument("--source", default="attractor", help="group that pulls (default: attractor)")
+    parser.add_argument("--position", default=None, help="only this position (default: every position)")
+    parser.add_argument("--rtol", type=float, default=1e-9, help="relative tolerance (default 1e-9)")
+    parser.add_argument("--moments", type=int, default=None, metavar="L",
+                        help="also list multipole moments up to degree L")
+
+
+def _ratio_text(a: float, b: float) -> str:
+    return fmt(a / b, 12) if b != 0 else "-"
+
+
+def render(comparison) -> str:
+    """One position's comparison as text (SI units)."""
+    c = comparison
+    e, p, err = c.exact, c.point, c.error
+    where = f"position {c.position}" if c.position else "scene as drawn"
+    lines = [f"{where}: test group '{c.test}', source group '{c.source}', G = {c.G:.6g} m^3 kg^-1 s^-2"]
+    rows = []
+    for i, axis in enumerate("xyz"):
+        rows.append([f"force {axis}", "N", fmt(e.force[i], 12), fmt(p.force[i], 12), _ratio_text(e.force[i], p.force[i]),
+                     fmt(err.force[i], 2)])
+    for i, axis in enumerate("xyz"):
+        rows.append([f"torque {axis} about pivot", "N m", fmt(e.torque[i], 12), fmt(p.torque[i], 12),
+                     _ratio_text(e.torque[i], p.torque[i]), fmt(err.torque[i], 2)])
+    rows.append(["torque about axis", "N m", fmt(e.torque_axis, 12), fmt(p.torque_axis, 12),
+                 _ratio_text(e.torque_axis, p.torque_axis), fmt(err.torque_axis, 2)])
+    rows.append(["stiffness about axis", "N m/rad", fmt(e.stiffness_axis, 12), fmt(p.stiffness_axis, 12),
+                 _ratio_text(e.stiffness_axis, p.stiffness_axis), fmt(err.stiffness_axis, 2)])
+    rows.append(["energy", "J", fmt(e.energy, 12), fmt(p.energy, 12), _ratio_text(e.energy, p.energy),
+                 fmt(err.energy, 2)])
+    lines.append(format_table(["quantity", "unit", "exact", "point model", "exact/point", "est. error"], rows,
+                              align="llrrrr"))
+    status = "reached" if c.reached else "NOT reached"
+    lines.append(f"tolerance {c.rtol:g} {status}; error estimates from refinement (coarse against fine rule)")
+    total = c.exact.torque_axis
+    prow = []
+    for k, pr in enumerate(c.pairs):
+        t = pr.torque_axis(c.axis)
+        i, j = divmod(k, c.point_pairs.shape[1])
+        pt = float(c.point_pairs[i, j, 3:6] @ c.axis)
+        share = f"{100 * t / total:.3f} %" if total != 0 else "-"
+        prow.append([pr.test, pr.source, fmt(t, 10), fmt(pt, 10), share, pr.method])
+    lines.append("")
+    lines.append(format_table(["test body", "source body", "torque about axis N m", "point model N m",
+                               "share", "method"], prow, align="llrrrl"))
+    for n in c.notes:
+        lines.append(f"note: {n}")
+    return "\n".join(lines)
+
+
+def run(args) -> int:
+    scene = load_scene(args.scene)
+    if args.position is not None:
+        scene.get_position(args.position)
+    results = compare_positions(scene, args.test, args.source, args.rtol, args.position)
+    moments = None
+    if args.moments is not None:
+        from truepull.cli.moments import format_moments, moments_json
+
+        moments = (moments_json if args.json else format_moments)(scene, args.moments, args.test, args.source,
+                                                                   args.position)
+    if args.json:
+        out = {"results": [r.to_json() for r in results]}
+        if moments is not None:
+            out["moments"] = moments
+        print_json(out)
+        return 0
+    title = f" - {scene.title}" if scene.title else ""
+    print(f"scene {scene.path}{title}")
+    for r in results:
+        print()
+        print(render(r))
+    if moments is not None:
+        print()
+        print(moments)
+    return 0
