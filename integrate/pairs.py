@@ -82,7 +82,7 @@ def tolerance_scales(test_body, source_body, pivot) -> np.ndarray:
     return np.array([sF, sF, sF, sT, sT, sT, sT, mm / d])
 
 
-def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=8, tol=None) -> PairResult:
+def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10, tol=None) -> PairResult:
     """The exact interaction of two non-overlapping uniform bodies (see the module docstring).
     `tol` (8,), absolute tolerances on [F, torque, K, E], overrides rtol times the pair's point scale."""
     pivot = np.asarray(pivot, float)

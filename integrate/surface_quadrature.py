@@ -94,7 +94,8 @@ def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np
     with the order x order Gauss rule and with the rule two points smaller; a cell whose two values agree
     to its share (by area) of the tolerance is kept, the others are split in four. The error estimate adds
     three parts: the kept cells' rule differences (summed in magnitude), the field's refinement carried
-    through the integral with its signs (the same integral of dU, dg), and rounding.
+    through the integral with its signs (the same integral of dU, dg), and rounding (independent from
+    node to node, so added in quadrature).
     """
     hi = gauss_unit(order)
     lo = gauss_unit(order - 2)
@@ -114,7 +115,7 @@ def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np
         v = per_cell(_node_values(X, W, U[:m], g[:m], rho, pivot, axis, centroid), order)
         vl = per_cell(_node_values(Xl, Wl, U[m:], g[m:], rho, pivot, axis, centroid), order - 2)
         d = per_cell(_node_values(X, W, dU[:m], dg[:m], rho, pivot, axis, centroid), order)
-        r = per_cell(_node_values(X, W, rU[:m], rg[:m], rho, pivot, axis, centroid, magnitude=True), order)
+        r = per_cell(_node_values(X, W, rU[:m], rg[:m], rho, pivot, axis, centroid, magnitude=True) ** 2, order)
         area = np.linalg.norm(W, axis=1).reshape(-1, order * order).sum(axis=1)
         return v, np.abs(v - vl), d, r, area, m + Xl.shape[0]
 
@@ -141,6 +142,6 @@ def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np
         total += val[done].sum(axis=0)
         rule += diff[done].sum(axis=0)
         field_diff += fdiff[done].sum(axis=0)
-        rounding += rnd[done].sum(axis=0)
+        rounding += rnd[done].sum(axis=0)  # sums of squares
         cp, cd = split_cells(cp[~done], cd[~done])
-    return SurfaceResult(total, rule + np.abs(field_diff) + rounding, reached, nev, level)
+    return SurfaceResult(total, rule + np.abs(field_diff) + np.sqrt(rounding), reached, nev, level)
