@@ -87,6 +87,12 @@ def main(argv: list[str] | None = None) -> int:
     except InputError as exc:
         sys.stderr.write(f"truepull {args.verb}: {exc.one_line()}\n")
         return 2
+    except BrokenPipeError:  # output cut short by the reader (e.g. `| head`): not an error of ours
+        try:
+            sys.stdout = open(os.devnull, "w")
+        except OSError:
+            pass
+        return 0
     except KeyboardInterrupt:
         sys.stderr.write("truepull: interrupted\n")
         return 1

@@ -25,6 +25,10 @@ from truepull.integrate.gauss import gauss_unit
 from truepull.integrate.patches import PatchSet, cell_nodes, split_cells
 
 N_QUANTITIES = 8  # F(3), torque(3), stiffness about the axis, energy
+EPS = np.finfo(float).eps
+ROUNDING_ULPS = 64
+MAX_ACTIVE_CELLS = 40_000
+"""Refinement stops (and says the tolerance was not reached) rather than grow past this many cells."""
 
 
 @dataclass(frozen=True)
@@ -112,12 +116,14 @@ def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np
         Xl, Wl = cell_nodes(patchset.kinds, patchset.params, cp, cd, *lo)
         m = X.shape[0]
         U, g, dU, dg, rU, rg = field(np.concatenate([X, Xl]))
-        v = per_cell(_node_values(X, W, U[:m], g[:m], rho, pivot, axis, centroid), order)
+        nv = _node_values(X, W, U[:m], g[:m], rho, pivot, axis, centroid)
+        v = per_cell(nv, order)
+        noise = ROUNDING_ULPS * EPS * per_cell(np.abs(nv), order)
         vl = per_cell(_node_values(Xl, Wl, U[m:], g[m:], rho, pivot, axis, centroid), order - 2)
         d = per_cell(_node_values(X, W, dU[:m], dg[:m], rho, pivot, axis, centroid), order)
         r = per_cell(_node_values(X, W, rU[:m], rg[:m], rho, pivot, axis, centroid, magnitude=True) ** 2, order)
         area = np.linalg.norm(W, axis=1).reshape(-1, order * order).sum(axis=1)
-        return v, np.abs(v - vl), d, r, area, m + Xl.shape[0]
+        return v, np.abs(v - vl), d, r, noise, area, m + Xl.shape[0]
 
     cp, cd = patchset.cell_patch, patchset.cell_dom
     total = np.zeros(N_QUANTITIES)
@@ -129,15 +135,16 @@ def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np
     nev = 0
     total_area = None
     while cp.size:
-        val, diff, fdiff, rnd, area, n = cell_values(cp, cd)
+        val, diff, fdiff, rnd, noise, area, n = cell_values(cp, cd)
         nev += n
         if total_area is None:
             total_area = area.sum()
         share = (area / total_area)[:, None] * tol[None, :]
-        done = np.all(diff <= share, axis=1)
+        # a difference at the rounding level of the cell's own terms cannot be refined away
+        done = np.all(diff <= np.maximum(share, noise), axis=1)
         level += 1
-        if level >= max_levels:
-            reached = bool(np.all(done))
+        if level >= max_levels or 4 * np.count_nonzero(~done) > MAX_ACTIVE_CELLS:
+            reached = bool(np.all(diff <= share))
             done[:] = True
         total += val[done].sum(axis=0)
         rule += diff[done].sum(axis=0)
