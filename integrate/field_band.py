@@ -30,35 +30,36 @@ Gauss converges like (2 + sqrt 3)^(-2n), about 1e-14 for n = 12."""
 
 
 @njit(cache=True, inline="always")
-def _asinh_diff(u1, u0):
-    """asinh(u1) - asinh(u0) without cancellation for arguments of the same sign."""
-    f1 = math.sqrt(u1 * u1 + 1.0) + u1 if u1 >= 0.0 else 1.0 / (math.sqrt(u1 * u1 + 1.0) - u1)
-    f0 = math.sqrt(u0 * u0 + 1.0) + u0 if u0 >= 0.0 else 1.0 / (math.sqrt(u0 * u0 + 1.0) - u0)
-    return math.log(f1 / f0)
-
-
-@njit(cache=True, inline="always")
 def _generator_integral(r0, z0, dr, dz, rho, z, cphi):
     """J = integral over s in [0, 1] of r(s) / |x'(s) - x| for the generator at azimuth offset phi'
-    (cphi = cos phi'), point at cylindrical (rho, 0, z) in the body frame."""
+    (cphi = cos phi'), point at cylindrical (rho, 0, z) in the body frame.
+
+    With |x' - x|^2 = Q(s) = A s^2 + B s + C = A (s - s*)^2 + h^2, the integral of 1/sqrt(Q) is
+    (asinh(sqrt(A)(1 - s*)/h) - asinh(-sqrt(A) s*/h)) / sqrt(A); it is formed as the log of a ratio of
+    sqrt(Q) + sqrt(A)(s - s*) terms (or their reciprocals, for negative arguments) so that nothing cancels,
+    and the integral of s/sqrt(Q) follows as (sqrt(Q(1)) - sqrt(Q(0)))/A + s* times the first."""
     A = dr * dr + dz * dz
-    # |x' - x|^2 = A s^2 + B s + C
     B = 2.0 * (r0 * dr - rho * cphi * dr + (z0 - z) * dz)
     C = r0 * r0 + rho * rho - 2.0 * r0 * rho * cphi + (z0 - z) * (z0 - z)
     sa = math.sqrt(A)
     s_star = -B / (2.0 * A)
     h2 = C - A * s_star * s_star  # squared distance from the point to the generator's line
-    q0 = C
+    floor = 1e-300 + 1e-28 * C
+    if h2 < floor:
+        h2 = floor
     q1 = A + B + C
-    if q0 < 0.0:
-        q0 = 0.0
-    if q1 < 0.0:
-        q1 = 0.0
-    if h2 < 1e-300 + 1e-28 * C:
-        h2 = 1e-300 + 1e-28 * C
-    h = math.sqrt(h2)
-    i0 = _asinh_diff(sa * (1.0 - s_star) / h, sa * (0.0 - s_star) / h) / sa
-    i1 = (math.sqrt(q1) - math.sqrt(q0)) / A + s_star * i0
+    P0 = math.sqrt(C if C > 0.0 else 0.0)
+    P1 = math.sqrt(q1 if q1 > 0.0 else 0.0)
+    a1 = sa * (1.0 - s_star)
+    a0 = -sa * s_star
+    if a0 >= 0.0:
+        ratio = (P1 + a1) / (P0 + a0)
+    elif a1 >= 0.0:
+        ratio = (P1 + a1) * (P0 - a0) / h2
+    else:
+        ratio = (P0 - a0) / (P1 - a1)
+    i0 = math.log(ratio) / sa
+    i1 = (P1 - P0) / A + s_star * i0
     return r0 * i0 + dr * i1
 
 
