@@ -79,6 +79,8 @@ def add_arguments(parser) -> None:
                         help="Monte Carlo draws of the budget (default: 200; 0 skips it)")
     parser.add_argument("--workers", type=int, default=None,
                         help="local worker processes (default: one per core)")
+    parser.add_argument("--test", default="pendulum", help="the suspended group (default: pendulum)")
+    parser.add_argument("--source", default="attractor", help="the group that pulls (default: attractor)")
     parser.add_argument("--no-view", action="store_true", help="skip the 3-D picture")
     parser.add_argument("--no-bias", action="store_true", help="skip the bias ranking")
 
@@ -201,14 +203,20 @@ def section_check(ctx: Context) -> Section:
 
 # --- compare -------------------------------------------------------------------------------------
 
+def torque_scale(c) -> float:
+    """Size of the torque about the axis against which its error is read: the total, or the sum of
+    the pairs' sizes where they cancel (a symmetric position has a total near zero)."""
+    return max(abs(c.exact.torque_axis), sum(abs(p.torque_axis(c.axis)) for p in c.pairs))
+
+
 def section_compare(ctx: Context) -> Section:
     from truepull.integrate.interaction import compare_positions
 
     s = Section("compare", "Exact interaction beside the point-mass model")
-    comps = compare_positions(ctx.scene, rtol=ctx.args.rtol)
+    comps = compare_positions(ctx.scene, ctx.args.test, ctx.args.source, rtol=ctx.args.rtol)
     ctx.comparisons = comps
     results = [c.to_json() for c in comps]
-    worst = [x for c in comps for x in (_rel(c.error.torque_axis, c.exact.torque_axis),
+    worst = [x for c in comps for x in (_rel(c.error.torque_axis, torque_scale(c)),
                                         _rel(c.error.stiffness_axis, c.exact.stiffness_axis)) if x is not None]
     s.reached = all(c.reached for c in comps)
     s.data = {"rtol": ctx.args.rtol, "largest_relative_error": max(worst) if worst else None, "results": results}
@@ -226,10 +234,12 @@ def section_compare(ctx: Context) -> Section:
              _md_table(head, rows, "l" + "r" * 8 + "l")]
     for c in comps:
         total = c.exact.torque_axis
+        # a share of a total that cancels (a symmetric position) says nothing
+        shares = abs(total) > 1e-6 * torque_scale(c)
         prow = []
         for p in c.pairs:
             t = p.torque_axis(c.axis)
-            share = f"{100 * t / total:.3g} %" if total else "-"
+            share = f"{100 * t / total:.3g} %" if shares else "-"
             prow.append([p.test, p.source, fmt(t, 8), share, p.method])
         where = f"position {c.position}" if c.position else "the scene as drawn"
         parts.append(f"Pairs at {where}:\n\n" + _md_table(["test body", "source body", "torque (N m)", "share",
@@ -266,7 +276,7 @@ def section_scan(ctx: Context) -> Section:
         s.available, s.reason = False, f"no group '{group}' to turn"
         return s
     sweep = scans.Sweep("turn", tuple(math.radians(v) for v in shown), group)
-    result = scans.scan(scene, sweep, rtol=ctx.args.survey_rtol, workers=ctx.args.workers,
+    result = scans.scan(scene, sweep, test=ctx.args.test, source=ctx.args.source, rtol=ctx.args.survey_rtol, workers=ctx.args.workers,
                         scene_path=ctx.scene_path, progress=False)
     png, caption = FIGURES["scan"]
     write_png(str(ctx.folder / png), result, shown, "deg", f"{scene.title or scene.path}: turn of {group}")
@@ -300,7 +310,7 @@ BIAS_ROWS_SHOWN = 15
 def section_bias(ctx: Context) -> Section:
     sens = _need("truepull.integrate.sensitivity")
     s = Section("bias", "What moves the result")
-    result = sens.sensitivities(ctx.scene, rtol=ctx.args.survey_rtol, workers=ctx.args.workers,
+    result = sens.sensitivities(ctx.scene, ctx.args.test, ctx.args.source, rtol=ctx.args.survey_rtol, workers=ctx.args.workers,
                                 scene_path=ctx.scene_path, progress=False)
     s.data = result.to_json()
     where = f"position {result.position}" if result.position else "the scene as drawn"
@@ -327,9 +337,10 @@ def section_reduce(ctx: Context) -> Section:
     bud = _need("truepull.integrate.reduction_budget")
     s = Section("reduce", "G from the measurement")
     scene = ctx.scene
-    reduction = red.reduce_measurement(scene, rtol=ctx.args.rtol)
+    reduction = red.reduce_measurement(scene, test=ctx.args.test, source=ctx.args.source, rtol=ctx.args.rtol)
     data = reduction.to_json()
-    budget = bud.reduction_budget(scene, reduction, ctx.scene_text, samples=ctx.args.samples,
+    budget = bud.reduction_budget(scene, reduction, ctx.scene_text, test=ctx.args.test, source=ctx.args.source,
+                                  samples=ctx.args.samples,
                                   workers=ctx.args.workers, progress=False)
     data.update(budget.to_json(reduction.G))
     s.data = data
@@ -434,7 +445,8 @@ def section_view(ctx: Context) -> Section:
     png, caption = FIGURES["view"]
     parser = argparse.ArgumentParser()
     view.add_arguments(parser)
-    argv = [ctx.scene_path, "--png", str(ctx.folder / png), "--rtol", repr(ctx.args.survey_rtol)]
+    argv = [ctx.scene_path, "--png", str(ctx.folder / png), "--rtol", repr(ctx.args.survey_rtol),
+            "--test", ctx.args.test, "--source", ctx.args.source]
     position = ctx.scene.positions[0].name if ctx.scene.positions else None
     if position:
         argv += ["--position", position]
@@ -451,8 +463,8 @@ def section_view(ctx: Context) -> Section:
     s.data["files"] = {"png": png}
     s.figures = [png]
     where = f" at position {position}" if position else ""
-    s.markdown = (f"The bodies{where} in their group colours, the field of the attractor on a plane through the "
-                  f"pendulum's centre of mass, and the net force and torque on the pendulum (engine tolerance "
+    s.markdown = (f"The bodies{where} in their group colours, the field of `{ctx.args.source}` on a plane through "
+                  f"the centre of mass of `{ctx.args.test}`, and the net force and torque on it (engine tolerance "
                   f"{ctx.args.survey_rtol:g}).\n\n![{caption}]({png})")
     return s
 
@@ -595,7 +607,12 @@ def markdown(ctx: Context, sections: list[Section], info: dict) -> str:
              f"- engine tolerance: {ctx.args.rtol:g} for compare and the reduction, {ctx.args.survey_rtol:g} for the "
              f"scan, the bias ranking and the 3-D field; reached: "
              + ("yes, everywhere" if reached else "NO, see the sections marked" if reached is False else "-"),
-             "- units: SI in the tables unless a column says otherwise; lengths of the scene in "
+             ]
+    worst = info["sections"].get("compare", {}).get("largest_relative_error")
+    if worst is not None:
+        lines.append(f"- largest estimated relative error of the torque and stiffness in compare: {worst:.2g} "
+                     "(a torque that cancels by symmetry is read against the sum of its pairs' sizes)")
+    lines += ["- units: SI in the tables unless a column says otherwise; lengths of the scene in "
              f"{scene.length_unit}", "",
              "Safety first: see the cautions at the end of this report.", ""]
     if info["not_included"]:

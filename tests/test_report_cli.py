@@ -317,3 +317,12 @@ def test_bad_options_exit_2_with_one_line(spheres, tmp_path, capsys, extra, key)
 def test_missing_scene_exits_2(tmp_path, capsys):
     assert main(["report", str(tmp_path / "nope.toml"), "--out", str(tmp_path / "r")]) == 2
     assert "not found" in capsys.readouterr().err
+
+
+def test_test_and_source_groups_are_chosen_by_options(plain, tmp_path):
+    out = tmp_path / "stand"
+    assert main(["report", str(plain), "--out", str(out), "--source", "stand", "--no-bias", "--no-view",
+                 "--workers", "1", "--turn=0:90:90"]) == 0
+    results = _load(out)["sections"]["compare"]["results"]
+    assert {p["source"] for p in results[0]["pairs"]} == {"table"}
+    assert all(r["source"] == "stand" for r in results)
