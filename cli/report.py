@@ -74,7 +74,7 @@ def add_arguments(parser) -> None:
                         help=f"engine tolerance of the turn scan, the bias ranking and the 3-D view's field "
                              f"(default: {SURVEY_RTOL:g})")
     parser.add_argument("--turn", metavar="START:STOP:STEP",
-                        help="turn scan in degrees (default: across the positions' turns)")
+                        help="turn scan in degrees, e.g. --turn=-60:60:5 (default: across the positions' turns)")
     parser.add_argument("--samples", type=int, default=200,
                         help="Monte Carlo draws of the budget (default: 200; 0 skips it)")
     parser.add_argument("--workers", type=int, default=None,
