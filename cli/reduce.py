@@ -43,27 +43,36 @@ def _fiber_q(raw):
 
 
 def reduce_data(args) -> dict:
-    """The whole result as plain values (the JSON object)."""
+    """The whole result for parsed command-line arguments (see reduction_data)."""
+    return reduction_data(args.scene, rtol=args.rtol, mc_rtol=args.mc_rtol, samples=args.samples, seed=args.seed,
+                          workers=args.workers, scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test,
+                          source=args.source, budget=not args.no_budget, progress=not args.no_progress)
+
+
+def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, samples: int = 200, seed: int = 0,
+                   workers: int | None = None, scheduler=None, fiber_q: str | None = None, test: str = "pendulum",
+                   source: str = "attractor", budget: bool = True, progress: bool = False) -> dict:
+    """The reduction of the scene file at `scene_path` and its budget as plain values: the
+    `reduce --json` object (also for other verbs, such as the report)."""
     from truepull.integrate.reduction import reduce_measurement
     from truepull.integrate.reduction_budget import reduction_budget
 
-    scene = load_scene(args.scene)
-    q = _fiber_q(args.fiber_q)
-    if args.samples < 0:
-        raise InputError(None, "--samples", f"must be 0 or more, got {args.samples}")
-    reduction = reduce_measurement(scene, test=args.test, source=args.source, rtol=args.rtol, fiber_q=q)
+    scene = load_scene(scene_path)
+    q = _fiber_q(fiber_q)
+    if isinstance(samples, bool) or not isinstance(samples, int) or samples < 0:
+        raise InputError(None, "--samples", f"must be 0 or more, got {samples}")
+    reduction = reduce_measurement(scene, test=test, source=source, rtol=rtol, fiber_q=q)
     data = reduction.to_json()
     data["scene"] = scene.path
     data["title"] = scene.title
-    if args.no_budget:
+    if not budget:
         data.update({"u_G": None, "budget": [], "monte_carlo": None, "budget_notes": ["budget skipped"]})
     else:
-        text = Path(args.scene).read_text(encoding="utf-8")
-        budget = reduction_budget(scene, reduction, text, test=args.test, source=args.source, fiber_q=q,
-                                  samples=args.samples, seed=args.seed, mc_rtol=args.mc_rtol,
-                                  workers=args.workers, scheduler=args.scheduler,
-                                  progress=not args.no_progress)
-        data.update(budget.to_json(reduction.G))
+        text = Path(scene_path).read_text(encoding="utf-8")
+        result = reduction_budget(scene, reduction, text, test=test, source=source, fiber_q=q, samples=samples,
+                                  seed=seed, mc_rtol=mc_rtol, workers=workers, scheduler=scheduler,
+                                  progress=progress)
+        data.update(result.to_json(reduction.G))
     order = ["G", "u_G", "G_point", "corrections", "budget"]
     return {**{k: data[k] for k in order}, **{k: v for k, v in data.items() if k not in order}}
 

@@ -26,12 +26,16 @@ Physics (the published relations the steps use):
   anelasticity with a fiber Q: the constant-loss-angle fiber constant kappa(omega) (oscillator.py),
   which removes the bias of about 1/(pi Q) that Kuroda (1995) described.
 
-Exact torque curve: the engine's torque and stiffness at a few turned poses per position (the pose
-as drawn, theta = 0, and the equilibrium, plus theta_i -+ A for a swing of amplitude A), joined by
-their Hermite interpolant (torque_curve.py). The equilibrium is solved on that curve by Newton's
-method; the samples are then re-placed at the solved angles and the solve repeated, and the change of
-G between the two rounds is part of the stated numerical error (with the engine's own error
-estimates carried through).
+Exact (not linearised) equilibrium: the engine's torque and stiffness at a few turned poses per
+position (the pose as drawn, theta = 0, and the equilibrium, plus theta_i -+ A for a swing of
+amplitude A), joined by their Hermite interpolant (torque_curve.py), so the curve is exact in value
+and slope at the samples and good to the fourth order in the turn between them. The equilibrium is
+solved on that curve (Gauss-Newton for deflection, Newton for each swing position, both with the
+curve's own derivatives); the samples are then re-placed at the solved angles and the solve repeated
+(at most three rounds, until G moves by less than 1e-3 of the engine tolerance), so the final
+samples sit at the solution, where the curve is the engine's own value. The last change of G
+between rounds is part of the stated numerical error, with the engine's error estimates carried
+through the linearised formula and the rounding of the measured values.
 
 G_point (the point-mass value, the baseline of the corrections) is the textbook two-ball reduction:
 every body a point of its mass at its centre of mass, each attractor body (holes left out) pulling
@@ -42,6 +46,8 @@ each correction switches on one refinement, in this order, so the factors telesc
 pull of every attractor body on every pendulum body (points), exact torque (or stiffness) of the
 real shapes, exact moment of inertia, damping, gravitational stiffness at the period position
 (deflection), exact (not linearised) equilibrium, finite amplitude (swing), fiber anelasticity (swing).
+The first factor is the textbook far-mass correction; the value with every pair as points (what
+`truepull compare` calls the point model) is also reported, as G_point_all_pairs.
 """
 
 from __future__ import annotations
