@@ -11,12 +11,13 @@ shortfall, so `reached` speaks for the totals the user reads.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from truepull.geometry.errors import InputError
 from truepull.geometry.overlaps import bodies_overlap
+from truepull.integrate import pair_cache
 from truepull.integrate.pairs import PairResult, pair_interaction
 from truepull.integrate.point_model import point_pair_values
 
@@ -102,7 +103,11 @@ def check_separated(test_bodies, source_bodies, file=None) -> list[str]:
         for b in source_bodies:
             if a.is_hole or b.is_hole:
                 continue
-            kind = bodies_overlap(a, b)
+            key = ("overlap", pair_cache.body_key(a), pair_cache.body_key(b))
+            kind = pair_cache.lookup(key)
+            if kind is None:
+                kind = bodies_overlap(a, b) or "apart"
+                pair_cache.remember(key, kind)
             if kind == "overlap":
                 raise InputError(file, f"body[{a.name}] / body[{b.name}]",
                                  f"'{a.name}' ({a.group}) and '{b.name}' ({b.group}) overlap in volume; "
@@ -136,8 +141,21 @@ def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, to
     absolute per-pair tolerances (default: pair_tolerances)."""
     if tols is None:
         tols = pair_tolerances(test_bodies, source_bodies, pivot, axis, G, rtol)
-    pairs = [pair_interaction(t, s, pivot, axis, G, rtol, tol=tols[i, j])
-             for i, t in enumerate(test_bodies) for j, s in enumerate(source_bodies)]
+    # tolerances rounded down to a power of two: a slightly changed scene keeps its other pairs' keys
+    tols = np.exp2(np.floor(np.log2(np.maximum(tols, 1e-300))))
+    pivot = np.asarray(pivot, float)
+    axis = np.asarray(axis, float)
+    pairs = []
+    for i, t in enumerate(test_bodies):
+        for j, s in enumerate(source_bodies):
+            key = pair_cache.pair_key(t, s, pivot, axis, float(G), tols[i, j])
+            result = pair_cache.lookup(key)
+            if result is None:
+                result = pair_interaction(t, s, pivot, axis, G, rtol, tol=tols[i, j])
+                pair_cache.remember(key, result)
+            elif result.test != t.name or result.source != s.name:
+                result = replace(result, test=t.name, source=s.name)
+            pairs.append(result)
     values = np.sum([p.values for p in pairs], axis=0) if pairs else np.zeros(8)
     errors = np.sum([p.errors for p in pairs], axis=0) if pairs else np.zeros(8)
     return values, errors, pairs, all(p.reached for p in pairs)
