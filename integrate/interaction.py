@@ -161,9 +161,10 @@ def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, to
     return values, errors, pairs, all(p.reached for p in pairs)
 
 
-CANCELLATION_FLOOR = 1e-6
+CANCELLATION_FLOOR = 1e-2
 """A total that cancels to below this fraction of the sum of its pairs' sizes (e.g. a torque that
-vanishes by symmetry) is judged against that sum instead of its own size."""
+vanishes by symmetry) is judged against this fraction of that sum instead of its own size: its relative
+error means nothing, and its absolute error is then held to rtol / 100 of the pairs it is made of."""
 
 
 def _shortfall(values, errors, axis, rtol, parts=None) -> float:
