@@ -2,9 +2,13 @@
 
 The way is chosen by the pair (published shortcuts first):
 - both point-like (point, sphere, shell): Newton with the shell theorem, exact;
-- one point-like: it becomes the source (its field is a point's, exactly) and the other body is
-  integrated over its surface; by Newton's third law and rotational invariance the test body's force
-  and torque are minus those found, its stiffness and the energy the same;
+- one point-like and the other a box or mesh: the point-like body feels m g(centre) and no torque about
+  its centre (mean-value property), with g and its gradient from the other's closed form, so the pair is
+  exact at one point;
+- one point-like otherwise: it becomes the source (its field is a point's, exactly) and the other body
+  is integrated over its surface;
+- when the roles are swapped, by Newton's third law and rotational invariance the test body's force and
+  torque are minus those found, its stiffness and the energy the same;
 - otherwise the body with the more exact field is the source (ellipsoid, box and mesh have closed forms;
   cylinders, tubes and cones the semi-analytic band field) and the other is integrated over its surface.
 Results are for the TEST body; torque about the pivot; stiffness -d(torque . e)/d(theta) for a
@@ -13,12 +17,12 @@ right-handed turn theta of the test body about the frame axis e.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from truepull.integrate.patches import body_patches
-from truepull.integrate.sources import POINTLIKE_KINDS, SourceField
+from truepull.integrate.sources import GRADIENT_KINDS, POINTLIKE_KINDS, SourceField
 from truepull.integrate.surface_quadrature import field_tolerances, integrate_surface
 
 EPS = np.finfo(float).eps
@@ -64,6 +68,11 @@ def point_response(mass, centre, U, g, T, pivot, axis):
     return F, tau, -dtau, mass * U
 
 
+def _inside_cavity(pointlike, other) -> bool:
+    """True when `other` sits in the cavity of the shell `pointlike` (then the shortcut does not apply)."""
+    return pointlike.shape.kind == "shell" and _cavity_holds(pointlike, other)
+
+
 def _cavity_holds(shell_body, other_body) -> bool:
     """True when `other_body` lies wholly inside the cavity of the shell `shell_body`."""
     c, r = other_body.bounding_sphere()
@@ -90,6 +99,11 @@ def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10
     tk, sk = test_body.shape.kind, source_body.shape.kind
     if tk in POINTLIKE_KINDS and sk in POINTLIKE_KINDS:
         return _pointlike_pair(test_body, source_body, pivot, axis, G)
+    if tk in POINTLIKE_KINDS and sk in GRADIENT_KINDS and not _inside_cavity(test_body, source_body):
+        return _pointlike_pair(test_body, source_body, pivot, axis, G)
+    if sk in POINTLIKE_KINDS and tk in GRADIENT_KINDS and not _inside_cavity(source_body, test_body):
+        r = _pointlike_pair(source_body, test_body, pivot, axis, G)
+        return replace(r, test=test_body.name, source=source_body.name, force=-r.force, torque=-r.torque)
     swap = SOURCE_PREFERENCE.index(tk) < SOURCE_PREFERENCE.index(sk)
     integ, src = (source_body, test_body) if swap else (test_body, source_body)
     field = SourceField(src, G)
@@ -121,10 +135,16 @@ def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:
                           "shell theorem (source inside the test shell's cavity)", True)
     field = SourceField(source_body, G)
     c = test_body.com[None, :]
-    U, g, _, _ = field.field(c)
+    U, g, eU, eg = field.field(c)
     T = field.gradient(c)[0]
     F, tau, K, E = point_response(test_body.mass, test_body.com, U[0], g[0], T, pivot, axis)
     vals = np.concatenate([F, tau, [K, E]])
-    errs = 64 * EPS * np.abs(vals) + 64 * EPS * np.abs(np.concatenate([F, tau, [K, E]]))
-    return PairResult(test_body.name, source_body.name, F, tau, float(K), float(E), errs,
-                      "Newton with the shell theorem (exact)", True)
+    # the closed form's own bound (relative, from the field) carried to every quantity, plus rounding
+    rel = max(eg[0] / max(np.linalg.norm(g[0]), 1e-300), eU[0] / max(abs(U[0]), 1e-300))
+    m, lever = abs(test_body.mass), np.linalg.norm(test_body.com - pivot)
+    scale = np.concatenate([[m * eg[0]] * 3, [m * eg[0] * lever] * 3, [0.0, m * eU[0]]])
+    errs = scale + (rel + 64 * EPS) * np.abs(vals)
+    how = ("Newton with the shell theorem (exact)" if source_body.shape.kind in POINTLIKE_KINDS else
+           f"{field.method} of {source_body.shape.kind} '{source_body.name}' at the centre of "
+           f"{test_body.shape.kind} '{test_body.name}' (mean-value property, exact)")
+    return PairResult(test_body.name, source_body.name, F, tau, float(K), float(E), errs, how, True)

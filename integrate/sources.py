@@ -20,6 +20,7 @@ brute-force quadrature); the prism and polyhedron kernels state their own bounds
 
 CLOSED_FORM_KINDS = ("point", "sphere", "shell", "box", "mesh", "ellipsoid")
 POINTLIKE_KINDS = ("point", "sphere", "shell")
+GRADIENT_KINDS = POINTLIKE_KINDS + ("box", "mesh")
 
 
 @dataclass(eq=False)
@@ -124,13 +125,32 @@ class SourceField:
         """A closed-form result: no refinement difference, rounding `rtol` (scalar or per point) of the size."""
         return (U, g, np.zeros_like(U), np.zeros_like(g), rtol * np.abs(U), rtol * np.linalg.norm(g, axis=1))
 
-    def gradient(self, points):
-        """Gradient tensor (N, 3, 3) of a point-like source (only point, sphere, shell)."""
-        from truepull.integrate.field_point import point_gradient, shell_gradient
+    @property
+    def has_gradient(self) -> bool:
+        return self.kind in GRADIENT_KINDS
 
+    def gradient(self, points):
+        """Gradient tensor T_ij = d g_i / d x_j (N, 3, 3), 1/s^2, world axes, of a point, sphere, shell,
+        box or mesh source (closed forms)."""
         b = self.body
-        if self.kind == "shell":
-            return shell_gradient(points, b.com, b.shape.radius, b.shape.inner_radius, b.mass, self.G)
+        points = np.ascontiguousarray(points, float).reshape(-1, 3)
         if self.kind in POINTLIKE_KINDS:
+            from truepull.integrate.field_point import point_gradient, shell_gradient
+
+            if self.kind == "shell":
+                return shell_gradient(points, b.com, b.shape.radius, b.shape.inner_radius, b.mass, self.G)
             return point_gradient(points, b.com[None, :], np.array([b.mass]), self.G)
-        raise ValueError("gradient only for point-like sources")
+        R = b.placement.rotation
+        if self.kind == "box":
+            from truepull.integrate.field_prism import prism_gradient
+
+            T = prism_gradient(self._local(points), 0.5 * np.asarray(b.shape.size, float), b.density, self.G)
+        elif self.kind == "mesh":
+            from truepull.integrate.field_polyhedron import PolyhedronData, polyhedron_gradient
+
+            if self._poly is None:
+                self._poly = PolyhedronData(np.asarray(b.shape.vertices, float), np.asarray(b.shape.faces))
+            T = polyhedron_gradient(self._local(points), self._poly, b.density, self.G)
+        else:
+            raise ValueError(f"no closed-form gradient for a {self.kind}")
+        return np.einsum("ij,njk,lk->nil", R, T, R)
