@@ -30,28 +30,38 @@ Gauss converges like (2 + sqrt 3)^(-2n), about 1e-14 for n = 12."""
 
 
 @njit(cache=True, inline="always")
-def _generator_integral(r0, z0, dr, dz, rho, z, cphi):
+def _generator_integral(r0, z0, dr, dz, rho, z, vers):
     """J = integral over s in [0, 1] of r(s) / |x'(s) - x| for the generator at azimuth offset phi'
-    (cphi = cos phi'), point at cylindrical (rho, 0, z) in the body frame.
+    (vers = 1 - cos phi' = 2 sin^2(phi'/2)), point at cylindrical (rho, 0, z) in the body frame.
 
     With |x' - x|^2 = Q(s) = A s^2 + B s + C = A (s - s*)^2 + h^2, the integral of 1/sqrt(Q) is
     (asinh(sqrt(A)(1 - s*)/h) - asinh(-sqrt(A) s*/h)) / sqrt(A); it is formed as the log of a ratio of
     sqrt(Q) + sqrt(A)(s - s*) terms (or their reciprocals, for negative arguments) so that nothing cancels,
     and the integral of s/sqrt(Q) follows as (sqrt(Q(1)) - sqrt(Q(0)))/A + s* times the first."""
     A = dr * dr + dz * dz
-    B = 2.0 * (r0 * dr - rho * cphi * dr + (z0 - z) * dz)
-    C = r0 * r0 + rho * rho - 2.0 * r0 * rho * cphi + (z0 - z) * (z0 - z)
+    u = r0 - rho
+    w = z0 - z
+    # vers = 1 - cos phi' = 2 sin^2(phi'/2), given exactly: near phi' = 0 nothing below cancels
+    B = 2.0 * (dr * (u + rho * vers) + w * dz)
+    C = u * u + 2.0 * r0 * rho * vers + w * w
     sa = math.sqrt(A)
     s_star = -B / (2.0 * A)
-    h2 = C - A * s_star * s_star  # squared distance from the point to the generator's line
+    # squared distance from the point to the generator's line, |(x'(0) - x) x t|^2 / A by components
+    k = r0 * dz - w * dr
+    m = w * dr - u * dz + k * vers
+    h2 = (vers * (2.0 - vers) * (k * k + rho * rho * dr * dr) + m * m) / A
     floor = 1e-300 + 1e-28 * C
     if h2 < floor:
         h2 = floor
-    q1 = A + B + C
-    P0 = math.sqrt(C if C > 0.0 else 0.0)
-    P1 = math.sqrt(q1 if q1 > 0.0 else 0.0)
-    a1 = sa * (1.0 - s_star)
-    a0 = -sa * s_star
+    # |x'(1) - x|^2 and the projections of x'(0) - x and x'(1) - x on the generator, each by its own
+    # components (not as A + B + C or from s*), so that they keep their digits near the generator's ends
+    u1 = u + dr
+    w1 = w + dz
+    q1 = u1 * u1 + 2.0 * (r0 + dr) * rho * vers + w1 * w1
+    P0 = math.sqrt(C)
+    P1 = math.sqrt(q1)
+    a0 = 0.5 * B / sa
+    a1 = (dr * (u1 + rho * vers) + w1 * dz) / sa
     if a0 >= 0.0:
         ratio = (P1 + a1) / (P0 + a0)
     elif a1 >= 0.0:
@@ -119,9 +129,11 @@ def _band_at_point(p, rho, z, xh, wh, xl, wl):
         hz = 0.0
         for i in range(xh.shape[0]):
             ph = a + L * xh[i]
-            c = math.cos(ph)
-            J = _generator_integral(r0, z0, dr, dz, rho, z, c) * wh[i] * L
-            hu += (dr * (z0 - z) - dz * (r0 - rho * c)) * J
+            sh = math.sin(0.5 * ph)
+            vers = 2.0 * sh * sh
+            c = 1.0 - vers
+            J = _generator_integral(r0, z0, dr, dz, rho, z, vers) * wh[i] * L
+            hu += (dr * (z0 - z) - dz * (r0 - rho + rho * vers)) * J
             hr += -dz * c * J
             hz += dr * J
             mag += abs(J)
@@ -130,9 +142,11 @@ def _band_at_point(p, rho, z, xh, wh, xl, wl):
         lz = 0.0
         for i in range(xl.shape[0]):
             ph = a + L * xl[i]
-            c = math.cos(ph)
-            J = _generator_integral(r0, z0, dr, dz, rho, z, c) * wl[i] * L
-            lu += (dr * (z0 - z) - dz * (r0 - rho * c)) * J
+            sh = math.sin(0.5 * ph)
+            vers = 2.0 * sh * sh
+            c = 1.0 - vers
+            J = _generator_integral(r0, z0, dr, dz, rho, z, vers) * wl[i] * L
+            lu += (dr * (z0 - z) - dz * (r0 - rho + rho * vers)) * J
             lr += -dz * c * J
             lz += dr * J
         iu += hu
