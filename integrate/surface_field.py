@@ -174,7 +174,8 @@ def adaptive_surface_field(points, kinds, params, cell_patch, cell_dom, total_ar
 def surface_field(points, patchset, density, G, tol_u, tol_g, order=8, max_depth=MAX_DEPTH):
     """Potential U (J/kg) and field g (m/s^2) of a uniform body from its surface patches.
 
-    tol_u, tol_g: absolute tolerances on U and |g| at each point. Returns (U, g, err_U, err_g, ok).
+    tol_u, tol_g: absolute tolerances on U and |g| (numbers, the same at every point). Returns
+    (U, g, err_U, err_g, ok).
     """
     points = np.ascontiguousarray(points, dtype=float).reshape(-1, 3)
     xg, wg = gauss_unit(order)
@@ -187,7 +188,7 @@ def surface_field(points, patchset, density, G, tol_u, tol_g, order=8, max_depth
     fg = G * abs(density)
     IU, IG, EU, EG, OK = adaptive_surface_field(
         points, patchset.kinds, patchset.params, patchset.cell_patch, patchset.cell_dom, total_area,
-        xg, wg, tol_u / max(fu, 1e-300), tol_g / max(fg, 1e-300), max_depth)
+        xg, wg, float(tol_u) / max(fu, 1e-300), float(tol_g) / max(fg, 1e-300), int(max_depth))
     U = -0.5 * G * density * IU
     g = -G * density * IG
     return U, g, fu * EU, fg * EG, OK
