@@ -113,7 +113,7 @@ def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10
         tol = rtol * G * tolerance_scales(integ, src, pivot)
     tol_u, tol_g = field_tolerances(patches, integ.density, pivot, axis, centroid, tol, order)
     res = integrate_surface(patches, integ.density, lambda X: field.field_with_differences(X, tol_u, tol_g), pivot, axis,
-                            centroid, tol, order=order)
+                            centroid, tol, order=order, distance=field.distance)
     vals = res.values
     # rounding floor: a few hundred ulps of the magnitude of each result
     errs = res.errors + 256 * EPS * np.abs(vals)

@@ -125,6 +125,12 @@ class SourceField:
         """A closed-form result: no refinement difference, rounding `rtol` (scalar or per point) of the size."""
         return (U, g, np.zeros_like(U), np.zeros_like(g), rtol * np.abs(U), rtol * np.linalg.norm(g, axis=1))
 
+    def distance(self, points) -> np.ndarray:
+        """Distance (m) from world points (N, 3) to the source's surface (signed: negative inside)."""
+        from truepull.geometry.distance import signed_distance
+
+        return signed_distance(self.body.shape, self._local(np.asarray(points, float).reshape(-1, 3)))
+
     @property
     def has_gradient(self) -> bool:
         return self.kind in GRADIENT_KINDS

@@ -250,12 +250,15 @@ def parallel_cylinders(test, source, pivot, G=G, rtol=1e-13):
 
         regions = [(True, [0.0, 0.0], [s0, np.pi])] if s0 > 0 else []
         regions.append((False, [0.0, 0.0], [np.pi, np.pi]))
+        # level bodies (c = 0): the axial force vanishes by mirror symmetry about the common mid-plane,
+        # and a relative tolerance on an exact zero could never be met, so that component is left out
+        keep = np.array([0, 1, 3, 4, 5] if c == 0.0 else [0, 1, 2, 3, 4, 5])
         for inner, lo, hi in regions:
-            res = cubature(lambda x, inner=inner: integrand(x, inner), lo, hi, rtol=rtol, atol=0.0,
+            res = cubature(lambda x, inner=inner: integrand(x, inner)[:, keep], lo, hi, rtol=rtol, atol=0.0,
                            max_subdivisions=200000)
             assert res.status == "converged", res.status
-            tot += sgn * res.estimate
-            err += res.error
+            tot[keep] += sgn * res.estimate
+            err[keep] += res.error
     k = -G * test.density * source.density
     E = k * tot[0]
     f_plane = k * tot[1] * ex
