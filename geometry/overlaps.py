@@ -1,6 +1,7 @@
 """Which bodies overlap, touch, or (for holes) stick out of the body they are cut from.
 
-Method, per pair: a bounding-sphere prefilter; then the deepest point common to both bodies is
+Method, per pair: a bounding-sphere and bounding-box prefilter, and a separating plane between the
+two convex hulls (support.py), which proves them apart when one is found; otherwise the deepest point common to both bodies is
 sought by minimising f(p) = max(d_a(p), d_b(p)) over world points p, with d the signed distance to
 each surface (distance.py): f < 0 inside both, so min f < -tol means the volumes intersect
 ("overlap") and |min f| <= tol means they meet without intersecting ("touch"). Start points are a
@@ -18,6 +19,7 @@ from __future__ import annotations
 import numpy as np
 
 from truepull.geometry.shapes import Box, Cone, Cylinder, Ellipsoid, MeshShape, Point, Shell, Sphere
+from truepull.geometry.support import separation_gap
 
 TOUCH_RTOL = 1e-9
 CONVEX = (Sphere, Box, Cone, Ellipsoid)  # and Cylinder without a bore (checked below)
@@ -128,6 +130,8 @@ def bodies_overlap(a, b, touch_rtol: float = TOUCH_RTOL) -> str | None:
     lo_a, hi_a = world_bounds(a)
     lo_b, hi_b = world_bounds(b)
     if np.any(np.maximum(lo_a, lo_b) > np.minimum(hi_a, hi_b) + tol):
+        return None
+    if separation_gap(a, b) > tol:  # a plane separates their hulls: a proof, no search needed
         return None
     sphere, other = (a, b) if isinstance(a.shape, Sphere) else (b, a)
     if isinstance(sphere.shape, Sphere) and not isinstance(other.shape, Ellipsoid):
