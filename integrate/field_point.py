@@ -19,40 +19,58 @@ SMALL = 4096
 """Below this many point-source pairs plain numpy is used: a parallel kernel's start-up costs more."""
 
 
-@njit(cache=True, parallel=True)
-def _point_field_kernel(points, centres, masses, G):
+VECTOR_MATH = {"reassoc", "contract", "arcp", "nsz"}
+"""LLVM flags that let the sums over sources run in SIMD lanes (reordered additions, fused multiply-add,
+reciprocals): rounding-level changes only; infinities and NaN keep their meaning."""
+
+
+@njit(cache=True, parallel=True, fastmath=VECTOR_MATH)
+def _point_field_soa(points, cx, cy, cz, gm):
+    """U (N,), g (N, 3) at `points` from point masses G m = gm at (cx, cy, cz) (separate contiguous
+    arrays, so that the loop over sources loads whole SIMD lanes); NaN at a point that coincides with a
+    mass. The inner loop has no branch; a coincidence shows as a non-finite sum."""
     n = points.shape[0]
-    m = centres.shape[0]
+    m = cx.shape[0]
     U = np.zeros(n)
     g = np.zeros((n, 3))
     for i in prange(n):
+        px = points[i, 0]
+        py = points[i, 1]
+        pz = points[i, 2]
         u = 0.0
         gx = 0.0
         gy = 0.0
         gz = 0.0
         for k in range(m):
-            dx = centres[k, 0] - points[i, 0]
-            dy = centres[k, 1] - points[i, 1]
-            dz = centres[k, 2] - points[i, 2]
+            dx = cx[k] - px
+            dy = cy[k] - py
+            dz = cz[k] - pz
             r2 = dx * dx + dy * dy + dz * dz
-            if r2 == 0.0:
-                u = np.nan
-                gx = np.nan
-                gy = np.nan
-                gz = np.nan
-                continue
             inv_r = 1.0 / np.sqrt(r2)
-            gm_r = G * masses[k] * inv_r
+            gm_r = gm[k] * inv_r
             u -= gm_r
             s = gm_r * inv_r * inv_r
             gx += s * dx
             gy += s * dy
             gz += s * dz
+        if not (np.isfinite(u) and np.isfinite(gx) and np.isfinite(gy) and np.isfinite(gz)):
+            u = np.nan
+            gx = np.nan
+            gy = np.nan
+            gz = np.nan
         U[i] = u
         g[i, 0] = gx
         g[i, 1] = gy
         g[i, 2] = gz
     return U, g
+
+
+def _point_field_kernel(points, centres, masses, G):
+    """U (N,), g (N, 3) at `points` from point masses (centres (M, 3), masses (M,)), G in SI."""
+    c = np.asarray(centres, float)
+    return _point_field_soa(np.ascontiguousarray(points, float), np.ascontiguousarray(c[:, 0]),
+                            np.ascontiguousarray(c[:, 1]), np.ascontiguousarray(c[:, 2]),
+                            G * np.asarray(masses, float))
 
 
 @njit(cache=True, parallel=True)

@@ -4,7 +4,8 @@ Prints a table of warm timings (each case run once to compile and fill nothing e
 the pair memory cleared): the demo at one position to 1e-9, a scene of two cylindrical bobs on a box
 beam with two cylindrical attractors 3 mm away (to 1e-9, beside a plain vectorised numpy volume-volume
 Gauss brute force of the same scene and the brute force's own achieved accuracy), a 10,000-face mesh
-against a sphere, and the core kernel's rate: band-field generator integrals per second.
+against a sphere, and the kernels' rates: the point-pair kernel (pair interactions per second) and the
+band field (points per second).
 """
 
 from __future__ import annotations
@@ -163,6 +164,15 @@ def main():
     # generator integrals: points x bands x panels x (N_HIGH + N_LOW); panels ~2-3 at these distances
     rows.append(("band field of a cylinder, 20000 points", f"{dt * 1e3:.0f} ms",
                  f"{20000 / dt:.3g} points/s ({len(ps.kinds)} bands, {N_HIGH}+{N_LOW} nodes per panel)"))
+    from truepull.integrate.field_point import _point_field_kernel
+
+    rng = np.random.default_rng(2)
+    targets, sources, masses = rng.uniform(-1, 1, (20000, 3)), rng.uniform(2, 3, (5000, 3)), rng.uniform(1, 2, 5000)
+    _point_field_kernel(targets[:10], sources[:10], masses[:10], 6.674e-11)
+    t, _ = timed(lambda: _point_field_kernel(targets, sources, masses, 6.674e-11), repeat=5)
+    rows.append(("point-pair kernel, 20000 x 5000 pairs", f"{t * 1e3:.0f} ms",
+                 f"{targets.shape[0] * sources.shape[0] / t:.3g} pair interactions/s (U and g of one point "
+                 "mass at one point)"))
     print(f"machine: {os.cpu_count()} cores, {platform.processor() or platform.machine()}, "
           f"{platform.python_implementation()} {platform.python_version()}")
     w = max(len(r[0]) for r in rows)
