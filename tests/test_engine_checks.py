@@ -249,3 +249,55 @@ def test_compare_json_has_the_contract_shape(tmp_path, capsys):
         assert key in r["exact"] and key in r["point"]
     assert set(r["error"]) >= {"force", "torque_axis", "stiffness_axis"}
     assert r["pairs"][0]["test"] == "bob" and r["pairs"][0]["source"] == "mass" and r["pairs"][0]["method"]
+
+
+@pytest.mark.parametrize("bore_length", [0.02, 0.012])  # through the block, and a blind bore from its top
+def test_a_bored_block_pulls_like_the_block_less_its_bore(bore_length):
+    # holes: a box with a cylindrical bore along its z axis (a `subtract` body), and a ball on that
+    # axis 1% of the bore's diameter above the top face. References outside the engine: the box's
+    # on-axis field (rectangular-plate solid angle integrated over the thickness by scipy quad,
+    # engine_references.plate_on_axis) less the bore's (the cylinder's on-axis closed form); the ball
+    # feels m g there (shell theorem), and the block minus that by Newton's third law.
+    from engine_references import cylinder_on_axis, plate_on_axis
+
+    hx, hy, t, rb = 0.015, 0.01, 0.02, 0.004
+    rho = 7800.0
+    zb = 0.5 * t - 0.5 * bore_length  # bore centre: its top flush with the block's top face
+    zball = 0.5 * t + 0.01 * 2 * rb + 0.003
+    text = f"""
+[[body]]
+name = "block"
+group = "pendulum"
+shape = "box"
+size = [{2 * hx}, {2 * hy}, {t}]
+density = {rho}
+at = [0.03, 0, 0]
+[[body]]
+name = "bore"
+group = "pendulum"
+shape = "cylinder"
+radius = {rb}
+length = {bore_length}
+density = {rho}
+subtract = true
+at = [0.03, 0, {zb}]
+[[body]]
+name = "ball"
+group = "attractor"
+shape = "sphere"
+radius = 0.003
+density = 11340
+at = [0.03, 0, {zball}]
+"""
+    sc = load_scene_text(text)
+    c = compare_groups(sc, rtol=1e-10)
+    m = sc.body("ball").mass
+    gz_box, e_box = plate_on_axis(hx, hy, t, rho, zball)
+    _, gz_bore = cylinder_on_axis(rb, bore_length, rho, zball - zb)
+    F_ref = -m * (gz_box - gz_bore)  # on the block, upward toward the ball
+    Fz = c.exact.force[2]
+    assert Fz == pytest.approx(F_ref, rel=1e-9)
+    assert abs(Fz - F_ref) <= np.linalg.norm(c.error.force) + m * e_box
+    # the bore matters far above 1e-9: without it the pull is larger by m g_bore
+    assert abs(m * gz_bore) > 1e-3 * abs(F_ref)
+    assert np.allclose(c.exact.force[:2], 0.0, atol=1e-9 * abs(F_ref))
