@@ -189,6 +189,35 @@ def _load_block(points, c, vx, vy, vz, px, py, pz, rn):
             rn[k, j] = np.sqrt(x * x + y * y + z * z)
 
 
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FAST)
+def _block_face_angles(f, fa, fb, fc, vx, vy, vz, fan, px, py, pz, rn, om):
+    """om[j] = signed solid angle of face f seen from point j of the block."""
+    ia = fa[f]
+    ib = fb[f]
+    ic = fc[f]
+    Nx = fan[0, f]
+    Ny = fan[1, f]
+    Nz = fan[2, f]
+    for j in range(_BLOCK):
+        ax = vx[ia] - px[j]
+        ay = vy[ia] - py[j]
+        az = vz[ia] - pz[j]
+        triple = ax * Nx + ay * Ny + az * Nz
+        om[j] = _face_angle(ax, ay, az, rn[ia, j], vx[ib] - px[j], vy[ib] - py[j], vz[ib] - pz[j],
+                            rn[ib, j], vx[ic] - px[j], vy[ic] - py[j], vz[ic] - pz[j], rn[ic, j], triple)
+
+
+@njit(cache=True, inline="always", error_model="numpy", fastmath=_FAST)
+def _block_edge_factors(e, ea, eb, vx, vy, vz, elen, px, py, pz, rn, L):
+    """L[j] = edge factor of edge e seen from point j of the block (inf on the edge's line)."""
+    ia = ea[e]
+    ib = eb[e]
+    le = elen[e]
+    for j in range(_BLOCK):
+        L[j] = _edge_factor(vx[ia] - px[j], vy[ia] - py[j], vz[ia] - pz[j], rn[ia, j],
+                            vx[ib] - px[j], vy[ib] - py[j], vz[ib] - pz[j], rn[ib, j], le)
+
+
 @njit(cache=True, parallel=True, error_model="numpy", fastmath=_FAST)
 def _field_kernel(points, vx, vy, vz, fa, fb, fc, fn, fan, ea, eb, elen, ed):
     """Sums S_U = sum_e r.E.r L - sum_f (n.r)^2 omega and S_g = sum_f n (n.r) omega - sum_e E r L
@@ -210,47 +239,24 @@ def _field_kernel(points, vx, vy, vz, fa, fb, fc, fn, fan, ea, eb, elen, ed):
         gy = np.zeros(_BLOCK)
         gz = np.zeros(_BLOCK)
         _load_block(points, c, vx, vy, vz, px, py, pz, rn)
+        om = np.empty(_BLOCK)
+        L = np.empty(_BLOCK)
         for f in range(fa.shape[0]):
+            _block_face_angles(f, fa, fb, fc, vx, vy, vz, fan, px, py, pz, rn, om)
             ia = fa[f]
-            ib = fb[f]
-            ic = fc[f]
-            Ax = vx[ia]
-            Ay = vy[ia]
-            Az = vz[ia]
-            Bx = vx[ib]
-            By = vy[ib]
-            Bz = vz[ib]
-            Cx = vx[ic]
-            Cy = vy[ic]
-            Cz = vz[ic]
-            Nx = fan[0, f]
-            Ny = fan[1, f]
-            Nz = fan[2, f]
             nx = fn[0, f]
             ny = fn[1, f]
             nz = fn[2, f]
             for j in range(_BLOCK):
-                ax = Ax - px[j]
-                ay = Ay - py[j]
-                az = Az - pz[j]
-                triple = ax * Nx + ay * Ny + az * Nz
-                om = _face_angle(ax, ay, az, rn[ia, j], Bx - px[j], By - py[j], Bz - pz[j],
-                                 rn[ib, j], Cx - px[j], Cy - py[j], Cz - pz[j], rn[ic, j], triple)
-                hn = nx * ax + ny * ay + nz * az
-                h = hn * om
+                hn = nx * (vx[ia] - px[j]) + ny * (vy[ia] - py[j]) + nz * (vz[ia] - pz[j])
+                h = hn * om[j]
                 pot[j] -= hn * h
                 gx[j] += nx * h
                 gy[j] += ny * h
                 gz[j] += nz * h
         for e in range(ea.shape[0]):
+            _block_edge_factors(e, ea, eb, vx, vy, vz, elen, px, py, pz, rn, L)
             ia = ea[e]
-            ib = eb[e]
-            Ax = vx[ia]
-            Ay = vy[ia]
-            Az = vz[ia]
-            Bx = vx[ib]
-            By = vy[ib]
-            Bz = vz[ib]
             # the edge dyads are symmetric (all four normals lie in the plane normal to the edge)
             d0 = ed[0, e]
             d1 = ed[1, e]
@@ -258,21 +264,18 @@ def _field_kernel(points, vx, vy, vz, fa, fb, fc, fn, fan, ea, eb, elen, ed):
             d4 = ed[4, e]
             d5 = ed[5, e]
             d8 = ed[8, e]
-            le = elen[e]
             for j in range(_BLOCK):
-                ax = Ax - px[j]
-                ay = Ay - py[j]
-                az = Az - pz[j]
-                L = _edge_factor(ax, ay, az, rn[ia, j], Bx - px[j], By - py[j], Bz - pz[j],
-                                 rn[ib, j], le)
-                L = L if L != np.inf else 0.0   # on the edge: the coefficient vanishes faster
+                ax = vx[ia] - px[j]
+                ay = vy[ia] - py[j]
+                az = vz[ia] - pz[j]
+                Lj = L[j] if L[j] != np.inf else 0.0   # on the edge: the coefficient vanishes faster
                 ex = d0 * ax + d1 * ay + d2 * az
                 ey = d1 * ax + d4 * ay + d5 * az
                 ez = d2 * ax + d5 * ay + d8 * az
-                pot[j] += (ax * ex + ay * ey + az * ez) * L
-                gx[j] -= ex * L
-                gy[j] -= ey * L
-                gz[j] -= ez * L
+                pot[j] += (ax * ex + ay * ey + az * ez) * Lj
+                gx[j] -= ex * Lj
+                gy[j] -= ey * Lj
+                gz[j] -= ez * Lj
         for j in range(_BLOCK):
             i = c * _BLOCK + j
             if i < n:
@@ -298,63 +301,35 @@ def _gradient_kernel(points, vx, vy, vz, fa, fb, fc, fn, fan, ea, eb, elen, ed):
         rn = np.empty((nv, _BLOCK))
         t = np.zeros((6, _BLOCK))
         _load_block(points, c, vx, vy, vz, px, py, pz, rn)
+        om = np.empty(_BLOCK)
+        L = np.empty(_BLOCK)
         for f in range(fa.shape[0]):
-            ia = fa[f]
-            ib = fb[f]
-            ic = fc[f]
-            Ax = vx[ia]
-            Ay = vy[ia]
-            Az = vz[ia]
-            Bx = vx[ib]
-            By = vy[ib]
-            Bz = vz[ib]
-            Cx = vx[ic]
-            Cy = vy[ic]
-            Cz = vz[ic]
-            Nx = fan[0, f]
-            Ny = fan[1, f]
-            Nz = fan[2, f]
+            _block_face_angles(f, fa, fb, fc, vx, vy, vz, fan, px, py, pz, rn, om)
             nx = fn[0, f]
             ny = fn[1, f]
             nz = fn[2, f]
             for j in range(_BLOCK):
-                ax = Ax - px[j]
-                ay = Ay - py[j]
-                az = Az - pz[j]
-                triple = ax * Nx + ay * Ny + az * Nz
-                om = _face_angle(ax, ay, az, rn[ia, j], Bx - px[j], By - py[j], Bz - pz[j],
-                                 rn[ib, j], Cx - px[j], Cy - py[j], Cz - pz[j], rn[ic, j], triple)
-                t[0, j] -= nx * nx * om
-                t[1, j] -= nx * ny * om
-                t[2, j] -= nx * nz * om
-                t[3, j] -= ny * ny * om
-                t[4, j] -= ny * nz * om
-                t[5, j] -= nz * nz * om
+                t[0, j] -= nx * nx * om[j]
+                t[1, j] -= nx * ny * om[j]
+                t[2, j] -= nx * nz * om[j]
+                t[3, j] -= ny * ny * om[j]
+                t[4, j] -= ny * nz * om[j]
+                t[5, j] -= nz * nz * om[j]
         for e in range(ea.shape[0]):
-            ia = ea[e]
-            ib = eb[e]
-            Ax = vx[ia]
-            Ay = vy[ia]
-            Az = vz[ia]
-            Bx = vx[ib]
-            By = vy[ib]
-            Bz = vz[ib]
+            _block_edge_factors(e, ea, eb, vx, vy, vz, elen, px, py, pz, rn, L)
             d0 = ed[0, e]
             d1 = ed[1, e]
             d2 = ed[2, e]
             d4 = ed[4, e]
             d5 = ed[5, e]
             d8 = ed[8, e]
-            le = elen[e]
             for j in range(_BLOCK):
-                L = _edge_factor(Ax - px[j], Ay - py[j], Az - pz[j], rn[ia, j],
-                                 Bx - px[j], By - py[j], Bz - pz[j], rn[ib, j], le)
-                t[0, j] += d0 * L
-                t[1, j] += d1 * L
-                t[2, j] += d2 * L
-                t[3, j] += d4 * L
-                t[4, j] += d5 * L
-                t[5, j] += d8 * L
+                t[0, j] += d0 * L[j]
+                t[1, j] += d1 * L[j]
+                t[2, j] += d2 * L[j]
+                t[3, j] += d4 * L[j]
+                t[4, j] += d5 * L[j]
+                t[5, j] += d8 * L[j]
         for j in range(_BLOCK):
             i = c * _BLOCK + j
             if i < n:
