@@ -131,7 +131,7 @@ def pair_tolerances(test_bodies, source_bodies, pivot, axis, G, rtol):
     for i, t in enumerate(test_bodies):
         for j, s in enumerate(source_bodies):
             own = G * tolerance_scales(t, s, pivot)
-            share = np.maximum(group / n, 1e-3 * own)
+            share = np.maximum(group / n, SYMMETRY_FLOOR * own)
             tols[i, j] = rtol * np.minimum(own, share)
     return tols
 
@@ -161,21 +161,29 @@ def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, to
     return values, errors, pairs, all(p.reached for p in pairs)
 
 
+SYMMETRY_FLOOR = 1e-3
+"""A pair's tolerance never drops below rtol times this fraction of its own point-model size (force,
+and force times lever for torque and stiffness), so that a total that vanishes by symmetry stays
+workable; the same floor, summed over the pairs, is where such a total is judged."""
+
 CANCELLATION_FLOOR = 1e-2
 """A total that cancels to below this fraction of the sum of its pairs' sizes (e.g. a torque that
 vanishes by symmetry) is judged against this fraction of that sum instead of its own size: its relative
 error means nothing, and its absolute error is then held to rtol / 100 of the pairs it is made of."""
 
 
-def _shortfall(values, errors, axis, rtol, parts=None) -> float:
+def _shortfall(values, errors, axis, rtol, parts=None, scales=None) -> float:
     """How many times the errors of |F|, torque_axis and stiffness_axis exceed rtol of their sizes.
-    `parts` (8,): sums of the pairs' absolute values, for the cancellation floor."""
+    `parts` (8,): sums of the pairs' absolute values, for the cancellation floor; `scales` (8,): sums of
+    the pairs' point-model sizes (pairs.tolerance_scales times G), for the symmetry floor."""
     axis = np.asarray(axis, float)
     f = np.linalg.norm(values[0:3])
     sizes = [f, abs(values[3:6] @ axis), abs(values[6])]
     if parts is not None:
         floors = [np.linalg.norm(parts[0:3]), parts[3:6] @ np.abs(axis), parts[6]]
         sizes = [max(s, CANCELLATION_FLOOR * fl) for s, fl in zip(sizes, floors)]
+    if scales is not None:
+        sizes = [max(s, SYMMETRY_FLOOR * sc) for s, sc in zip(sizes, (scales[0], scales[3], scales[6]))]
     checks = [(np.linalg.norm(errors[0:3]), sizes[0]), (errors[3:6] @ np.abs(axis), sizes[1]), (errors[6], sizes[2])]
     worst = 0.0
     for err, size in checks:
@@ -186,6 +194,13 @@ def _shortfall(values, errors, axis, rtol, parts=None) -> float:
 
 def _parts(pairs) -> np.ndarray:
     return np.sum([np.abs(p.values) for p in pairs], axis=0) if pairs else np.zeros(8)
+
+
+def _point_scales(test_bodies, source_bodies, pivot, G) -> np.ndarray:
+    """Sum over the pairs of their point-model sizes (8,), SI (see pairs.tolerance_scales)."""
+    from truepull.integrate.pairs import tolerance_scales
+
+    return G * np.sum([tolerance_scales(t, s, pivot) for t in test_bodies for s in source_bodies], axis=0)
 
 
 def compare_groups(scene, test: str = "pendulum", source: str = "attractor", position=None,
@@ -205,12 +220,13 @@ def compare_groups(scene, test: str = "pendulum", source: str = "attractor", pos
     pivot, axis, G = sc.frame.pivot, sc.frame.axis, sc.G.value
     notes = check_separated(tb, sb, scene.path)
     values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, rtol)
-    short = _shortfall(values, errors, axis, rtol, _parts(pairs))
+    scales = _point_scales(tb, sb, pivot, G)
+    short = _shortfall(values, errors, axis, rtol, _parts(pairs), scales)
     if short > 1.0:
         tighter = max(rtol / (4.0 * short), RTOL_FLOOR)
         values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, tighter,
                                                             pair_tolerances(tb, sb, pivot, axis, G, tighter))
-        short = _shortfall(values, errors, axis, rtol, _parts(pairs))
+        short = _shortfall(values, errors, axis, rtol, _parts(pairs), scales)
     if short > 1.0:
         reached = False
         notes.append(f"tolerance {rtol:g} not reached: errors are up to {short:.3g} times the tolerance")

@@ -301,3 +301,37 @@ at = [0.03, 0, {zball}]
     # the bore matters far above 1e-9: without it the pull is larger by m g_bore
     assert abs(m * gz_bore) > 1e-3 * abs(F_ref)
     assert np.allclose(c.exact.force[:2], 0.0, atol=1e-9 * abs(F_ref))
+
+
+def test_a_torque_that_vanishes_by_symmetry_is_judged_against_the_point_scale():
+    # a box and a cylinder on the x axis, both symmetric under y -> -y: the torque about z vanishes
+    # exactly (mirror symmetry). Its relative error means nothing; the comparison must reach its
+    # tolerance with the torque's absolute error held to rtol * 1e-3 of |F| times the lever (the
+    # floor the pair tolerances use), and the computed torque must be zero within its estimate.
+    text = """
+[units]
+length = "mm"
+[[body]]
+name = "block"
+group = "pendulum"
+shape = "box"
+size = [10, 10, 10]
+density = 8000
+at = [20, 0, 0]
+[[body]]
+name = "slug"
+group = "attractor"
+shape = "cylinder"
+radius = 5
+length = 10
+density = 11340
+at = [31, 0, 0]
+"""
+    sc = load_scene_text(text)
+    rtol = 1e-9
+    c = compare_groups(sc, rtol=rtol)
+    assert c.reached
+    F = np.linalg.norm(c.exact.force)
+    lever = 0.031 + 0.005 * np.sqrt(2)  # farthest reach of either body from the axis (bounding spheres)
+    assert abs(c.exact.torque_axis) <= c.error.torque_axis
+    assert c.error.torque_axis <= rtol * 1e-3 * 2 * F * lever
