@@ -1,8 +1,8 @@
 """Which bodies overlap, touch, or (for holes) stick out of the body they are cut from.
 
 Method, per pair: a bounding-sphere and bounding-box prefilter, and a separating plane between the
-two convex hulls (support.py), which proves them apart when one is found; otherwise the deepest point common to both bodies is
-sought by minimising f(p) = max(d_a(p), d_b(p)) over world points p, with d the signed distance to
+two convex hulls (support.py), which proves them apart when one is found; otherwise the deepest
+point common to both bodies is sought by minimising f(p) = max(d_a(p), d_b(p)) over world points p, with d the signed distance to
 each surface (distance.py): f < 0 inside both, so min f < -tol means the volumes intersect
 ("overlap") and |min f| <= tol means they meet without intersecting ("touch"). Start points are a
 dense scrambled-Sobol sample of the region common to both bounding boxes, each refined by

@@ -64,7 +64,8 @@ def separation_gap(a, b) -> float:
             cand.append(np.cross(e, f))
     n = np.array(cand, float)
     norm = np.linalg.norm(n, axis=1)
-    n = n[norm > 1e-12 * max(np.linalg.norm(d), 1e-300)] / norm[norm > 1e-12 * max(np.linalg.norm(d), 1e-300), None]
+    keep = norm > 1e-12 * max(np.linalg.norm(d), 1e-300)  # drop vanished candidates (parallel axes)
+    n = n[keep] / norm[keep, None]
     n = np.vstack([n, -n])
 
     def gap(dirs):

@@ -11,7 +11,8 @@ K follows from turning the body by theta about the axis: r x N turns with it, it
 
 The surface is refined adaptively: each cell's Gauss value is compared with rules two and four points
 smaller on the same cell; cells whose estimate is within their share (by area) of the tolerance are
-kept, the others split in four. Rule differences plus the propagated field differences and rounding form the error estimate.
+kept, the others split in four. Rule differences plus the propagated field differences and rounding
+form the error estimate.
 """
 
 from __future__ import annotations

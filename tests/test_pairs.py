@@ -207,6 +207,8 @@ def _parallel_pair(case):
 
 @pytest.mark.parametrize("case", list(PARALLEL), ids=list(PARALLEL))
 def test_parallel_cylinders_against_the_exact_two_dimensional_reduction(case):
+    # reference: the exact reduction of two parallel cylinders to a 2-D integral (disc-overlap area,
+    # MathWorld's circle-circle intersection, times the segment-pair closed form), by scipy cubature
     A, B = _parallel_pair(case)
     pivot = np.array([0.004, -0.003, 0.01])  # on a vertical axis: the reference's torque and stiffness
     for test, source in ((A, B), (B, A)):
@@ -226,6 +228,7 @@ def test_parallel_cylinders_against_the_exact_two_dimensional_reduction(case):
 @pytest.mark.parametrize("rtol", [1e-6, 1e-7])
 def test_error_estimates_bound_the_error_at_looser_tolerances(rtol):
     # asked for less, the engine stops earlier, and what it says it reached must still hold
+    # (reference: the 2-D reduction by scipy cubature, as above)
     for case in ("cylinders, 1% gap, offset", "tubes, 1% gap"):
         A, B = _parallel_pair(case)
         pivot = np.array([0.004, -0.003, 0.01])
@@ -281,6 +284,8 @@ def _revolution_beside_box(kind):
 
 @pytest.mark.parametrize("kind", ["cylinder", "cone"])
 def test_beside_a_box_against_the_prism_field_integrated_over_the_volume(kind):
+    # reference: the prism closed form (Nagy, Papp and Benedek) and its gradient integrated over the
+    # cylinder's or cone's volume by numpy Gauss-Legendre along the axis and scipy cubature across
     box = _box()
     test, phi_near = _revolution_beside_box(kind)
     assert bodies_overlap(test, box) is None
@@ -309,6 +314,10 @@ def test_beside_a_box_against_the_prism_field_integrated_over_the_volume(kind):
 # ------------------------------------------------------------------------------------------
 
 def test_mesh_beside_an_ellipsoid_against_the_carlson_field_over_its_volume():
+    # reference: the ellipsoid's exterior field (Carlson's symmetric integrals; the project's kernel,
+    # itself checked against scipy volume quadrature in test_field_ellipsoid.py) and its gradient
+    # (scipy.special.elliprd), integrated over the mesh's VOLUME in tetrahedra by collapsed
+    # Gauss-Legendre: an independent check of the surface formulation, not of the field
     radii = np.array([0.03, 0.02, 0.015])
     Re, te = rot(0.2, -0.1, 0.4), np.array([0.005, 0.002, -0.003])
     ell = body("ell", Ellipsoid(tuple(radii)), te, Re, density=8900.0)
