@@ -89,6 +89,27 @@ def _segment_distance(r0, z0, r1, z1, rho, z):
 
 
 @njit(cache=True, inline="always")
+def _panel_sum(r0, z0, dr, dz, rho, z, a, L, x, w):
+    """One azimuth panel [a, a + L] by the Gauss rule (x, w) on [0, 1]: the panel's shares of IU,
+    IG_rho and IG_z, and the sum of |J| (for the rounding estimate)."""
+    su = 0.0
+    sr = 0.0
+    sz = 0.0
+    mag = 0.0
+    for i in range(x.shape[0]):
+        ph = a + L * x[i]
+        sh = math.sin(0.5 * ph)
+        vers = 2.0 * sh * sh
+        c = 1.0 - vers
+        J = _generator_integral(r0, z0, dr, dz, rho, z, vers) * w[i] * L
+        su += (dr * (z0 - z) - dz * (r0 - rho + rho * vers)) * J
+        sr += -dz * c * J
+        sz += dr * J
+        mag += abs(J)
+    return su, sr, sz, mag
+
+
+@njit(cache=True, inline="always")
 def _band_at_point(p, rho, z, xh, wh, xl, wl):
     """(IU, IG_rho, IG_z), their signed refinement differences (high minus low rule) and the sum of
     magnitudes, for one band at a point (rho, 0, z) of its frame.
@@ -124,31 +145,9 @@ def _band_at_point(p, rho, z, xh, wh, xl, wl):
             a = math.pi * GRADING ** (-(m - k + 1))
             b = GRADING * a
         L = b - a
-        hu = 0.0
-        hr = 0.0
-        hz = 0.0
-        for i in range(xh.shape[0]):
-            ph = a + L * xh[i]
-            sh = math.sin(0.5 * ph)
-            vers = 2.0 * sh * sh
-            c = 1.0 - vers
-            J = _generator_integral(r0, z0, dr, dz, rho, z, vers) * wh[i] * L
-            hu += (dr * (z0 - z) - dz * (r0 - rho + rho * vers)) * J
-            hr += -dz * c * J
-            hz += dr * J
-            mag += abs(J)
-        lu = 0.0
-        lr = 0.0
-        lz = 0.0
-        for i in range(xl.shape[0]):
-            ph = a + L * xl[i]
-            sh = math.sin(0.5 * ph)
-            vers = 2.0 * sh * sh
-            c = 1.0 - vers
-            J = _generator_integral(r0, z0, dr, dz, rho, z, vers) * wl[i] * L
-            lu += (dr * (z0 - z) - dz * (r0 - rho + rho * vers)) * J
-            lr += -dz * c * J
-            lz += dr * J
+        hu, hr, hz, m_abs = _panel_sum(r0, z0, dr, dz, rho, z, a, L, xh, wh)
+        lu, lr, lz, _ = _panel_sum(r0, z0, dr, dz, rho, z, a, L, xl, wl)
+        mag += m_abs
         iu += hu
         igr += hr
         igz += hz
