@@ -34,6 +34,7 @@ import numpy as np
 
 from truepull.geometry.placement import rotation_z_to
 from truepull.integrate import separation
+from truepull.integrate.flux_rules import KINDS as SURFACE_KINDS, flux_nodes
 from truepull.integrate.solid_harmonics import full_m, weighted_sum
 from truepull.integrate.volume_rules import body_nodes, node_count, polynomial_orders, rule_kind
 
@@ -192,27 +193,14 @@ class Moments:
         return f * np.conj(full), f * err
 
 
-def _mesh_inner(body, frame: ExpansionFrame, L: int) -> tuple[np.ndarray, np.ndarray]:
-    """Inner moments of a closed mesh by the divergence theorem: R_lm is homogeneous of degree l and
-    harmonic, so div(x R_lm) = (l + 3) R_lm and the volume integral is a surface integral of
-    R_lm (x . n) / (l + 3), integrated exactly over each triangle by the collapsed Gauss rule."""
-    from truepull.integrate.gauss import gauss_unit
-
-    tri = frame.to_frame(body.placement.apply(body.shape.triangles().reshape(-1, 3))).reshape(-1, 3, 3)
-    s, ws = gauss_unit(max(1, (L + 4) // 2))
-    t, wt = gauss_unit(max(1, (L + 3) // 2))
-    S, T = np.meshgrid(s, t, indexing="ij")
-    Wst = np.outer(ws, wt).ravel() * S.ravel()
-    S, T = S.ravel(), T.ravel()
-    a, b, c = tri[:, 0], tri[:, 1], tri[:, 2]
-    normal2 = np.cross(b - a, c - a)  # 2 A n
-    xn = np.einsum("fi,fi->f", a, normal2)  # (x . n) 2A, constant over a flat face
-    X = a[:, None, :] + S[None, :, None] * (b - a)[:, None, :] + (S * T)[None, :, None] * (c - b)[:, None, :]
-    w = (body.density * xn)[:, None] * Wst[None, :]
-    acc = weighted_sum(X.reshape(-1, 3), w.reshape(-1), L, False)
+def _surface_inner(body, frame: ExpansionFrame, L: int) -> tuple[np.ndarray, np.ndarray]:
+    """Inner moments of a box, cylinder, tube or closed mesh by the divergence theorem: R_lm is
+    homogeneous of degree l about the pivot, so its volume integral is a surface integral of
+    R_lm (x - pivot).n / (l + 3), integrated exactly by `flux_rules`."""
+    X, w = flux_nodes(body, frame.pivot, L)
+    acc = weighted_sum(frame.to_frame(X), w, L, False)
     acc = acc / (np.arange(L + 1) + 3.0)[:, None]
-    scale = weighted_sum(X.reshape(-1, 3), np.abs(w.reshape(-1)), 0, False)[0, 0].real
-    return acc, _rounding(acc, abs(scale), L, frame, body, inner=True)
+    return acc, _rounding(acc, float(np.abs(w).sum()), L, frame, body, inner=True)
 
 
 def _rounding(values, abs_weight_sum, L, frame, body, inner):
@@ -226,7 +214,8 @@ def _rounding(values, abs_weight_sum, L, frame, body, inner):
 
 def body_inner_moments(body, frame: ExpansionFrame, L: int) -> tuple[np.ndarray, np.ndarray]:
     """(a_lm, error) of one body about the frame: closed forms for point/sphere/shell (a harmonic
-    function's mean over a ball or shell is its value at the centre), exact rules otherwise."""
+    function's mean over a ball or shell is its value at the centre), exact surface rules for boxes,
+    cylinders and meshes, exact volume rules otherwise."""
     k = body.shape.kind
     if k in POINTLIKE:
         if body.mass == 0:
@@ -235,8 +224,8 @@ def body_inner_moments(body, frame: ExpansionFrame, L: int) -> tuple[np.ndarray,
         c = frame.to_frame(body.com[None, :])
         v = weighted_sum(c, np.array([body.mass]), L, False)
         return v, _rounding(v, abs(body.mass), L, frame, body, True)
-    if k == "mesh":
-        return _mesh_inner(body, frame, L)
+    if k in SURFACE_KINDS:
+        return _surface_inner(body, frame, L)
     X, w = body_nodes(body, polynomial_orders(rule_kind(body), L))
     v = weighted_sum(frame.to_frame(X), w, L, False)
     return v, _rounding(v, float(np.abs(w).sum()), L, frame, body, True)
