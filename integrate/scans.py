@@ -14,6 +14,7 @@ and the value travel.
 from __future__ import annotations
 
 import math
+import time
 from dataclasses import dataclass, field
 from functools import partial
 
@@ -270,6 +271,24 @@ def _check_indices(n: int, checks: int) -> list[int]:
     return sorted(set(int(round(i)) for i in np.linspace(0, n - 1, checks + 2)[1:-1]))
 
 
+SERIAL_CHECK_SECONDS = 0.5
+"""A check value integrated faster than this: the other checks run here too (a pool of worker
+processes takes about a second to start)."""
+
+
+def _check_values(run, values, workers, scheduler, progress):
+    """Direct rows at the check values: the first here, the rest here too when it was quick, else in
+    parallel (local processes or the cluster)."""
+    if scheduler is not None or not values:
+        return map_parallel(run, values, workers=workers, scheduler=scheduler, progress=progress,
+                            desc="checking multipoles")
+    start = time.perf_counter()
+    first = run(values[0])
+    if time.perf_counter() - start < SERIAL_CHECK_SECONDS:
+        return [first] + [run(v) for v in values[1:]]
+    return [first] + map_parallel(run, values[1:], workers=workers, progress=progress, desc="checking multipoles")
+
+
 def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor", position=None,
          rtol: float = 1e-9, workers: int | None = None, scheduler=None, progress: bool = False,
          scene_path: str | None = None, multipoles: bool = True, checks: int = DEFAULT_CHECKS) -> ScanResult:
@@ -305,8 +324,7 @@ def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor",
             notes.append(f"multipole fast path not used: {exc.reason}; every value integrated directly")
         else:
             idx = _check_indices(len(rows), checks)
-            direct = map_parallel(run, [rows[i].value for i in idx], workers=workers, scheduler=scheduler,
-                                  progress=progress, desc="checking multipoles")
+            direct = _check_values(run, [rows[i].value for i in idx], workers, scheduler, progress)
             results = []
             for i, d in zip(idx, direct):
                 mp = rows[i]

@@ -79,6 +79,23 @@ def test_turn_of_point_masses_is_newton_on_the_multipole_path():
         assert abs(row.exact_stiffness_axis - dtau) <= 1e-7 * max(abs(dtau), 1e-13)
 
 
+def test_slow_checks_go_to_the_workers_and_agree(monkeypatch):
+    # a first check slower than the limit sends the others through map_parallel; same Newton values
+    import truepull.integrate.scans as scans
+
+    sc = _scene(TEST, SOURCE)
+    values = tuple(math.radians(v) for v in range(0, 360, 30))
+    calls = []
+    real = scans.map_parallel
+    monkeypatch.setattr(scans, "SERIAL_CHECK_SECONDS", -1.0)
+    monkeypatch.setattr(scans, "map_parallel", lambda *a, **k: calls.append(len(a[1])) or real(*a, **k))
+    res = scan(sc, Sweep("turn", values, "attractor"), workers=1, checks=3)
+    assert calls == [2] and res.method == "multipole" and len(res.checks) == 3
+    for c in res.checks:
+        tau, _ = _newton_torque(TEST, SOURCE, _rot(c.value))  # Newton, computed here
+        assert c.agrees and abs(c.direct - tau) <= 1e-9 * abs(tau) + 1e-25
+
+
 def test_turning_the_pendulum_and_direct_integration_of_spheres():
     # spheres are points outside themselves (shell theorem): the direct path gives Newton as well
     sc = _scene(TEST, SOURCE, shape="sphere", radius=0.005)
