@@ -7,7 +7,7 @@ seed. The attractor switches A -> B -> A -> B every 1800 s; it is at A from t = 
 rest before.
 
 It is consistent with the demo's physics only roughly: the torques are rounded from a point-mass-ish
-estimate (about 1.26e-10 N m at A and minus that at B), the moment of inertia from `truepull check`
+estimate (about 5.85e-11 N m at A and minus that at B), the moment of inertia from `truepull check`
 (about 1.385e-4 kg m^2), and the period (300 s) and decrement (0.05) are simply chosen. It is
 invented data for trying `truepull fit` and the report, not a measurement.
 
@@ -27,7 +27,7 @@ SEED = 20240611
 PERIOD = 300.0            # s, damped period (invented)
 DECREMENT = 0.05          # logarithmic decrement per period (invented)
 INERTIA = 1.385e-4        # kg m^2, roughly the demo pendulum's moment of inertia about the fiber
-TORQUE = {"A": 1.26e-10, "B": -1.26e-10}   # N m, rough torque of the attractor on the pendulum
+TORQUE = {"A": 5.85e-11, "B": -5.85e-11}   # N m, rough torque of the attractor on the pendulum
 ZERO = 3.5e-4             # rad, arbitrary zero of the angle read-out
 DRIFT = 2.0e-9            # rad/s, slow drift of the fiber's zero
 NOISE = 2.0e-6            # rad, standard deviation of the read-out noise

@@ -24,7 +24,7 @@ def test_demo_has_the_promised_groups_positions_and_parts():
     kinds = {b.shape.kind for b in scene.group("pendulum")}
     assert {"box", "cylinder", "mesh"} <= kinds
     assert any(b.is_hole for b in scene.group("pendulum"))
-    assert all(b.shape.kind == "cylinder" for b in scene.group("attractor"))
+    assert all(b.shape.kind == "sphere" for b in scene.group("attractor"))
     # stated uncertainties reach the bodies' specs
     assert scene.body("bob-east").spec.size["radius"].u is not None
     assert scene.positions[0].turn.u is not None
@@ -36,18 +36,36 @@ def test_demo_check_has_no_overlap_or_touch_warnings():
     assert not [w for w in warnings if "overlap" in w or "touch" in w or "hole" in w], warnings
 
 
-def test_bobs_clear_the_attractor_by_about_five_mm_at_a_and_b():
-    # upright cylinders with overlapping heights: the gap is the distance between axes minus the radii
-    # (plane geometry, from memory), here for bob radius 6 mm and attractor radius 25 mm
+def test_the_attractor_clears_the_bobs_by_about_seven_mm_at_every_turn():
+    # an upright cylinder and a sphere whose centre lies within the cylinder's height: the gap is the
+    # distance from the sphere's centre to the cylinder's axis minus the two radii (plane geometry,
+    # from memory); here 95 - 52 - 6 - 30 = 7 mm at the closest turn
     scene = load_scene(demo_path())
-    for pos in ("A", "B"):
-        moved = scene.at_position(pos)
-        gaps = []
+    gaps = []
+    for turn in np.radians(np.arange(0.0, 360.0, 0.5)):
+        moved = scene.at_position("far")
+        rot = moved.frame.turn(turn)
         for bob, mass in itertools.product(("bob-east", "bob-west"), ("mass-north", "mass-south")):
             a, b = moved.body(bob), moved.body(mass)
-            d = np.linalg.norm((a.com - b.com)[:2])
-            gaps.append(d - a.shape.radius - b.shape.radius)
-        assert 4.5e-3 < min(gaps) < 5.5e-3
+            c = rot.apply(b.com[None, :])[0]
+            assert abs(c[2] - a.com[2]) < a.shape.length / 2
+            gaps.append(np.linalg.norm((a.com - c)[:2]) - a.shape.radius - b.shape.radius)
+    assert 6.9e-3 < min(gaps) < 7.1e-3
+
+
+def test_a_turn_scan_of_the_demo_may_use_the_multipole_series():
+    # the pendulum's reach is its bobs' outer edge, hypot(52 + 6, 6) mm, and the spheres come within
+    # 95 - 30 mm of the pivot (plane geometry); for the series' convergence a sphere's outer moments
+    # are a point's at its centre (mean-value property), 95 mm from the pivot
+    from truepull.integrate.multipoles import outer_clearance, regions
+
+    scene = load_scene(demo_path())
+    sep = regions(scene.group("pendulum"), scene.group("attractor"), scene.frame.pivot)
+    assert sep.ok
+    assert abs(sep.inner_radius - np.hypot(58e-3, 6e-3)) < 1e-9
+    assert abs(sep.outer_radius - 65e-3) < 1e-9
+    for mass in scene.group("attractor"):
+        assert abs(outer_clearance(mass, scene.frame.pivot) - 95e-3) < 1e-12
 
 
 def test_check_cli_passes_on_the_demo():

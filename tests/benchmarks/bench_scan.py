@@ -1,12 +1,14 @@
 """Speed of a 360-value turn of the attractor (run on demand: `python tests/benchmarks/bench_scan.py`,
-add `--demo-direct` to also time the built-in demo by direct integration, which is slow).
+add `--direct` to also time the demo by direct integration of every value, which is slower).
 
-Prints, warm (second run), wall and CPU time for:
-- a separable bench balance (pendulum inside, attractor outside a sphere about the pivot) on the
-  multipole fast path, including its direct-integration checks;
-- the built-in demo: whether the fast path applies there (its bobs reach farther from the fiber than
-  the attractor cylinders' nearest points, so it does not) and, with --demo-direct, the direct
-  sweep over a few values, scaled to 360.
+Prints a table, wall and CPU time, for:
+- the built-in demo's 360-value turn on the multipole fast path, warm (second run in this process,
+  kernels compiled), including its direct-integration checks;
+- the same as a command in a new process (`truepull scan DEMO --turn 0:359:1`), wall time;
+- a second separable bench balance (a box among the attractor's parts, so its outer moments need
+  quadrature), warm;
+- with --direct: the demo integrated directly (`multipoles=False`) at every 10 deg, scaled to 360
+  (the worker pool started beforehand).
 """
 
 import math
@@ -14,7 +16,7 @@ import sys
 import time
 
 from truepull.geometry.scene import load_scene, load_scene_text
-from truepull.integrate.multipoles import regions
+from truepull.integrate.multipoles import outer_clearance, regions
 from truepull.integrate.scans import Sweep, scan
 
 SEPARABLE = """
@@ -64,27 +66,43 @@ def timed(fn):
 
 
 def main():
+    import subprocess
+
+    from truepull.shapes import demo_path
+
     values = tuple(math.radians(v) for v in range(360))
+    rows = []
+    demo = load_scene(demo_path())
+    sep = regions(demo.group("pendulum"), demo.group("attractor"), demo.frame.pivot)
+    run = lambda: scan(demo, Sweep("turn", values, "attractor"), workers=2, scene_path=str(demo_path()))  # noqa: E731
+    run()
+    res, wall, cpu = timed(run)
+    rows.append(("demo, 360-value turn, warm", wall, cpu,
+                 f"{res.method} (degree {res.degree}), {len(res.checks)} direct checks; reach "
+                 f"{sep.inner_radius * 1e3:.1f} mm, attractor's centres "
+                 f"{min(outer_clearance(b, demo.frame.pivot) for b in demo.group('attractor')) * 1e3:.1f} mm"))
+    cmd = [sys.executable, "-m", "truepull.cli.main", "scan", str(demo_path()), "--turn", "0:359:1", "--csv", "/dev/null"]
+    subprocess.run(cmd, capture_output=True, check=True)  # compile caches
+    w0 = time.perf_counter()
+    subprocess.run(cmd, capture_output=True, check=True)
+    rows.append(("demo, `truepull scan --turn 0:359:1`, new process", time.perf_counter() - w0, float("nan"),
+                 "imports, scene loading and the scan"))
     sc = load_scene_text(SEPARABLE)
     run = lambda: scan(sc, Sweep("turn", values, "attractor"), workers=2)  # noqa: E731
     run()
     res, wall, cpu = timed(run)
-    print(f"separable balance, 360-value turn: {res.method} (degree {res.degree}), "
-          f"{wall:.3f} s wall, {cpu:.3f} s CPU, {len(res.checks)} direct checks")
-
-    from truepull.shapes import demo_path
-
-    demo = load_scene(demo_path())
-    sep = regions(demo.group("pendulum"), demo.group("attractor"), demo.frame.pivot)
-    print(f"demo: pendulum reach {sep.inner_radius * 1e3:.2f} mm, attractor clearance "
-          f"{sep.outer_radius * 1e3:.2f} mm -> multipole fast path {'applies' if sep.ok else 'does not apply'}")
-    if "--demo-direct" in sys.argv:
-        few = tuple(math.radians(v) for v in (-60, -50, -40, 40, 50, 60))
-        sweep = Sweep("turn", few, "attractor")
-        scan(demo, Sweep("turn", few[:1], "attractor"), workers=1)
-        res, wall, cpu = timed(lambda: scan(demo, sweep, workers=2, scene_path=str(demo_path())))
-        print(f"demo, direct integration: {wall / len(few):.3f} s per value wall -> "
-              f"{360 * wall / len(few):.1f} s for 360 values")
+    rows.append(("sphere bobs, ball and block attractor, warm", wall, cpu,
+                 f"{res.method} (degree {res.degree}), {len(res.checks)} direct checks"))
+    if "--direct" in sys.argv:
+        few = tuple(math.radians(v) for v in range(0, 360, 10))
+        scan(demo, Sweep("turn", few[:4], "attractor"), workers=2, scene_path=str(demo_path()), multipoles=False)
+        res, wall, cpu = timed(lambda: scan(demo, Sweep("turn", few, "attractor"), workers=2,
+                                            scene_path=str(demo_path()), multipoles=False))
+        rows.append(("demo, direct, scaled to 360 values", 360 * wall / len(few), 360 * cpu / len(few),
+                     f"{wall / len(few):.3f} s a value on 2 workers"))
+    print(f"{'case':52s} {'wall s':>8s} {'CPU s':>8s}  notes")
+    for name, w, c, note in rows:
+        print(f"{name:52s} {w:8.3f} {c:8.3f}  {note}")
 
 
 if __name__ == "__main__":
