@@ -5,10 +5,13 @@ pendulum and the outer moments Q_lm of the attractor about the pivot, z along th
 
 with orthonormal Y_lm (Condon-Shortley phase), so that W = -G sum (4 pi/(2l+1)) conj(q_lm) Q_lm when
 the pendulum lies inside and the attractor outside a sphere about the pivot. m >= 0 is listed:
-q_l,-m = (-1)^m conj(q_lm), and the same for Q.
+q_l,-m = (-1)^m conj(q_lm), and the same for Q. Where the expansion applies, the torque about the axis
+follows as a Fourier series in the attractor's turn, listed by harmonic m with its truncation bound.
 """
 
 from __future__ import annotations
+
+import math
 
 import numpy as np
 
@@ -61,7 +64,28 @@ def moments_json(scene, degree: int, test: str = "pendulum", source: str = "attr
             "inner_radius": t["inner_radius"], "outer_radius": t["outer_radius"], "valid": t["valid"],
             "reason": t["reason"], "convention": "orthonormal Y_lm with the Condon-Shortley phase; z = frame axis; "
                                                   "m >= 0 listed, X_l,-m = (-1)^m conj(X_lm)",
-            "inner": listing(t["inner"]), "outer": listing(t["outer"]), "outer_reason": t["outer_reason"]}
+            "inner": listing(t["inner"]), "outer": listing(t["outer"]), "outer_reason": t["outer_reason"],
+            "torque_harmonics": _harmonics_json(t["series"])}
+
+
+def _harmonics_json(series):
+    """The torque's Fourier harmonics in the turn, or None where the expansion does not apply."""
+    if series is None:
+        return None
+    return {"truncation_bound": series.bounds.torque,
+            "terms": [{"m": m, "cos": c, "sin": s, "error": e} for m, c, s, e in series.torque_harmonics()]}
+
+
+def _harmonics_lines(series, source: str) -> list[str]:
+    """Table of the torque's harmonics in the attractor's turn phi (those above 1e-12 of the largest)."""
+    h = series.torque_harmonics()
+    big = max((math.hypot(c, s) for _, c, s, _ in h), default=0.0)
+    rows = [[str(m), fmt(c, 10), fmt(s, 10), fmt(math.hypot(c, s), 10), fmt(e, 2)]
+            for m, c, s, e in h if big > 0 and math.hypot(c, s) >= 1e-12 * big]
+    return ["", f"torque about the axis as a Fourier series in the turn phi of {source} from here, "
+                f"tau = sum C_m cos(m phi) + S_m sin(m phi) (N m), from the moments up to degree {series.L}; "
+                f"the terms of higher degree add at most {fmt(series.bounds.torque, 2)} N m at any turn",
+            format_table(["m", "C_m", "S_m", "amplitude", "error"], rows, "rrrrr")]
 
 
 def format_moments(scene, degree: int, test: str = "pendulum", source: str = "attractor", position=None) -> str:
@@ -86,4 +110,6 @@ def format_moments(scene, degree: int, test: str = "pendulum", source: str = "at
         rows = [[str(l), str(m), fmt(v.real, 10), fmt(v.imag, 10), fmt(e, 2)]
                 for l, m, v, e in _entries(mom, degree, 1e-12)]
         lines.append(format_table(["l", "m", "real", "imaginary", "error"], rows, "rrrrr"))
+    if t["series"] is not None:
+        lines += _harmonics_lines(t["series"], source)
     return "\n".join(lines)

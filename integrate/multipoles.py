@@ -454,6 +454,18 @@ class MultipoleSeries:
             "force": self.bounds.force + float(np.sqrt(np.sum(np.sum(self.force_err_c, axis=1) ** 2))),
         }
 
+    def torque_harmonics(self) -> list[tuple[int, float, float, float]]:
+        """The torque about the axis as tau(phi) = sum over m >= 1 of C_m cos(m phi) + S_m sin(m phi)
+        (N m; phi the attractor's turn, rad): [(m, C_m, S_m, error of each)], the error being the
+        propagated moment errors of that harmonic (the truncation bound `bounds.torque` is shared by
+        all, uniform in phi)."""
+        out = []
+        for m in range(1, self.L + 1):
+            c = -1j * m * self.energy_c[self.L + m]  # tau = sum 2 Re(c_m e^{-i m phi}) over m > 0
+            err = 2.0 * m * float(self.energy_err_c[self.L + m])
+            out.append((m, 2.0 * c.real, 2.0 * c.imag, err))
+        return out
+
     @property
     def reached(self) -> bool:
         return self.inner.reached and self.outer.reached
@@ -508,7 +520,8 @@ def moments_table(scene, degree: int, test: str = "pendulum", source: str = "att
     """Moments for display: the inner moments q_lm of `test` and the outer moments Q_lm of `source`
     about the pivot (orthonormal Y_lm, Condon-Shortley phase, z = frame axis), up to `degree`, with
     error estimates, the reach / clearance radii, and whether the expansion is valid here. Outer moments
-    are None when a source body reaches the pivot (they do not exist)."""
+    are None when a source body reaches the pivot (they do not exist). Where the expansion is valid,
+    "series" is the MultipoleSeries of that degree (the torque's Fourier harmonics in the turn)."""
     sc = scene.at_position(position) if position is not None else scene
     frame = ExpansionFrame.of(sc.frame.pivot, sc.frame.axis)
     tb, sb = sc.group(test), sc.group(source)
@@ -518,8 +531,11 @@ def moments_table(scene, degree: int, test: str = "pendulum", source: str = "att
            "pivot": frame.pivot, "axis": frame.rotation[:, 2], "inner_radius": sep.inner_radius,
            "outer_radius": sep.outer_radius, "valid": sep.ok, "reason": sep.reason,
            "inner": inner, "outer": None, "outer_reason": ""}
+    out["series"] = None
     try:
         out["outer"] = outer_moments(sb, frame, degree, rtol)
     except MultipoleRefused as exc:
         out["outer_reason"] = exc.reason
+    if sep.ok and out["outer"] is not None:
+        out["series"] = MultipoleSeries.build(sc.G.value, frame, inner, out["outer"], degree)
     return out

@@ -332,3 +332,32 @@ def test_moments_display_and_json(tmp_path):
     for bad in (-1, 2.5, "x", 1000):
         with pytest.raises(InputError):
             moments_json(sc, bad)
+
+
+def test_torque_harmonics_are_the_fourier_series_of_newton():
+    # tau(phi) of point masses by Newton's law (computed here), sampled at 64 turns; its Fourier
+    # coefficients by numpy's FFT (exact for a trigonometric polynomial, aliasing below 1e-12 here)
+    from truepull.cli.moments import moments_json
+
+    test_pts = [(0.02, (0.03, 0.004, 0.002)), (0.03, (-0.025, -0.01, -0.003))]
+    src_pts = [(1.1, (0.02, 0.09, 0.01)), (0.8, (-0.05, -0.08, -0.02))]
+    sc = _points_scene(test_pts, src_pts)
+    N = 64
+    phis = 2 * np.pi * np.arange(N) / N
+    tau = np.array([_newton(test_pts, src_pts, p)[1] for p in phis])
+    spec = np.fft.rfft(tau) / N
+    data = moments_json(sc, 30)
+    h = data["torque_harmonics"]
+    assert h["truncation_bound"] < 1e-8 * np.max(np.abs(tau))
+    for term in h["terms"][:8]:
+        m = term["m"]
+        C, S = 2 * spec[m].real, -2 * spec[m].imag
+        assert abs(term["cos"] - C) <= 1e-9 * np.max(np.abs(tau)) + h["truncation_bound"]
+        assert abs(term["sin"] - S) <= 1e-9 * np.max(np.abs(tau)) + h["truncation_bound"]
+    # the series summed at one turn is the torque there
+    phi = phis[5]
+    total = sum(t["cos"] * np.cos(t["m"] * phi) + t["sin"] * np.sin(t["m"] * phi) for t in h["terms"])
+    assert abs(total - tau[5]) <= h["truncation_bound"] + 1e-12 * np.max(np.abs(tau))
+    # interleaved: no series
+    sc2 = _points_scene([(0.01, (0.05, 0, 0))], [(1.0, (0, 0.04, 0))])
+    assert moments_json(sc2, 4)["torque_harmonics"] is None
