@@ -20,7 +20,8 @@ from truepull.geometry.scene import load_scene
 from truepull.integrate.scans import DEFAULT_CHECKS, Sweep, parse_range, scan
 
 HELP = "sweep a turn or a shift of a group; exact and point torque and stiffness"
-HEADER = ["value", "exact_torque_axis", "point_torque_axis", "exact_stiffness_axis", "fx", "fy", "fz"]
+HEADER = ["value", "exact_torque_axis", "point_torque_axis", "exact_stiffness_axis", "point_stiffness_axis",
+          "fx", "fy", "fz"]
 
 
 def add_arguments(parser) -> None:
@@ -69,7 +70,7 @@ def csv_text(result, shown) -> str:
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(HEADER)
     for v, r in zip(shown, result.rows):
-        cells = [v, r.exact_torque_axis, r.point_torque_axis, r.exact_stiffness_axis, *r.force]
+        cells = [v, r.exact_torque_axis, r.point_torque_axis, r.exact_stiffness_axis, r.point_stiffness_axis, *r.force]
         w.writerow(["" if (isinstance(c, float) and not math.isfinite(c)) else repr(float(c)) for c in cells])
     return buf.getvalue()
 
@@ -81,6 +82,7 @@ def write_png(path: str, result, shown, unit: str, title: str) -> None:
     exact = np.array([r.exact_torque_axis for r in result.rows])
     point = np.array([r.point_torque_axis for r in result.rows])
     stiff = np.array([r.exact_stiffness_axis for r in result.rows])
+    point_stiff = np.array([r.point_stiffness_axis for r in result.rows])
     big = np.nanmax(np.abs(point)) if np.any(np.isfinite(point)) else 0.0
     with np.errstate(divide="ignore", invalid="ignore"):
         # near the point model's zeros the ratio says nothing; leave those values out
@@ -92,7 +94,9 @@ def write_png(path: str, result, shown, unit: str, title: str) -> None:
     ax[0].set_ylabel("torque about the axis (N m)")
     ax[0].legend()
     ax[0].set_title(title)
-    ax[1].plot(x, stiff, color="C2", lw=1.4)
+    ax[1].plot(x, stiff, label="exact", lw=1.6)
+    ax[1].plot(x, point_stiff, "--", label="point masses", lw=1.2)
+    ax[1].legend()
     ax[1].set_ylabel("gravitational stiffness (N m/rad)")
     ax[2].plot(x, ratio, color="C3", lw=1.4)
     ax[2].set_ylabel("exact / point torque")

@@ -62,10 +62,12 @@ class ScanRow:
     reached: bool = True
     overlap: str = ""
     """Why the exact values are missing (test and source bodies overlap there), or ""."""
+    point_stiffness_axis: float = float("nan")
 
     def to_json(self, value_factor: float = 1.0) -> dict:
         return {"value": self.value / value_factor, "exact_torque_axis": self.exact_torque_axis,
                 "point_torque_axis": self.point_torque_axis, "exact_stiffness_axis": self.exact_stiffness_axis,
+                "point_stiffness_axis": self.point_stiffness_axis,
                 "force": [float(f) for f in self.force], "error_torque_axis": self.error_torque_axis,
                 "error_stiffness_axis": self.error_stiffness_axis, "error_force": self.error_force,
                 "reached": self.reached, "overlap": self.overlap or None}
@@ -175,7 +177,8 @@ def direct_row(job: DirectJob, value: float) -> ScanRow:
         return overlap_row(sc, job, value, exc.reason)
     return ScanRow(float(value), c.exact.torque_axis, c.point.torque_axis, c.exact.stiffness_axis,
                    np.asarray(c.exact.force, float), c.error.torque_axis, c.error.stiffness_axis,
-                   float(np.linalg.norm(c.error.force)), bool(c.reached))
+                   float(np.linalg.norm(c.error.force)), bool(c.reached),
+                   point_stiffness_axis=float(c.point.stiffness_axis))
 
 
 def _is_overlap(exc: InputError) -> bool:
@@ -190,41 +193,48 @@ def overlap_row(sc, job: DirectJob, value: float, reason: str) -> ScanRow:
     pm = point_model(sc.group(job.test), sc.group(job.source), sc.frame.pivot, sc.frame.axis, sc.G.value)
     nan = float("nan")
     return ScanRow(float(value), nan, float(pm[3:6] @ sc.frame.axis), nan, np.full(3, nan), nan, nan, nan,
-                   False, reason)
+                   False, reason, float(pm[6]))
 
 
 # ------------------------------------------------------------------------------------------------
 # point model over a turn, vectorised
 
 
-def point_torques_turn(scene, sweep: Sweep, test: str, source: str, position=None) -> np.ndarray:
-    """Point-model torque about the axis on the test group at each turn value (every body a point
-    of its mass at its centre of mass; the same model as `point_model`)."""
+@dataclass(frozen=True)
+class _Point:
+    """A body as the point model sees it: signed mass (kg) at its centre of mass (m)."""
+
+    mass: float
+    com: np.ndarray
+
+
+def point_values_sweep(scene, sweep: Sweep, test: str, source: str, position=None) -> tuple[np.ndarray, np.ndarray]:
+    """Point-model torque about the axis (N m) and stiffness (N m/rad) on the test group at each sweep
+    value (every body a point of its mass at its centre of mass; the model of `point_model`)."""
+    from truepull.integrate.point_model import point_model
+
     sc = scene.at_position(position) if position is not None else scene
     p, e, G = sc.frame.pivot, sc.frame.axis, sc.G.value
     tb, sb = sc.group(test), sc.group(source)
-    mt = np.array([b.mass for b in tb])
-    ms = np.array([b.mass for b in sb])
     ct = np.array([b.com for b in tb]).reshape(-1, 3)
     cs = np.array([b.com for b in sb]).reshape(-1, 3)
-    out = np.empty(len(sweep.values))
+    tau = np.empty(len(sweep.values))
+    K = np.empty(len(sweep.values))
     for k, v in enumerate(sweep.values):
         mv = sweep.placement(sc.frame, v)
         a = mv.apply(ct) if sweep.group == test else ct
         b = mv.apply(cs) if sweep.group == source else cs
-        d = b[None, :, :] - a[:, None, :]  # test -> source
-        r3 = np.linalg.norm(d, axis=2) ** 3
-        f = G * (mt[:, None] * ms[None, :] / r3)[:, :, None] * d  # force on each test point
-        tau = np.cross(a[:, None, :] - p, f)
-        out[k] = float(np.sum(tau @ e))
-    return out
+        out = point_model([_Point(x.mass, c) for x, c in zip(tb, a)], [_Point(x.mass, c) for x, c in zip(sb, b)], p, e, G)
+        tau[k] = float(out[3:6] @ e)
+        K[k] = float(out[6])
+    return tau, K
 
 
 # ------------------------------------------------------------------------------------------------
 # the scan
 
 
-def _multipole_rows(scene, sweep, test, source, position, rtol, point_tau):
+def _multipole_rows(scene, sweep, test, source, position, rtol, point_tau, point_K):
     """Rows from the multipole series, or raise MultipoleRefused."""
     from truepull.integrate.multipoles import MultipoleRefused, interaction_series
 
@@ -254,8 +264,8 @@ def _multipole_rows(scene, sweep, test, source, position, rtol, point_tau):
             F = np.array([sc.frame.turn(x).apply_vector(f) for x, f in zip(v, F)])
         err = series.errors()
     rows = tuple(ScanRow(float(x), float(t), float(pt), float(k), f, err["torque_axis"], err["stiffness_axis"],
-                         err["force"], True)
-                 for x, t, pt, k, f in zip(v, tau, point_tau, K, F))
+                         err["force"], True, point_stiffness_axis=float(pk))
+                 for x, t, pt, k, f, pk in zip(v, tau, point_tau, K, F, point_K))
     return rows, series
 
 
@@ -317,9 +327,9 @@ def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor",
     if sweep.kind == "turn" and multipoles and sweep.group in (test, source):
         from truepull.integrate.multipoles import MultipoleRefused
 
-        point_tau = point_torques_turn(scene, sweep, test, source, position)
+        point_tau, point_K = point_values_sweep(scene, sweep, test, source, position)
         try:
-            rows, series = _multipole_rows(scene, sweep, test, source, position, rtol, point_tau)
+            rows, series = _multipole_rows(scene, sweep, test, source, position, rtol, point_tau, point_K)
         except MultipoleRefused as exc:
             notes.append(f"multipole fast path not used: {exc.reason}; every value integrated directly")
         else:

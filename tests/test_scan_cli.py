@@ -69,14 +69,21 @@ def test_csv_on_stdout_matches_newton(tmp_path, capsys):
     assert main(["scan", path, "--turn", "0:90:30", "--workers", "1"]) == 0
     out = capsys.readouterr()
     rows = list(csv.reader(io.StringIO(out.out)))
-    assert rows[0] == ["value", "exact_torque_axis", "point_torque_axis", "exact_stiffness_axis", "fx", "fy", "fz"]
+    assert rows[0] == ["value", "exact_torque_axis", "point_torque_axis", "exact_stiffness_axis",
+                       "point_stiffness_axis", "fx", "fy", "fz"]
     assert [float(r[0]) for r in rows[1:]] == [0.0, 30.0, 60.0, 90.0]
     scale = max(abs(_newton(math.radians(float(r[0])))[0]) for r in rows[1:])  # the torque vanishes at 0
     for r in rows[1:]:
         tau, F = _newton(math.radians(float(r[0])))
         assert abs(float(r[1]) - tau) <= 1e-9 * scale
         assert abs(float(r[2]) - tau) <= 1e-12 * scale
-        assert np.linalg.norm(np.array([float(x) for x in r[4:7]]) - F) <= 1e-9 * np.linalg.norm(F)
+        assert np.linalg.norm(np.array([float(x) for x in r[5:8]]) - F) <= 1e-9 * np.linalg.norm(F)
+        # stiffness -d tau / d theta of the pendulum = +d tau / d phi of the attractor: a central
+        # difference of Newton's torque, exact and point model
+        h = 1e-5
+        phi = math.radians(float(r[0]))
+        K = (_newton(phi + h)[0] - _newton(phi - h)[0]) / (2 * h)
+        assert abs(float(r[3]) - K) <= 1e-6 * scale and abs(float(r[4]) - K) <= 1e-6 * scale
     assert "multipole" in out.err
 
 
