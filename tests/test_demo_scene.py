@@ -73,3 +73,21 @@ def test_check_cli_passes_on_the_demo():
                          capture_output=True, text=True, timeout=300)
     assert out.returncode == 0, out.stderr
     assert "overlap" not in out.stdout and "touch" not in out.stdout
+
+
+def test_a_full_turn_of_the_demo_by_multipoles_matches_direct_integration():
+    # reference: the engine's direct integration of every pair (itself checked against outside
+    # references in test_pairs.py), at 12 turns; agreement within the two error estimates and 1e-9
+    from truepull.integrate.scans import Sweep, scan
+
+    scene = load_scene(demo_path())
+    values = tuple(np.radians(np.arange(0.0, 360.0, 30.0) + 7.0))
+    fast = scan(scene, Sweep("turn", values, "attractor"), workers=1)
+    slow = scan(scene, Sweep("turn", values, "attractor"), workers=1, multipoles=False)
+    assert fast.method == "multipole" and slow.method == "direct"
+    big = max(abs(r.exact_torque_axis) for r in slow.rows)
+    for f, s in zip(fast.rows, slow.rows):
+        diff = abs(f.exact_torque_axis - s.exact_torque_axis)
+        assert diff <= f.error_torque_axis + s.error_torque_axis
+        assert diff <= 1e-9 * big
+        assert abs(f.exact_stiffness_axis - s.exact_stiffness_axis) <= f.error_stiffness_axis + s.error_stiffness_axis
