@@ -55,10 +55,12 @@ def _default_G() -> Measured:
 
 @dataclass(frozen=True, eq=False)
 class Frame:
-    """The torsion (fiber) axis: the line through `pivot` (3,) m along the unit vector `axis` (3,)."""
+    """The torsion (fiber) axis: the line through `pivot` (3,) m along the unit vector `axis` (3,);
+    `pivot_u` the pivot's stated standard uncertainties per component (m, None where none is stated)."""
 
     pivot: np.ndarray
     axis: np.ndarray
+    pivot_u: tuple = (None, None, None)
 
     def __post_init__(self):
         p = np.array([float(c) for c in self.pivot], dtype=float)
@@ -211,6 +213,9 @@ class _Reader:
 
     def direction(self, raw, key) -> tuple[float, float, float]:
         v = parse_vector(raw, "dimensionless", "", self.file, key, 3, nonzero=True)
+        if any(c.u for c in v):
+            raise InputError(self.file, key, "a direction takes no '+-': state the uncertainty of a tilt as "
+                                             "rotate = { axis = [...], angle = \"0 +- u deg\" } on the bodies")
         return tuple(c.value for c in v)
 
 
@@ -300,9 +305,9 @@ def _read_scene_section(r: _Reader, raw):
 def _read_frame(r: _Reader, raw) -> Frame:
     t = r.table(raw, "frame")
     r.check_keys(t, FRAME_KEYS, "frame", "[frame]")
-    pivot = r.vector(t["pivot"], "length", "frame.pivot") if "pivot" in t else (0.0, 0.0, 0.0)
+    pivot = r.vector(t["pivot"], "length", "frame.pivot") if "pivot" in t else (Measured(0.0),) * 3
     axis = r.direction(t["axis"], "frame.axis") if "axis" in t else (0.0, 0.0, 1.0)
-    return Frame(np.array([float(c) for c in pivot]), np.array(axis))
+    return Frame(np.array([float(c) for c in pivot]), np.array(axis), tuple(c.u or None for c in pivot))
 
 
 def _read_body(r: _Reader, raw, index: int) -> BodySpec:

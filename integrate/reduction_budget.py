@@ -3,7 +3,9 @@
 Inputs (SI, standard uncertainties k = 1, only those the scene states with a nonzero u): each body's
 parameters of the pendulum and attractor groups as bias names them (geometry.bodies.body_parameters:
 at.x, at.y, at.z, size keys, density or mass) and its rotate.angle; the turn and shift of each
-measured position; the measured angles, periods, decrement, amplitudes and fiber Q.
+measured position; the frame's pivot (where the fiber hangs relative to the drawn parts: moving it
+moves the torque arm, the moment of inertia's axis and, since the positions turn about the frame
+axis, the turntable's axis too); the measured angles, periods, decrement, amplitudes and fiber Q.
 
 The model G(x) rebuilds the scene with the input values (bodies.spec_with + build_body, positions
 replaced), recomputes the moment of inertia and the exact torque curves at the nominal reduction's
@@ -70,6 +72,9 @@ def uncertain_inputs(scene, test: str = "pendulum", source: str = "attractor",
         if spec.rotate_axis is not None and spec.rotate_angle.u:
             refs.append(InputRef(f"body[{body.name}].rotate.angle", "rotate", body.name, "angle",
                                  spec.rotate_angle.value, spec.rotate_angle.u, "rad"))
+    for c, u, value in zip("xyz", scene.frame.pivot_u, scene.frame.pivot):
+        if u:
+            refs.append(InputRef(f"frame.pivot.{c}", "frame", "", c, float(value), float(u), "m"))
     measured = measurement_values(scene, fiber_q)
     used = _measured_positions(scene)
     for pos in scene.positions:
@@ -99,9 +104,14 @@ def apply_inputs(scene, refs, x) -> tuple[object, dict[str, float]]:
     specs: dict[str, object] = {}
     positions = {p.name: p for p in scene.positions}
     measured: dict[str, float] = {}
+    frame = scene.frame
     for ref, value in zip(refs, x):
         value = float(value)
-        if ref.kind == "body":
+        if ref.kind == "frame":
+            pivot = np.array(frame.pivot, float)
+            pivot["xyz".index(ref.param)] = value
+            frame = replace(frame, pivot=pivot)
+        elif ref.kind == "body":
             spec = specs.get(ref.target, scene.body(ref.target).spec)
             specs[ref.target] = spec_with(spec, ref.param, value)
         elif ref.kind == "rotate":
@@ -119,7 +129,7 @@ def apply_inputs(scene, refs, x) -> tuple[object, dict[str, float]]:
         else:
             measured[ref.param] = value
     bodies = tuple(build_body(specs[b.name]) if b.name in specs else b for b in scene.bodies)
-    new = replace(scene, bodies=bodies, positions=tuple(positions[p.name] for p in scene.positions))
+    new = replace(scene, bodies=bodies, positions=tuple(positions[p.name] for p in scene.positions), frame=frame)
     return new, measured
 
 

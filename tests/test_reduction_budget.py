@@ -139,3 +139,34 @@ def test_the_same_budget_on_a_dask_cluster(deflection):
     # the draws depend only on the seed: the cluster must give the very same values
     assert np.array_equal(remote.monte_carlo.values, here.monte_carlo.values)
     assert remote.u_G == here.u_G
+
+
+def test_the_pivot_is_an_input_and_moving_it_is_moving_every_part_the_other_way():
+    # translation invariance of Newton's law: a pivot moved by d is every body (and the turntable's
+    # axis) moved by -d, so dG/d(pivot.x) = -sum over bodies of dG/d(at.x); along the fiber axis the
+    # line is the same line, so dG/d(pivot.z) = 0
+    import re
+
+    theta = {p: sb.equilibrium(psi) for p, psi in (("A", sb.PSI_A), ("B", sb.PSI_B))}
+    meas = (f'method = "deflection"\nangle = {{ A = "{theta["A"]!r} rad", B = "{theta["B"]!r} rad" }}\n'
+            f'period = "{sb.undamped_period(sb.PSI_A)!r} s"\n')
+    # an unbalanced beam (east bob 20 % farther out), so that the pivot matters to first order; the
+    # law holds for any input values, so the angles need not be this scene's equilibria
+    text = sb.scene_text({"A": sb.PSI_A, "B": sb.PSI_B}, meas, east_x=repr(1.2 * sb.D))
+    text = re.sub(r"at = \[([^,]+), ([^,]+), 0\]", r'at = ["\1 +- 1e-5", "\2 +- 1e-5", 0]', text)
+    text = text.replace("[scene]", '[frame]\npivot = ["0 +- 1e-5", "0 +- 1e-5", "0 +- 1e-5"]\n\n[scene]', 1)
+    scene = load_scene_text(text)
+    assert scene.frame.pivot_u == (1e-5, 1e-5, 1e-5)
+    names = [r.name for r in uncertain_inputs(scene)]
+    assert {"frame.pivot.x", "frame.pivot.y", "frame.pivot.z"} <= set(names)
+    result = reduce_measurement(scene)
+    budget = reduction_budget(scene, result, text, samples=0, workers=1)
+    c = {row["input"]: row["sensitivity"] for row in budget.rows}
+    err = {row["input"]: row["sensitivity_error"] for row in budget.rows}
+    bodies = ("bob-east", "bob-west", "ball-1", "ball-2")
+    for axis in "xy":
+        total = sum(c[f"body[{b}].at.{axis}"] for b in bodies)
+        scale = max(abs(c[f"body[{b}].at.{axis}"]) for b in bodies)
+        assert abs(c[f"frame.pivot.{axis}"] + total) <= 1e-6 * scale
+    assert abs(c["frame.pivot.x"]) > 1e-2 * max(abs(c[f"body[{b}].at.x"]) for b in bodies)
+    assert abs(c["frame.pivot.z"]) <= err["frame.pivot.z"] + 1e-9 * abs(c["body[bob-east].at.x"])
