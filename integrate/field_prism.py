@@ -117,6 +117,17 @@ def _closed_form_parts(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R):
                                R[0, 0, s], R[1, 0, s], R[1, 1, s], R[0, 1, s])
 
 
+@njit(cache=True, inline="always")
+def _edge_step(a, b, d, s):
+    """One edge's share of the corner sums, for the log step d along the third axis at corner
+    coordinates (a, b) with sign s: (potential term s a b d, s b d for a's field component, s a d for
+    b's). A zero coordinate contributes nothing (its log step may be infinite there)."""
+    p = s * a * b * d if (a != 0.0 and b != 0.0) else 0.0
+    ja = s * b * d if b != 0.0 else 0.0
+    jb = s * a * d if a != 0.0 else 0.0
+    return p, ja, jb
+
+
 @njit(cache=True)
 def _closed_form_point(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R):
     """Return (I, Jx, Jy, Jz): I = integral dV/r and J = integral (x' - p)/r^3 dV over the prism."""
@@ -129,29 +140,20 @@ def _closed_form_point(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R):
         for j in range(2):
             s = 1.0 if i == j else -1.0
             # step in z at (x_i, y_j)
-            d = D[0, i, j]
-            if X[i] != 0.0 and Y[j] != 0.0:
-                pot += s * X[i] * Y[j] * d
-            if Y[j] != 0.0:
-                jx += s * Y[j] * d
-            if X[i] != 0.0:
-                jy += s * X[i] * d
+            p, ja, jb = _edge_step(X[i], Y[j], D[0, i, j], s)
+            pot += p
+            jx += ja
+            jy += jb
             # step in y at (x_i, z_j)
-            d = D[1, i, j]
-            if X[i] != 0.0 and Z[j] != 0.0:
-                pot += s * X[i] * Z[j] * d
-            if Z[j] != 0.0:
-                jx += s * Z[j] * d
-            if X[i] != 0.0:
-                jz += s * X[i] * d
+            p, ja, jb = _edge_step(X[i], Z[j], D[1, i, j], s)
+            pot += p
+            jx += ja
+            jz += jb
             # step in x at (y_i, z_j)
-            d = D[2, i, j]
-            if Y[i] != 0.0 and Z[j] != 0.0:
-                pot += s * Y[i] * Z[j] * d
-            if Z[j] != 0.0:
-                jy += s * Z[j] * d
-            if Y[i] != 0.0:
-                jz += s * Y[i] * d
+            p, ja, jb = _edge_step(Y[i], Z[j], D[2, i, j], s)
+            pot += p
+            jy += ja
+            jz += jb
     for k in range(2):
         s = 1.0 if k == 1 else -1.0
         pot -= 0.5 * s * (X[k] * X[k] * Om[0, k] + Y[k] * Y[k] * Om[1, k] + Z[k] * Z[k] * Om[2, k])
