@@ -15,7 +15,9 @@ from __future__ import annotations
 
 import sys
 
-from truepull.cli.output import fmt, format_table, print_json
+import numpy as np
+
+from truepull.cli.output import fmt, format_table, print_json, save_figure_atomic
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
 from truepull.integrate.sensitivity import (default_position, flatten_what_if, offset_what_if,
@@ -43,6 +45,8 @@ def add_arguments(parser) -> None:
                         help="what-ifs: reduce G in full before and after (slower) instead of the first-order "
                              "model")
     parser.add_argument("--no-table", action="store_true", help="only the what-ifs, no sensitivity table")
+    parser.add_argument("--png", metavar="FILE", help="bar chart of the ranked sensitivities (ppm per stated u) "
+                                                      "and the what-ifs")
     parser.add_argument("--scheduler", metavar="ADDRESS", help="run on a Dask cluster (default: local processes)")
     parser.add_argument("--workers", type=int, help="local worker processes (default: one per core)")
 
@@ -138,6 +142,54 @@ def render(scene, result, what_ifs) -> str:
     return "\n".join(lines)
 
 
+PNG_ROWS = 20
+
+
+def write_png(path, result, what_ifs, title: str = "") -> None:
+    """Horizontal bars: the ppm of torque (and of G) that each parameter's stated u makes, largest at
+    the top (at most PNG_ROWS); a second panel for the what-ifs when there are any."""
+    from matplotlib.figure import Figure
+
+    rows = [r for r in (result.rows if result is not None else ()) if r.torque_ppm is not None][:PNG_ROWS][::-1]
+    heights = ([0.9 + 0.3 * max(len(rows), 2)] if result is not None or not what_ifs else [])
+    heights += [0.9 + 0.3 * max(len(what_ifs), 2)] if what_ifs else []
+    fig = Figure(figsize=(8.5, sum(heights) + 0.4), layout="constrained")
+    axes = fig.subplots(len(heights), 1, height_ratios=heights, squeeze=False)[:, 0]
+    k = 0
+    if result is not None or not what_ifs:
+        ax = axes[k]
+        k += 1
+        y = np.arange(len(rows))
+        has_G = any(r.G_ppm is not None for r in rows)
+        h = 0.4 if has_G else 0.7
+        ax.barh(y + (h / 2 if has_G else 0), [abs(r.torque_ppm) for r in rows], h, label="torque", color="C0")
+        if has_G:
+            ax.barh(y - h / 2, [abs(r.G_ppm or 0.0) for r in rows], h, label="G", color="C1")
+            ax.legend(fontsize=8, loc="lower right")
+        ax.set_yticks(y, [f"{r.body} {r.parameter}" for r in rows], fontsize=8)
+        ax.set_xlabel("|change| per stated standard uncertainty (ppm), first order")
+        where = f"position {result.position}" if result is not None and result.position else "the scene as drawn"
+        ax.set_title((f"{title}: " if title else "") + f"sensitivity at {where}" +
+                     ("" if rows else " (no uncertainties stated)"), fontsize=10)
+        ax.grid(True, axis="x", alpha=0.3)
+    if what_ifs:
+        ax = axes[k]
+        y = np.arange(len(what_ifs))[::-1]
+        has_G = any(w.G_ppm is not None for w in what_ifs)
+        h = 0.4 if has_G else 0.7
+        ax.barh(y + (h / 2 if has_G else 0), [w.torque_ppm for w in what_ifs], h, label="torque", color="C0")
+        if has_G:
+            ax.barh(y - h / 2, [w.G_ppm or 0.0 for w in what_ifs], h, label="G", color="C1")
+            ax.legend(fontsize=8, loc="lower right")
+        ax.set_yticks(y, [w.description if len(w.description) <= 60 else w.description[:57] + "..."
+                          for w in what_ifs], fontsize=8)
+        ax.axvline(0.0, color="k", lw=0.8)
+        ax.set_xlabel("change (ppm)")
+        ax.set_title("what if", fontsize=10)
+        ax.grid(True, axis="x", alpha=0.3)
+    save_figure_atomic(fig, path, dpi=110)
+
+
 def run(args) -> int:
     scene = load_scene(args.scene)
     items = parse_what_ifs(scene, args)
@@ -151,10 +203,14 @@ def run(args) -> int:
                                bodies=args.body)
     what_ifs = [run_what_if(scene, it, test=args.test, source=args.source, position=position, rtol=args.rtol,
                             full_reduction=args.full_reduction) for it in items]
+    if args.png:
+        write_png(args.png, result, what_ifs, scene.title or "")
     if args.json:
         data = result.to_json() if result is not None else {"rows": []}
         data["what_if"] = [w.to_json() for w in what_ifs]
         print_json(data)
     else:
         print(render(scene, result, what_ifs))
+        if args.png:
+            sys.stderr.write(f"truepull bias: wrote {args.png}\n")
     return 0

@@ -54,6 +54,7 @@ FIGURES = {
     "view": ("view.png", "3-D view"),
     "fit": ("fit.png", "fit of the recorded run"),
     "budget": ("budget.png", "uncertainty budget"),
+    "bias": ("bias.png", "sensitivity ranking"),
 }
 
 
@@ -306,6 +307,9 @@ def section_scan(ctx: Context) -> Section:
 # --- bias ----------------------------------------------------------------------------------------
 
 BIAS_ROWS_SHOWN = 15
+REPORT_FLATTENING = 1e-3
+"""The flattening of the report's what-if for each attractor sphere (an example size: 0.1 %)."""
+REPORT_SPHERES = 4
 
 
 def section_bias(ctx: Context) -> Section:
@@ -326,6 +330,25 @@ def section_bias(ctx: Context) -> Section:
              _md_table(head, rows, "llrrrrr")]
     if len(result.rows) > BIAS_ROWS_SHOWN:
         parts.append(f"The {BIAS_ROWS_SHOWN} largest of {len(result.rows)} rows; all are in report.json.")
+    what_ifs = [sens.flatten_what_if(ctx.scene, b.name, REPORT_FLATTENING, test=ctx.args.test, source=ctx.args.source,
+                                     position=result.position, rtol=ctx.args.survey_rtol)
+                for b in ctx.scene.group(ctx.args.source) if b.shape.kind == "sphere"][:REPORT_SPHERES]
+    if what_ifs:
+        s.data["what_if"] = [w.to_json() for w in what_ifs]
+        parts.append(f"What if a sphere is not round: each {ctx.args.source} sphere as an ellipsoid of equal mass and "
+                     f"density, flattened by {REPORT_FLATTENING:g} along the fiber axis (semi-axes a, a, a (1 - f)), "
+                     f"the others unchanged (torque at {where}; G by {what_ifs[0].G_method or 'no model: no measurement'}).")
+        parts.append(_md_table(["change", "torque before (N m)", "after (N m)", "torque ppm", "G ppm"],
+                               [[w.description, fmt(w.torque_before, 10), fmt(w.torque_after, 10),
+                                 f"{w.torque_ppm:+.4g}", "-" if w.G_ppm is None else f"{w.G_ppm:+.4g}"]
+                                for w in what_ifs], "lrrrr"))
+    if what_ifs or any(r.torque_ppm is not None for r in result.rows):
+        from truepull.cli.bias import write_png as bias_png
+
+        png, caption = FIGURES["bias"]
+        bias_png(ctx.folder / png, result, what_ifs, ctx.scene.title or "")
+        s.figures.append(png)
+        parts.append(f"![{caption}]({png})")
     parts += [f"Note: {n}" for n in result.notes]
     s.markdown = "\n\n".join(parts)
     return s

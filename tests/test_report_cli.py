@@ -169,7 +169,8 @@ def test_report_folder_holds_what_it_promises(full_report):
     info = _load(out)
     files = set(p.name for p in out.iterdir())
     assert set(info["files"]) == files
-    assert {"report.md", "report.json", "torque_vs_turn.png", "scan.csv", "fit.png", "budget.png", "view.png"} <= files
+    assert {"report.md", "report.json", "torque_vs_turn.png", "scan.csv", "fit.png", "budget.png", "view.png",
+            "bias.png"} <= files
     for section in ("check", "compare", "scan", "bias", "fit", "reduce", "view"):
         assert info["sections"][section]["available"], section
         for fig in info["sections"][section]["figures"]:
@@ -194,6 +195,18 @@ def test_report_with_a_measurement_carries_its_G(full_report):
     assert red["G"] == pytest.approx(G_TRUE, rel=1e-7)
     assert red["u_G"] > 0 and red["budget"]
     assert f"G = {red['G']:.9g}" in (out / "report.md").read_text()
+
+
+def test_report_asks_what_a_flattened_attractor_sphere_does(full_report):
+    # one what-if per attractor sphere; for equal masses at mirror-image places the two agree (symmetry)
+    code, out = full_report
+    wi = _load(out)["sections"]["bias"]["what_if"]
+    assert [w["kind"] for w in wi] == ["flatten", "flatten"]
+    for w in wi:
+        assert w["torque_ppm"] == pytest.approx(1e6 * (w["torque_after"] / w["torque_before"] - 1), rel=1e-9)
+        assert w["G_ppm"] is not None
+    assert wi[0]["torque_ppm"] == pytest.approx(wi[1]["torque_ppm"], rel=1e-3)
+    assert "What if a sphere is not round" in (out / "report.md").read_text()
 
 
 def test_report_compare_is_newton_for_spheres(full_report):
