@@ -62,6 +62,7 @@ def moments_json(scene, degree: int, test: str = "pendulum", source: str = "attr
     return {"degree": t["degree"], "test": test, "source": source, "position": t["position"],
             "pivot": [float(x) for x in t["pivot"]], "axis": [float(x) for x in t["axis"]],
             "inner_radius": t["inner_radius"], "outer_radius": t["outer_radius"], "valid": t["valid"],
+            "by_centres": t["by_centres"],
             "reason": t["reason"], "convention": "orthonormal Y_lm with the Condon-Shortley phase; z = frame axis; "
                                                   "m >= 0 listed, X_l,-m = (-1)^m conj(X_lm)",
             "inner": listing(t["inner"]), "outer": listing(t["outer"]), "outer_reason": t["outer_reason"],
@@ -96,7 +97,11 @@ def format_moments(scene, degree: int, test: str = "pendulum", source: str = "at
              "Condon-Shortley phase; m >= 0 shown, X_l,-m = (-1)^m conj(X_lm))",
              f"{test} reaches {fmt(t['inner_radius'], 6)} m from the pivot; {source} comes within "
              f"{fmt(t['outer_radius'], 6)} m"]
-    if t["valid"]:
+    if t["valid"] and t["by_centres"]:
+        lines.append("the expansion applies: by their actual extent the groups interleave, but spheres and points act "
+                     "by their centres, which a sphere about the pivot separates (the radii above), and no turn "
+                     "brings a pendulum body and an attractor body together")
+    elif t["valid"]:
         lines.append("the expansion applies: the pendulum lies inside and the attractor outside a sphere about the pivot")
     else:
         lines.append(f"the expansion does not apply here: {t['reason']}")

@@ -299,9 +299,31 @@ def section_scan(ctx: Context) -> Section:
         ratio = r.exact_torque_axis / r.point_torque_axis if r.point_torque_axis else float("nan")
         parts.append(f"Largest torque {fmt(r.exact_torque_axis, 8)} N m at {fmt(shown[k])} deg "
                      f"(point model {fmt(r.point_torque_axis, 8)} N m, exact/point {fmt(ratio, 8)}).")
+    if result.series is not None:
+        parts += _harmonics_parts(result.series, group, s.data)
     parts += [f"Note: {n}" for n in result.notes]
     s.markdown = "\n\n".join(parts)
     return s
+
+
+HARMONICS_SHOWN = 8
+
+
+def _harmonics_parts(series, group: str, data: dict) -> list[str]:
+    """The torque's leading Fourier harmonics in the turn, from the scan's multipole series."""
+    terms = series.torque_harmonics()
+    big = max((math.hypot(c, sn) for _, c, sn, _ in terms), default=0.0)
+    keep = [t for t in terms if big > 0 and math.hypot(t[1], t[2]) >= 1e-6 * big][:HARMONICS_SHOWN]
+    data["torque_harmonics"] = {"truncation_bound": series.bounds.torque,
+                                "terms": [{"m": m, "cos": c, "sin": sn, "error": e} for m, c, sn, e in terms]}
+    if not keep:
+        return []
+    rows = [[str(m), fmt(c, 8), fmt(sn, 8), fmt(math.hypot(c, sn), 8), fmt(e, 2)] for m, c, sn, e in keep]
+    return [f"The torque as a Fourier series in the turn phi of `{group}` from the scene as drawn, "
+            f"tau(phi) = sum of C_m cos(m phi) + S_m sin(m phi), from the multipole moments up to degree "
+            f"{series.L} (the higher degrees add at most {fmt(series.bounds.torque, 2)} N m at any turn); the "
+            f"leading harmonics, above a millionth of the largest:",
+            _md_table(["m", "C_m (N m)", "S_m (N m)", "amplitude (N m)", "error (N m)"], rows, "rrrrr")]
 
 
 # --- bias ----------------------------------------------------------------------------------------

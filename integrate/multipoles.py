@@ -86,6 +86,9 @@ class Separation:
     outer_radius: float
     inner_body: str
     outer_body: str
+    by_centres: bool = False
+    """True when the radii are those of `inner_reach` and `outer_clearance` (spheres and points by
+    their centres) because the actual extents interleave but no turn can make two bodies meet."""
 
     @property
     def ratio(self) -> float:
@@ -127,12 +130,17 @@ def outer_clearance(body, pivot) -> float:
     return float(d)
 
 
-def regions(test_bodies, source_bodies, pivot) -> Separation:
+def regions(test_bodies, source_bodies, pivot, axis=None) -> Separation:
     """How far the test bodies reach from `pivot` and how near the source bodies come, by their
     actual extent (farthest and nearest points; a mesh source also by its convex hull). When the
     reach is the smaller, a sphere about the pivot separates the groups at every turn, so no turn
     can make them overlap. (The truncation bounds then use the sharper radii of `inner_reach` and
-    `outer_clearance`, which are never worse.)"""
+    `outer_clearance`, which are never worse.)
+
+    Otherwise, given the turn `axis`: spheres and points act by their centres (a sphere's field
+    outside it is a point's, and a harmonic field's mean over a ball is its centre value), so the
+    series still holds when the sharper radii separate and no test body can meet a source body at
+    any turn about the axis (`never_meet`); the result then has `by_centres` set."""
     reach = [(separation.farthest(b, pivot), b.name) for b in test_bodies]
     clear = []
     for b in source_bodies:
@@ -142,7 +150,49 @@ def regions(test_bodies, source_bodies, pivot) -> Separation:
         clear.append((d, b.name))
     a, an = max(reach) if reach else (0.0, "")
     c, cn = min(clear) if clear else (math.inf, "")
-    return Separation(float(a), float(c), an, cn)
+    actual = Separation(float(a), float(c), an, cn)
+    if actual.ok or axis is None or not test_bodies or not source_bodies:
+        return actual
+    a, an = max((inner_reach(b, pivot), b.name) for b in test_bodies)
+    c, cn = min((outer_clearance(b, pivot), b.name) for b in source_bodies)
+    if not a < c:
+        return actual
+    if not all(never_meet(t, s, pivot, axis) for t in test_bodies for s in source_bodies):
+        return actual
+    return Separation(float(a), float(c), an, cn, by_centres=True)
+
+
+def never_meet(body_a, body_b, pivot, axis) -> bool:
+    """True when no turn of one body about the axis through `pivot` can make the two overlap (a turn
+    keeps each point's height along the axis and distance from it). Any one of these proves it:
+    a sphere about the pivot separates them; their heights along the axis do not overlap (support
+    functions of the convex hulls); their distances from the axis do not overlap (bounding spheres);
+    or the circles their bounding spheres' centres travel on stay farther apart than the two radii
+    (the nearest distance of those circles is hypot(rho_a - rho_b, z_a - z_b))."""
+    from truepull.geometry.support import support
+
+    if separation.farthest(body_a, pivot) < separation.nearest(body_b, pivot):
+        return True
+    if separation.farthest(body_b, pivot) < separation.nearest(body_a, pivot):
+        return True
+    e = np.asarray(axis, float) / np.linalg.norm(axis)
+    p = np.asarray(pivot, float)
+    ends = np.array([e, -e])
+    top_a, bottom_a = support(body_a, ends) * np.array([1.0, -1.0]) - float(p @ e) * np.array([1.0, 1.0])
+    top_b, bottom_b = support(body_b, ends) * np.array([1.0, -1.0]) - float(p @ e) * np.array([1.0, 1.0])
+    if top_a < bottom_b or top_b < bottom_a:
+        return True
+
+    def circle(body):
+        c = body.placement.apply(np.zeros((1, 3)))[0] - p
+        z = float(c @ e)
+        return float(np.linalg.norm(c - z * e)), z, body.shape.bounding_radius()
+
+    ra, za, Ra = circle(body_a)
+    rb, zb, Rb = circle(body_b)
+    if ra + Ra < rb - Rb or rb + Rb < ra - Ra:
+        return True
+    return math.hypot(ra - rb, za - zb) > Ra + Rb
 
 
 # ------------------------------------------------------------------------------------------------
@@ -484,7 +534,7 @@ def interaction_series(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, de
     is under rtol * torque_scale (N m; default the point-model size G M_p M_a a / b^2), and the outer
     moments are converged so that their share of the torque error is under the same target."""
     frame = ExpansionFrame.of(pivot, axis)
-    sep = regions(test_bodies, source_bodies, frame.pivot)
+    sep = regions(test_bodies, source_bodies, frame.pivot, frame.rotation[:, 2])
     if not sep.ok:
         raise MultipoleRefused(sep.reason)
     ip = tuple((abs(float(b.mass)), inner_reach(b, frame.pivot)) for b in test_bodies)
@@ -525,11 +575,11 @@ def moments_table(scene, degree: int, test: str = "pendulum", source: str = "att
     sc = scene.at_position(position) if position is not None else scene
     frame = ExpansionFrame.of(sc.frame.pivot, sc.frame.axis)
     tb, sb = sc.group(test), sc.group(source)
-    sep = regions(tb, sb, frame.pivot)
+    sep = regions(tb, sb, frame.pivot, frame.rotation[:, 2])
     inner = inner_moments(tb, frame, degree)
     out = {"degree": degree, "test": test, "source": source, "position": sc.position if position else None,
            "pivot": frame.pivot, "axis": frame.rotation[:, 2], "inner_radius": sep.inner_radius,
-           "outer_radius": sep.outer_radius, "valid": sep.ok, "reason": sep.reason,
+           "outer_radius": sep.outer_radius, "valid": sep.ok, "reason": sep.reason, "by_centres": sep.by_centres,
            "inner": inner, "outer": None, "outer_reason": ""}
     out["series"] = None
     try:

@@ -3,7 +3,8 @@
 Each sweep value gives a row: the exact torque about the axis, the point-model torque, the exact
 stiffness and the exact force on the test group (SI: N m, N m/rad, N), with error estimates.
 A turn of the attractor (or of the pendulum) about the frame axis takes the multipole fast path
-when the pendulum lies inside and the attractor outside a sphere about the pivot: the torque is
+when the pendulum lies inside and the attractor outside a sphere about the pivot (spheres and points
+by their centres, when no turn can bring two bodies together; `multipoles.regions`): the torque is
 then a Fourier series in the turn (`multipoles`), checked against direct integration at a few
 values and dropped for direct integration if any check disagrees beyond the two error estimates.
 Otherwise every value is integrated directly, in parallel (`executor.map_parallel`: local processes
@@ -99,6 +100,8 @@ class ScanResult:
     degree: int | None = None
     checks: tuple[CheckResult, ...] = ()
     notes: tuple[str, ...] = field(default_factory=tuple)
+    series: object = None
+    """The MultipoleSeries behind the rows on the multipole path (turn of the source from the start), else None."""
 
     @property
     def reached(self) -> bool:
@@ -346,7 +349,8 @@ def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor",
                     notes.append(f"multipole series of degree {series.L} checked against direct integration at "
                                  f"{len(idx)} value(s)")
                 notes.extend(series.notes)
-                return ScanResult(sweep, test, source, rows, "multipole", series.L, tuple(results), tuple(notes))
+                return ScanResult(sweep, test, source, rows, "multipole", series.L, tuple(results), tuple(notes),
+                                  series)
             worst = max(bad, key=lambda c: abs(c.multipole - c.direct) / max(c.allowed, 1e-300))
             notes.append(f"multipole series disagreed with direct integration at {_show(sweep, worst.value)} "
                          f"({worst.multipole:.10g} against {worst.direct:.10g} N m); every value integrated directly")

@@ -361,3 +361,106 @@ def test_torque_harmonics_are_the_fourier_series_of_newton():
     # interleaved: no series
     sc2 = _points_scene([(0.01, (0.05, 0, 0))], [(1.0, (0, 0.04, 0))])
     assert moments_json(sc2, 4)["torque_harmonics"] is None
+
+
+RAISED = """
+[scene]
+G = 6.6743e-11
+[units]
+length = "mm"
+[[body]]
+name = "bob-east"
+group = "pendulum"
+shape = "sphere"
+radius = 5
+density = 11340
+at = [40, 0, 0]
+[[body]]
+name = "bob-west"
+group = "pendulum"
+shape = "sphere"
+radius = 5
+density = 11340
+at = [-40, 0, 0]
+[[body]]
+name = "ball-north"
+group = "attractor"
+shape = "sphere"
+radius = 20
+density = 11340
+at = [0, 50, 30]
+[[body]]
+name = "ball-south"
+group = "attractor"
+shape = "sphere"
+radius = 20
+density = 11340
+at = [0, -50, -30]
+"""
+
+BEAM = """
+[[body]]
+name = "beam"
+group = "pendulum"
+shape = "box"
+size = [70, 4, 4]
+density = 2700
+"""
+
+
+def test_spheres_act_by_their_centres_when_no_turn_brings_bodies_together():
+    # the balls come within hypot(50, 30) - 20 = 38.3 mm of the pivot, inside the bobs' reach of
+    # 45 mm, but their centres (58.3 mm) lie outside the bobs' centres (40 mm), and the circles the
+    # centres travel on stay hypot(50 - 40, 30) = 31.6 mm > 5 + 20 mm apart (plane geometry): the
+    # series holds. Reference: Newton's law between the centres (shell theorem), computed here.
+    from truepull.integrate.multipoles import never_meet
+    from truepull.integrate.scans import Sweep, scan
+
+    sc = load_scene_text(RAISED)
+    tb, sb = sc.group("pendulum"), sc.group("attractor")
+    sep = regions(tb, sb, sc.frame.pivot, sc.frame.axis)
+    assert sep.ok and sep.by_centres
+    assert not regions(tb, sb, sc.frame.pivot).ok  # by actual extent they interleave
+    assert abs(sep.inner_radius - 0.04) < 1e-15 and abs(sep.outer_radius - math.hypot(0.05, 0.03)) < 1e-15
+    assert all(never_meet(t, s, sc.frame.pivot, sc.frame.axis) for t in tb for s in sb)
+    values = tuple(math.radians(v) for v in range(0, 360, 20))
+    res = scan(sc, Sweep("turn", values, "attractor"), workers=1, checks=2)
+    assert res.method == "multipole"
+    pts = lambda group: [(b.mass, tuple(b.com)) for b in sc.group(group)]  # noqa: E731
+    for row in res.rows:
+        _, tau, _ = _newton(pts("pendulum"), pts("attractor"), row.value)
+        assert abs(row.exact_torque_axis - tau) <= row.error_torque_axis + 1e-12 * abs(tau)
+        assert abs(row.exact_torque_axis - tau) <= 1e-9 * 2e-12 + 1e-9 * abs(tau)
+
+
+def test_a_beam_below_raised_balls_never_meets_them_and_the_series_matches_direct_integration():
+    # the beam's height range [-2, 2] mm and the north ball's [10, 50] mm do not overlap (support
+    # functions): no turn can bring them together. Reference: direct integration (compare_groups)
+    from truepull.integrate.multipoles import never_meet
+
+    sc = load_scene_text(RAISED + BEAM)
+    beam, north = sc.body("beam"), sc.body("ball-north")
+    assert never_meet(beam, north, sc.frame.pivot, sc.frame.axis)
+    sep = regions(sc.group("pendulum"), sc.group("attractor"), sc.frame.pivot, sc.frame.axis)
+    assert sep.ok and sep.by_centres and abs(sep.inner_radius - 0.04) < 1e-15  # the bobs, not the beam (35.1 mm)
+    series = interaction_series(sc.group("pendulum"), sc.group("attractor"), sc.frame.pivot, sc.frame.axis, G, 1e-10)
+    for phi in (0.3, 1.9):
+        moved = sc.with_bodies([b.moved(sc.frame.turn(phi)) if b.group == "attractor" else b for b in sc.bodies])
+        direct = compare_groups(moved, "pendulum", "attractor", None, 1e-10)
+        tau = series.torque_axis(phi)[0]
+        allowed = series.errors()["torque_axis"] + direct.error.torque_axis
+        assert abs(tau - direct.exact.torque_axis) <= allowed
+        assert abs(tau - direct.exact.torque_axis) <= 1e-9 * abs(direct.exact.torque_axis)
+
+
+def test_bodies_that_a_turn_brings_together_are_not_separated_by_centres():
+    # a ball on the bobs' circle at their height: its centre (40 mm) is no farther than theirs, and
+    # a turn would put it inside a bob; lifted to z = 8 mm above a bob's track it would still meet it
+    # (hypot(0, 8) < 5 + 5 mm)
+    from truepull.integrate.multipoles import never_meet
+
+    text = RAISED.replace("at = [0, 50, 30]", "at = [0, 40, 8]").replace("radius = 20", "radius = 5")
+    sc = load_scene_text(text)
+    assert not never_meet(sc.body("bob-east"), sc.body("ball-north"), sc.frame.pivot, sc.frame.axis)
+    sep = regions(sc.group("pendulum"), sc.group("attractor"), sc.frame.pivot, sc.frame.axis)
+    assert not sep.ok and not sep.by_centres and "interleave" in sep.reason

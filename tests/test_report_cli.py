@@ -21,7 +21,7 @@ from truepull.shapes import demo_run_path
 G_TRUE = 6.70e-11          # m^3 kg^-1 s^-2, deliberately not CODATA's 6.674e-11
 RHO = 11340.0              # kg/m^3, lead (from memory, typical handbook value)
 R_BOB, L_BOB = 0.005, 0.040
-R_BIG, D_BIG = 0.015, 0.060
+R_BIG, D_BIG = 0.015, 0.062   # the big spheres clear the bobs by 2 mm at every turn
 TURNS = {"A": -50.0, "B": 50.0}   # deg, turns of the attractor
 PERIOD = 300.0             # s, free period at A (invented)
 
@@ -226,6 +226,21 @@ def test_report_compare_is_newton_for_spheres(full_report):
         err = abs(row["exact_torque_axis"] - newton_torque(0.0, row["value"], G))
         assert err <= row["error_torque_axis"] + 1e-15 * abs(row["exact_torque_axis"])
         assert err <= 1e-6 * abs(row["exact_torque_axis"]) + 1e-25
+
+
+def test_report_torque_harmonics_sum_to_newton(full_report):
+    # the scan's Fourier series in the turn, summed at a few turns, is Newton's torque (this file)
+    code, out = full_report
+    scan = _load(out)["sections"]["scan"]
+    assert scan["method"] == "multipole"
+    h = scan["torque_harmonics"]
+    G = _load(out)["sections"]["compare"]["results"][0]["G"]
+    for turn in (-60.0, -13.0, 35.0):
+        phi = math.radians(turn)
+        total = sum(t["cos"] * math.cos(t["m"] * phi) + t["sin"] * math.sin(t["m"] * phi) for t in h["terms"])
+        expected = newton_torque(0.0, turn, G)
+        assert abs(total - expected) <= h["truncation_bound"] + sum(t["error"] for t in h["terms"]) + 1e-12 * abs(expected)
+    assert "Fourier series in the turn" in (out / "report.md").read_text()
 
 
 def test_report_fit_recovers_the_invented_run(full_report):
