@@ -1,7 +1,8 @@
 """Sweeps: the interaction while one group turns about the frame axis or shifts along x, y or z.
 
-Each sweep value gives a row: the exact torque about the axis, the point-model torque, the exact
-stiffness and the exact force on the test group (SI: N m, N m/rad, N), with error estimates.
+Each sweep value gives a row: the exact and point-model torque about the axis, the exact and
+point-model stiffness and the exact force on the test group (SI: N m, N m/rad, N), with error
+estimates.
 A turn of the attractor (or of the pendulum) about the frame axis takes the multipole fast path
 when the pendulum lies inside and the attractor outside a sphere about the pivot (spheres and points
 by their centres, when no turn can bring two bodies together; `multipoles.regions`): the torque is
@@ -200,7 +201,7 @@ def overlap_row(sc, job: DirectJob, value: float, reason: str) -> ScanRow:
 
 
 # ------------------------------------------------------------------------------------------------
-# point model over a turn, vectorised
+# the point model over the sweep
 
 
 @dataclass(frozen=True)
