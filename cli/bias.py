@@ -113,6 +113,12 @@ def _ppm(x) -> str:
     return "-" if x is None else f"{x:+.4g}"
 
 
+def what_if_rows(what_ifs) -> list[list[str]]:
+    """Table rows [change, torque before, after, torque ppm, G ppm] of the what-ifs."""
+    return [[w.description, fmt(w.torque_before, 10), fmt(w.torque_after, 10), _ppm(w.torque_ppm), _ppm(w.G_ppm)]
+            for w in what_ifs]
+
+
 def render(scene, result, what_ifs) -> str:
     lines = []
     if result is not None:
@@ -136,13 +142,23 @@ def render(scene, result, what_ifs) -> str:
         lines.append("")
         lines.append("what if")
         headers = ["change", "torque before (N m)", "after (N m)", "torque ppm", "G ppm"]
-        rows = [[w.description, fmt(w.torque_before, 10), fmt(w.torque_after, 10), _ppm(w.torque_ppm),
-                 _ppm(w.G_ppm)] for w in what_ifs]
-        lines.append(format_table(headers, rows, "lrrrr"))
+        lines.append(format_table(headers, what_if_rows(what_ifs), "lrrrr"))
     return "\n".join(lines)
 
 
 PNG_ROWS = 20
+
+
+def _bars(ax, y, torque, G, labels):
+    """Torque bars (and G bars beside them when any G value is known) at heights y, labelled."""
+    has_G = any(g is not None for g in G)
+    h = 0.4 if has_G else 0.7
+    ax.barh(y + (h / 2 if has_G else 0), torque, h, label="torque", color="C0")
+    if has_G:
+        ax.barh(y - h / 2, [g or 0.0 for g in G], h, label="G", color="C1")
+        ax.legend(fontsize=8, loc="lower right")
+    ax.set_yticks(y, labels, fontsize=8)
+    ax.grid(True, axis="x", alpha=0.3)
 
 
 def write_png(path, result, what_ifs, title: str = "") -> None:
@@ -150,43 +166,27 @@ def write_png(path, result, what_ifs, title: str = "") -> None:
     the top (at most PNG_ROWS); a second panel for the what-ifs when there are any."""
     from matplotlib.figure import Figure
 
+    ranking = result is not None or not what_ifs
     rows = [r for r in (result.rows if result is not None else ()) if r.torque_ppm is not None][:PNG_ROWS][::-1]
-    heights = ([0.9 + 0.3 * max(len(rows), 2)] if result is not None or not what_ifs else [])
-    heights += [0.9 + 0.3 * max(len(what_ifs), 2)] if what_ifs else []
+    heights = ([0.9 + 0.3 * max(len(rows), 2)] if ranking else []) + \
+              ([0.9 + 0.3 * max(len(what_ifs), 2)] if what_ifs else [])
     fig = Figure(figsize=(8.5, sum(heights) + 0.4), layout="constrained")
-    axes = fig.subplots(len(heights), 1, height_ratios=heights, squeeze=False)[:, 0]
-    k = 0
-    if result is not None or not what_ifs:
-        ax = axes[k]
-        k += 1
-        y = np.arange(len(rows))
-        has_G = any(r.G_ppm is not None for r in rows)
-        h = 0.4 if has_G else 0.7
-        ax.barh(y + (h / 2 if has_G else 0), [abs(r.torque_ppm) for r in rows], h, label="torque", color="C0")
-        if has_G:
-            ax.barh(y - h / 2, [abs(r.G_ppm or 0.0) for r in rows], h, label="G", color="C1")
-            ax.legend(fontsize=8, loc="lower right")
-        ax.set_yticks(y, [f"{r.body} {r.parameter}" for r in rows], fontsize=8)
+    axes = list(fig.subplots(len(heights), 1, height_ratios=heights, squeeze=False)[:, 0])
+    if ranking:
+        ax = axes.pop(0)
+        _bars(ax, np.arange(len(rows)), [abs(r.torque_ppm) for r in rows],
+              [None if r.G_ppm is None else abs(r.G_ppm) for r in rows], [f"{r.body} {r.parameter}" for r in rows])
         ax.set_xlabel("|change| per stated standard uncertainty (ppm), first order")
         where = f"position {result.position}" if result is not None and result.position else "the scene as drawn"
         ax.set_title((f"{title}: " if title else "") + f"sensitivity at {where}" +
                      ("" if rows else " (no uncertainties stated)"), fontsize=10)
-        ax.grid(True, axis="x", alpha=0.3)
     if what_ifs:
-        ax = axes[k]
-        y = np.arange(len(what_ifs))[::-1]
-        has_G = any(w.G_ppm is not None for w in what_ifs)
-        h = 0.4 if has_G else 0.7
-        ax.barh(y + (h / 2 if has_G else 0), [w.torque_ppm for w in what_ifs], h, label="torque", color="C0")
-        if has_G:
-            ax.barh(y - h / 2, [w.G_ppm or 0.0 for w in what_ifs], h, label="G", color="C1")
-            ax.legend(fontsize=8, loc="lower right")
-        ax.set_yticks(y, [w.description if len(w.description) <= 60 else w.description[:57] + "..."
-                          for w in what_ifs], fontsize=8)
+        ax = axes.pop(0)
+        _bars(ax, np.arange(len(what_ifs))[::-1], [w.torque_ppm for w in what_ifs], [w.G_ppm for w in what_ifs],
+              [w.description if len(w.description) <= 60 else w.description[:57] + "..." for w in what_ifs])
         ax.axvline(0.0, color="k", lw=0.8)
         ax.set_xlabel("change (ppm)")
         ax.set_title("what if", fontsize=10)
-        ax.grid(True, axis="x", alpha=0.3)
     save_figure_atomic(fig, path, dpi=110)
 
 

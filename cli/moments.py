@@ -66,23 +66,29 @@ def moments_json(scene, degree: int, test: str = "pendulum", source: str = "attr
             "reason": t["reason"], "convention": "orthonormal Y_lm with the Condon-Shortley phase; z = frame axis; "
                                                   "m >= 0 listed, X_l,-m = (-1)^m conj(X_lm)",
             "inner": listing(t["inner"]), "outer": listing(t["outer"]), "outer_reason": t["outer_reason"],
-            "torque_harmonics": _harmonics_json(t["series"])}
+            "torque_harmonics": harmonics_json(t["series"])}
 
 
-def _harmonics_json(series):
-    """The torque's Fourier harmonics in the turn, or None where the expansion does not apply."""
+def harmonics_json(series):
+    """The torque's Fourier harmonics in the turn (every m), or None where the expansion does not apply."""
     if series is None:
         return None
     return {"truncation_bound": series.bounds.torque,
             "terms": [{"m": m, "cos": c, "sin": s, "error": e} for m, c, s, e in series.torque_harmonics()]}
 
 
-def _harmonics_lines(series, source: str) -> list[str]:
-    """Table of the torque's harmonics in the attractor's turn phi (those above 1e-12 of the largest)."""
+def leading_harmonics(series, floor: float, most: int | None = None) -> list[list[str]]:
+    """Table rows [m, C_m, S_m, amplitude, error] of the harmonics whose amplitude is at least `floor`
+    of the largest (at most `most` of them)."""
     h = series.torque_harmonics()
     big = max((math.hypot(c, s) for _, c, s, _ in h), default=0.0)
-    rows = [[str(m), fmt(c, 10), fmt(s, 10), fmt(math.hypot(c, s), 10), fmt(e, 2)]
-            for m, c, s, e in h if big > 0 and math.hypot(c, s) >= 1e-12 * big]
+    kept = [(m, c, s, e) for m, c, s, e in h if big > 0 and math.hypot(c, s) >= floor * big][:most]
+    return [[str(m), fmt(c, 10), fmt(s, 10), fmt(math.hypot(c, s), 10), fmt(e, 2)] for m, c, s, e in kept]
+
+
+def _harmonics_lines(series, source: str) -> list[str]:
+    """Table of the torque's harmonics in the attractor's turn phi (those above 1e-12 of the largest)."""
+    rows = leading_harmonics(series, 1e-12)
     return ["", f"torque about the axis as a Fourier series in the turn phi of {source} from here, "
                 f"tau = sum C_m cos(m phi) + S_m sin(m phi) (N m), from the moments up to degree {series.L}; "
                 f"the terms of higher degree add at most {fmt(series.bounds.torque, 2)} N m at any turn",

@@ -311,14 +311,12 @@ HARMONICS_SHOWN = 8
 
 def _harmonics_parts(series, group: str, data: dict) -> list[str]:
     """The torque's leading Fourier harmonics in the turn, from the scan's multipole series."""
-    terms = series.torque_harmonics()
-    big = max((math.hypot(c, sn) for _, c, sn, _ in terms), default=0.0)
-    keep = [t for t in terms if big > 0 and math.hypot(t[1], t[2]) >= 1e-6 * big][:HARMONICS_SHOWN]
-    data["torque_harmonics"] = {"truncation_bound": series.bounds.torque,
-                                "terms": [{"m": m, "cos": c, "sin": sn, "error": e} for m, c, sn, e in terms]}
-    if not keep:
+    from truepull.cli.moments import harmonics_json, leading_harmonics
+
+    data["torque_harmonics"] = harmonics_json(series)
+    rows = leading_harmonics(series, 1e-6, HARMONICS_SHOWN)
+    if not rows:
         return []
-    rows = [[str(m), fmt(c, 8), fmt(sn, 8), fmt(math.hypot(c, sn), 8), fmt(e, 2)] for m, c, sn, e in keep]
     return [f"The torque as a Fourier series in the turn phi of `{group}` from the scene as drawn, "
             f"tau(phi) = sum of C_m cos(m phi) + S_m sin(m phi), from the multipole moments up to degree "
             f"{series.L} (the higher degrees add at most {fmt(series.bounds.torque, 2)} N m at any turn); the "
@@ -352,21 +350,19 @@ def section_bias(ctx: Context) -> Section:
              _md_table(head, rows, "llrrrrr")]
     if len(result.rows) > BIAS_ROWS_SHOWN:
         parts.append(f"The {BIAS_ROWS_SHOWN} largest of {len(result.rows)} rows; all are in report.json.")
+    from truepull.cli.bias import what_if_rows, write_png as bias_png
+
+    spheres = [b for b in ctx.scene.group(ctx.args.source) if b.shape.kind == "sphere"][:REPORT_SPHERES]
     what_ifs = [sens.flatten_what_if(ctx.scene, b.name, REPORT_FLATTENING, test=ctx.args.test, source=ctx.args.source,
-                                     position=result.position, rtol=ctx.args.survey_rtol)
-                for b in ctx.scene.group(ctx.args.source) if b.shape.kind == "sphere"][:REPORT_SPHERES]
+                                     position=result.position, rtol=ctx.args.survey_rtol) for b in spheres]
     if what_ifs:
         s.data["what_if"] = [w.to_json() for w in what_ifs]
         parts.append(f"What if a sphere is not round: each {ctx.args.source} sphere as an ellipsoid of equal mass and "
                      f"density, flattened by {REPORT_FLATTENING:g} along the fiber axis (semi-axes a, a, a (1 - f)), "
                      f"the others unchanged (torque at {where}; G by {what_ifs[0].G_method or 'no model: no measurement'}).")
         parts.append(_md_table(["change", "torque before (N m)", "after (N m)", "torque ppm", "G ppm"],
-                               [[w.description, fmt(w.torque_before, 10), fmt(w.torque_after, 10),
-                                 f"{w.torque_ppm:+.4g}", "-" if w.G_ppm is None else f"{w.G_ppm:+.4g}"]
-                                for w in what_ifs], "lrrrr"))
+                               what_if_rows(what_ifs), "lrrrr"))
     if what_ifs or any(r.torque_ppm is not None for r in result.rows):
-        from truepull.cli.bias import write_png as bias_png
-
         png, caption = FIGURES["bias"]
         bias_png(ctx.folder / png, result, what_ifs, ctx.scene.title or "")
         s.figures.append(png)

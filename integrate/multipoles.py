@@ -177,14 +177,13 @@ def never_meet(body_a, body_b, pivot, axis) -> bool:
         return True
     e = np.asarray(axis, float) / np.linalg.norm(axis)
     p = np.asarray(pivot, float)
-    ends = np.array([e, -e])
-    top_a, bottom_a = support(body_a, ends) * np.array([1.0, -1.0]) - float(p @ e) * np.array([1.0, 1.0])
-    top_b, bottom_b = support(body_b, ends) * np.array([1.0, -1.0]) - float(p @ e) * np.array([1.0, 1.0])
-    if top_a < bottom_b or top_b < bottom_a:
+    (top_a, low_a), (top_b, low_b) = support(body_a, [e, -e]), support(body_b, [e, -e])  # low: -min(e . x)
+    if top_a < -low_b or top_b < -low_a:
         return True
 
     def circle(body):
-        c = body.placement.apply(np.zeros((1, 3)))[0] - p
+        """(distance from the axis, height along it, radius) of the bounding sphere about the local origin."""
+        c = body.placement.translation - p
         z = float(c @ e)
         return float(np.linalg.norm(c - z * e)), z, body.shape.bounding_radius()
 

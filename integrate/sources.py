@@ -131,10 +131,6 @@ class SourceField:
 
         return signed_distance(self.body.shape, self._local(np.asarray(points, float).reshape(-1, 3)))
 
-    @property
-    def has_gradient(self) -> bool:
-        return self.kind in GRADIENT_KINDS
-
     def gradient(self, points):
         """Gradient tensor T_ij = d g_i / d x_j (N, 3, 3), 1/s^2, world axes, of a point, sphere, shell,
         box or mesh source (closed forms)."""
