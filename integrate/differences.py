@@ -51,3 +51,21 @@ def derivatives(f_values: np.ndarray, steps: np.ndarray, f_centre: float,
     rounding = 1.5 * rel_noise * scale / h
     error = np.abs(d_h - d_2h) / 3.0 + rounding
     return richardson, error
+
+
+def second_derivatives(f_values: np.ndarray, steps: np.ndarray, f_centre: float,
+                       rel_noise: float = DEFAULT_REL_NOISE) -> tuple[np.ndarray, np.ndarray]:
+    """(d^2 f / dx_i^2, error bound) from the same stencil values as `derivatives`, shape (n, 4).
+
+    S(h) = (f(x+h) - 2 f(x) + f(x-h)) / h^2 and S(2h) are second-order; the Richardson combination
+    (4 S(h) - S(2h)) / 3 = (16 [f(x+h) + f(x-h)] - [f(x+2h) + f(x-2h)] - 30 f(x)) / 12 h^2 is
+    fourth order. Error bound |S(h) - S(2h)| / 3 plus the rounding, 64/12 * noise / h^2."""
+    f = np.asarray(f_values, dtype=float)
+    h = np.asarray(steps, dtype=float)
+    fm2, fm1, fp1, fp2 = f[:, 0], f[:, 1], f[:, 2], f[:, 3]
+    s_h = (fp1 - 2.0 * f_centre + fm1) / h**2
+    s_2h = (fp2 - 2.0 * f_centre + fm2) / (4.0 * h**2)
+    richardson = (4.0 * s_h - s_2h) / 3.0
+    scale = np.maximum(np.max(np.abs(f), axis=1), abs(f_centre))
+    rounding = (64.0 / 12.0) * rel_noise * scale / h**2
+    return richardson, np.abs(s_h - s_2h) / 3.0 + rounding

@@ -165,6 +165,10 @@ class GumResult:
     rows: tuple[BudgetRow, ...]
     u_c_error: float
     correlated: bool = False
+    # the derivative stencil, kept for a second-order model (quadratic_surrogate): steps h_i and the
+    # model values at x + k h_i e_i, k = differences.OFFSETS, shape (n, 4)
+    steps: np.ndarray | None = field(default=None, repr=False, compare=False)
+    stencil: np.ndarray | None = field(default=None, repr=False, compare=False)
 
     def to_ppm(self, scale: float | None = None) -> float:
         """u_c in parts per million of |scale| (default: of y itself)."""
@@ -233,7 +237,8 @@ def gum_linear(model: Callable[[np.ndarray], float] | None, inputs: Sequence[Inp
                   contribution=float(abs(cu[i])),
                   share=float(cu[i] ** 2 / variance) if variance > 0 else 0.0)
         for i, inp in enumerate(inputs))
-    return GumResult(value=y, u_c=u_c, rows=rows, u_c_error=u_c_error, correlated=r is not None)
+    return GumResult(value=y, u_c=u_c, rows=rows, u_c_error=u_c_error, correlated=r is not None,
+                     steps=h.copy(), stencil=f_stencil.copy())
 
 
 def budget_table(result: GumResult, y_scale: float | None = None) -> list[dict]:
@@ -254,7 +259,7 @@ def budget_table(result: GumResult, y_scale: float | None = None) -> list[dict]:
 
 @dataclass(frozen=True)
 class McTolerance:
-    """Standard deviations of the block-mean estimates (JCGM 101:2008 7.9.4 d): how far each
+    """Standard deviations of the block-mean estimates (JCGM 101:2008 7.9.4 f, g): how far each
     reported number may move with other draws. Same unit as the output."""
 
     mean: float
@@ -264,16 +269,35 @@ class McTolerance:
     shortest_low: float
     shortest_high: float
 
+    def rule(self) -> float:
+        """The largest of the four that JCGM 101:2008 7.9.4 j) tests: s_y, s_u, s_ylow, s_yhigh
+        (the ends of the probabilistically symmetric interval)."""
+        return max(self.mean, self.u, self.low, self.high)
+
     def largest(self) -> float:
-        return max(self.mean, self.u, self.low, self.high, self.shortest_low, self.shortest_high)
+        """The largest of all six, the shortest interval's ends included."""
+        return max(self.rule(), self.shortest_low, self.shortest_high)
+
+
+# the interval whose ends the stopping rule tests, and the one given beside it (JCGM 101:2008 7.7)
+INTERVAL_KIND = "probabilistically symmetric"
+SHORTEST_KIND = "shortest"
+
+
+def block_size(coverage: float) -> int:
+    """M = max(J, 10^4) draws per block, J the smallest whole number >= 100 / (1 - p)
+    (JCGM 101:2008 7.9.4 b)."""
+    return max(math.ceil(100.0 / (1.0 - coverage) - 1e-9), 10_000)
 
 
 @dataclass(frozen=True)
 class McResult:
     """Monte Carlo result: mean y, standard deviation u (k = 1), the probabilistically symmetric
-    and the shortest coverage intervals of probability `coverage`, from `draws` model values in
-    `blocks` blocks. delta is the numerical tolerance aimed at (JCGM 101:2008 7.9.2) and `stable`
-    says whether 2 x every block tolerance is within it. seed repeats the run."""
+    interval (`interval`) and the shortest one (`shortest`) of probability `coverage`, from `draws`
+    model values in `blocks` blocks. delta is the numerical tolerance aimed at (JCGM 101:2008 7.9.2);
+    `stable` says whether 2 s_y, 2 s_u, 2 s_ylow and 2 s_yhigh are all within delta (7.9.4 j), and
+    `shortest_stable` the same for the shortest interval's ends. `adaptive` whether draws were added
+    until stable (up to max_draws). seed repeats the run."""
 
     value: float
     u: float
@@ -287,6 +311,9 @@ class McResult:
     stable: bool
     seed: int
     values: np.ndarray = field(repr=False, compare=False)
+    shortest_stable: bool = False
+    adaptive: bool = False
+    max_draws: int | None = None
 
     def to_ppm(self, scale: float | None = None) -> float:
         """u in parts per million of |scale| (default: of the mean)."""
@@ -352,22 +379,29 @@ def _pooled_std(means: np.ndarray, stds: np.ndarray, sizes: np.ndarray) -> float
     return math.sqrt(ss / (total - 1))
 
 
+def _split(total: int, parts: int) -> list[int]:
+    return [int(s) for s in np.diff(np.linspace(0, total, parts + 1).round().astype(int))]
+
+
 def monte_carlo(model: Callable[[np.ndarray], float] | None, inputs: Sequence[Input], *,
                 samples: int = 10_000, seed: int | None = 0, correlations=None,
                 coverage: float = 0.95, blocks: int = 10, groups_per_block: int = 10,
                 adaptive: bool = False, digits: int = 2, tolerance: float | None = None,
-                max_samples: int | None = None,
+                max_samples: int | None = None, step_blocks: int | None = None,
                 model_batch: Callable[[np.ndarray], np.ndarray] | None = None,
                 scheduler=None, workers: int | None = None, progress: bool = False) -> McResult:
     """JCGM 101:2008 propagation of distributions with normal inputs N(value, u^2).
 
-    The `samples` draws form `blocks` blocks (JCGM 101 7.9.4 stages), each split into
-    `groups_per_block` groups evaluated as tasks through executor.map_parallel; the draws depend
-    only on seed and layout, never on the executor, so serial, local and Dask runs agree exactly.
-    The block results give the numerical tolerance of y, u and the interval ends. adaptive=True
-    adds batches of the same layout until twice each of those is within delta (from `tolerance`,
-    or u to `digits` significant digits, 7.9.2), or until max_samples (default 100 x samples).
-    The model must be picklable for local worker processes (see the module notes)."""
+    The `samples` draws form `blocks` blocks (the h applications of JCGM 101 7.9.4), each split
+    into `groups_per_block` groups evaluated as tasks through executor.map_parallel; the draws
+    depend only on seed and layout, never on the executor, so serial, local and Dask runs agree
+    exactly. The block results give the numerical tolerances s_y, s_u, s_ylow, s_yhigh (7.9.4 f, g).
+    adaptive=True then adds `step_blocks` blocks of the same size at a time (default: `blocks`)
+    until 2 s_y, 2 s_u, 2 s_ylow and 2 s_yhigh are all within delta (7.9.4 j; delta from
+    `tolerance`, or from u to `digits` significant digits, 7.9.2), or until max_samples draws
+    (default 100 x samples). The JCGM 101 layout itself is samples = h M, blocks = h with
+    M = block_size(coverage) and step_blocks = 1. The model must be picklable for local worker
+    processes (see the module notes)."""
     if model is None and model_batch is None:
         raise TypeError("give a model (or model_batch)")
     values, u = _check_inputs(inputs)
@@ -388,25 +422,27 @@ def monte_carlo(model: Callable[[np.ndarray], float] | None, inputs: Sequence[In
     limit = 100 * samples if max_samples is None else int(max_samples)
     if adaptive and limit < samples:
         raise InputError(None, "max_samples", f"must be at least samples ({samples}), got {limit}")
+    step = n_blocks if step_blocks is None else step_blocks
+    if isinstance(step, bool) or not isinstance(step, int | np.integer) or not 1 <= step <= n_blocks:
+        raise InputError(None, "step_blocks", f"must be a whole number from 1 to {n_blocks}, got {step!r}")
 
     entropy = int(np.random.SeedSequence(seed).entropy)
     spec = _DrawSpec(model, model_batch, values, u, _correlation_factor(r), entropy)
-    block_sizes = [int(s) for s in np.diff(np.linspace(0, samples, n_blocks + 1).round().astype(int))]
-    group_sizes = [[int(s) for s in np.diff(np.linspace(0, b, min(groups_per_block, b) + 1).round().astype(int))]
-                   for b in block_sizes]
-    groups_per_batch = sum(len(g) for g in group_sizes)
+    first_sizes = _split(samples, n_blocks)
+    group_sizes = {b: _split(b, min(groups_per_block, b)) for b in set(first_sizes)}
 
     parts: list[np.ndarray] = []
     block_stats: list[tuple] = []
-    batch = 0
+    sizes_so_far: list[int] = []
+    next_group = 0
+    round_sizes = first_sizes
     while True:
-        first = batch * groups_per_batch
-        items, index = [], first
-        for sizes in group_sizes:
-            for size in sizes:
-                items.append((index, size))
-                index += 1
-        desc = "Monte Carlo" if batch == 0 else f"Monte Carlo, batch {batch + 1}"
+        items = []
+        for b in round_sizes:
+            for size in group_sizes[b]:
+                items.append((next_group, size))
+                next_group += 1
+        desc = "Monte Carlo" if not parts else f"Monte Carlo, {len(sizes_so_far) + len(round_sizes)} blocks"
         chunks = map_parallel(partial(_evaluate_draws, spec), items, workers=workers,
                               scheduler=scheduler, progress=progress, desc=desc)
         batch_values = np.concatenate(chunks)
@@ -416,30 +452,213 @@ def monte_carlo(model: Callable[[np.ndarray], float] | None, inputs: Sequence[In
                              f"{batch_values.size} Monte Carlo draws; the input uncertainties may "
                              "reach outside the range where the model is defined")
         start = 0
-        for b in block_sizes:
+        for b in round_sizes:
             block_stats.append(_block_statistics(batch_values[start:start + b], coverage))
             start += b
         parts.append(batch_values)
-        batch += 1
+        sizes_so_far += round_sizes
 
         stats = np.array(block_stats)
         h = stats.shape[0]
-        spread = np.std(stats, axis=0, ddof=1) / math.sqrt(h)  # JCGM 101 7.9.4 d)
+        spread = np.std(stats, axis=0, ddof=1) / math.sqrt(h)  # JCGM 101 7.9.4 f), g)
         tol = McTolerance(*(float(v) for v in spread))
-        std = _pooled_std(stats[:, 0], stats[:, 1], np.tile(block_sizes, batch))
-        delta = float(tolerance) if tolerance is not None else cov.tolerance_for_digits(std, digits)
-        stable = 2.0 * tol.largest() <= delta
-        if not adaptive or stable or (batch + 1) * samples > limit:
+        std = _pooled_std(stats[:, 0], stats[:, 1], np.array(sizes_so_far))  # 7.9.4 h)
+        delta = float(tolerance) if tolerance is not None else cov.tolerance_for_digits(std, digits)  # i)
+        stable = 2.0 * tol.rule() <= delta  # j)
+        round_sizes = first_sizes[:step]
+        if not adaptive or stable or sum(sizes_so_far) + sum(round_sizes) > limit:
             break
 
     all_values = np.concatenate(parts)
     y_sorted = np.sort(all_values)
     mean = float(np.mean(all_values))
     std = float(np.std(all_values, ddof=1))
+    shortest_stable = 2.0 * max(tol.shortest_low, tol.shortest_high) <= delta
     return McResult(value=mean, u=std, interval=cov.symmetric_interval(y_sorted, coverage),
                     shortest=cov.shortest_interval(y_sorted, coverage), coverage=float(coverage),
                     draws=int(all_values.size), blocks=h, tolerance=tol, delta=delta,
-                    stable=bool(stable), seed=entropy, values=all_values)
+                    stable=bool(stable), seed=entropy, values=all_values,
+                    shortest_stable=bool(shortest_stable), adaptive=bool(adaptive),
+                    max_draws=limit if adaptive else None)
+
+
+# ---------------------------------------------------------------------------------------------
+# second-order surrogate, checked against the model itself
+
+# the JCGM 101:2008 7.9.4 run through a surrogate: 10 blocks of block_size(p) draws to start with,
+# then one block at a time, at most this many draws
+SURROGATE_MAX_DRAWS = 5_000_000
+# mixed second derivatives are computed among at most this many leading inputs ...
+SURROGATE_LEADING = 8
+# ... those whose |c_i| u_i + |H_ii| u_i^2 is at least this fraction of the largest
+SURROGATE_CUT = 1e-2
+# spawn keys of the check draws start here, apart from every Monte Carlo group index
+CHECK_GROUP_BASE = 2**40
+CHECK_GROUPS = 16
+
+
+@dataclass(frozen=True)
+class QuadraticModel:
+    """y(x) = y0 + c . d + 1/2 d^T H d with d = x - x0: a second-order Taylor model (output unit;
+    x in the inputs' SI units). `pairs` lists the (i, j) whose mixed derivative H_ij was computed;
+    the other mixed entries are zero. Called on a 2-D array (one row per point) it returns one
+    value per row, so it serves as a Monte Carlo model_batch."""
+
+    x0: np.ndarray
+    y0: float
+    gradient: np.ndarray
+    hessian: np.ndarray
+    pairs: tuple[tuple[int, int], ...] = ()
+
+    def __call__(self, points) -> np.ndarray:
+        d = np.atleast_2d(np.asarray(points, dtype=float)) - self.x0
+        return self.y0 + d @ self.gradient + 0.5 * np.einsum("ki,ij,kj->k", d, self.hessian, d)
+
+
+def leading_inputs(c: np.ndarray, d2: np.ndarray, u: np.ndarray, *, most: int = SURROGATE_LEADING,
+                   cut: float = SURROGATE_CUT) -> list[int]:
+    """Indices of the inputs whose first- and second-order terms |c_i| u_i + |H_ii| u_i^2 are
+    largest: at most `most`, none below `cut` times the largest, largest first."""
+    s = np.abs(c) * u + np.abs(d2) * u**2
+    top = float(np.max(s)) if s.size else 0.0
+    order = [int(i) for i in np.argsort(-s, kind="stable") if s[i] > 0 and s[i] >= cut * top]
+    return order[:most]
+
+
+def quadratic_surrogate(model, inputs: Sequence[Input], gum: GumResult, *, leading: Sequence[int] | None = None,
+                        model_batch=None, rel_noise: float = differences.DEFAULT_REL_NOISE,
+                        workers: int | None = 1, scheduler=None, progress: bool = False
+                        ) -> tuple[QuadraticModel, int]:
+    """The second-order Taylor model of `model` at the input values, and the number of extra model
+    evaluations it took. Gradient: the GUM step's Richardson central differences (gum, from
+    gum_linear with the same model and inputs); diagonal second derivatives: Richardson second
+    differences on the same stencil (no new evaluations); mixed H_ij for every pair among the
+    `leading` inputs (default leading_inputs) by the 4-point difference
+    (f(++) - f(+-) - f(-+) + f(--)) / (4 h_i h_j) with the GUM's steps, evaluated through
+    executor.map_parallel. Mixed terms of other pairs are left out; check_surrogate measures what
+    that and everything else of third and higher order costs."""
+    values, u = _check_inputs(inputs)
+    if gum.stencil is None or gum.steps is None or len(gum.rows) != values.size:
+        raise TypeError("quadratic_surrogate needs the GumResult of gum_linear for these inputs")
+    h = np.asarray(gum.steps, dtype=float)
+    c = np.array([row.sensitivity for row in gum.rows])
+    d2, _ = differences.second_derivatives(gum.stencil, h, gum.value, rel_noise)
+    hessian = np.diag(d2)
+    lead = leading_inputs(c, d2, u) if leading is None else [int(i) for i in leading]
+    pairs = tuple((min(a, b), max(a, b)) for k, a in enumerate(lead) for b in lead[k + 1:])
+    evaluations = 0
+    if pairs:
+        points = []
+        for i, j in pairs:
+            for a in (1.0, -1.0):
+                for b in (1.0, -1.0):
+                    p = values.copy()
+                    p[i] += a * h[i]
+                    p[j] += b * h[j]
+                    points.append(p)
+        f = _evaluate(model, model_batch, np.array(points), workers, scheduler, progress,
+                      "second derivatives").reshape(len(pairs), 4)
+        if not np.all(np.isfinite(f)):
+            raise InputError(None, "steps", "the model gave a non-finite value for a mixed second derivative")
+        for (i, j), (fpp, fpm, fmp, fmm) in zip(pairs, f):
+            hessian[i, j] = hessian[j, i] = (fpp - fpm - fmp + fmm) / (4.0 * h[i] * h[j])
+        evaluations = f.size
+    return QuadraticModel(values, float(gum.value), c, hessian, pairs), evaluations
+
+
+@dataclass(frozen=True)
+class SurrogateCheck:
+    """The surrogate against the model itself at `draws` independent draws of the inputs (the Monte
+    Carlo's distribution): the largest and the root-mean-square difference (output unit), and the
+    mean and standard deviation of the model's own values there."""
+
+    draws: int
+    max_error: float
+    rms_error: float
+    full_mean: float
+    full_u: float
+    values: np.ndarray = field(repr=False, compare=False)
+    errors: np.ndarray = field(repr=False, compare=False)
+
+
+def check_surrogate(model, surrogate: QuadraticModel, inputs: Sequence[Input], *, draws: int = 100,
+                    seed: int | None = 0, correlations=None, model_batch=None, workers: int | None = 1,
+                    scheduler=None, progress: bool = False) -> SurrogateCheck:
+    """`draws` draws of the inputs through the model (executor.map_parallel: local processes or a
+    Dask cluster) and through the surrogate. The draws come from streams of their own (spawn keys
+    from CHECK_GROUP_BASE), fixed by the seed and `draws` alone, whatever runs them."""
+    values, u = _check_inputs(inputs)
+    r = _check_correlations(correlations, values.size)
+    if isinstance(draws, bool) or not isinstance(draws, int | np.integer) or draws < 2:
+        raise InputError(None, "--check-draws", f"must be a whole number of at least 2, got {draws!r}")
+    entropy = int(np.random.SeedSequence(seed).entropy)
+    spec = _DrawSpec(model, model_batch, values, u, _correlation_factor(r), entropy)
+    items = [(CHECK_GROUP_BASE + k, size) for k, size in enumerate(_split(draws, min(draws, CHECK_GROUPS)))]
+    full = np.concatenate(map_parallel(partial(_evaluate_draws, spec), items, workers=workers,
+                                       scheduler=scheduler, progress=progress, desc="surrogate check"))
+    if not np.all(np.isfinite(full)):
+        raise InputError(None, None, "the model gave a non-finite value at a check draw of the surrogate")
+    points = np.vstack([_draw_inputs(spec, index, size) for index, size in items])
+    errors = full - surrogate(points)
+    return SurrogateCheck(draws=int(draws), max_error=float(np.max(np.abs(errors))),
+                          rms_error=float(np.sqrt(np.mean(errors**2))), full_mean=float(np.mean(full)),
+                          full_u=float(np.std(full, ddof=1)), values=full, errors=errors)
+
+
+@dataclass(frozen=True)
+class SurrogateMonteCarlo:
+    """A Monte Carlo run through a checked second-order surrogate: the Monte Carlo result (`mc`), the
+    surrogate, how many model evaluations its mixed derivatives took, and its check. The surrogate's
+    error folds in as bounds: the model's standard deviation is at most u + rms (Minkowski's
+    inequality, with the rms measured at the check draws), and where the model differs from the
+    surrogate by at most `max_error` its quantiles differ by at most that much too."""
+
+    mc: McResult
+    surrogate: QuadraticModel
+    evaluations: int
+    check: SurrogateCheck
+
+    @property
+    def u_bound(self) -> float:
+        return self.mc.u + self.check.rms_error
+
+    @property
+    def interval_bound(self) -> tuple[float, float]:
+        return self.mc.interval[0] - self.check.max_error, self.mc.interval[1] + self.check.max_error
+
+    @property
+    def negligible(self) -> bool:
+        """Whether twice the largest surrogate error is within the numerical tolerance delta (the
+        rule the Monte Carlo's own stability is held to), so it cannot change the stated digits."""
+        return 2.0 * self.check.max_error <= self.mc.delta
+
+
+def surrogate_monte_carlo(model, inputs: Sequence[Input], gum: GumResult, *, samples: int | None = None,
+                          check_model=None, check_draws: int = 100, seed: int | None = 0, correlations=None,
+                          coverage: float = 0.95, digits: int = 2, max_samples: int = SURROGATE_MAX_DRAWS,
+                          leading: Sequence[int] | None = None, rel_noise: float = differences.DEFAULT_REL_NOISE,
+                          workers: int | None = 1, scheduler=None, progress: bool = False) -> SurrogateMonteCarlo:
+    """JCGM 101:2008 Monte Carlo through the quadratic_surrogate of `model` (built from `gum`), checked
+    by check_surrogate at `check_draws` draws of `check_model` (default: `model`; e.g. the same model
+    at a looser engine tolerance). samples None: the adaptive procedure of JCGM 101 7.9.4 with blocks
+    of M = block_size(coverage) draws, 10 to start with and then one at a time, until stable to
+    `digits` significant digits of u (or max_samples draws); samples N: N draws in 10 blocks, the
+    stability judged all the same. The model evaluations go through executor.map_parallel; the
+    surrogate's draws are vectorised here."""
+    surrogate, evaluations = quadratic_surrogate(model, inputs, gum, leading=leading, rel_noise=rel_noise,
+                                                 workers=workers, scheduler=scheduler, progress=progress)
+    if samples is None:
+        m = block_size(coverage)
+        mc = monte_carlo(None, inputs, samples=10 * m, seed=seed, correlations=correlations, coverage=coverage,
+                         blocks=10, groups_per_block=1, adaptive=True, digits=digits,
+                         max_samples=max(int(max_samples), 10 * m), step_blocks=1, model_batch=surrogate,
+                         workers=1)
+    else:
+        mc = monte_carlo(None, inputs, samples=samples, seed=seed, correlations=correlations, coverage=coverage,
+                         blocks=10, groups_per_block=1, digits=digits, model_batch=surrogate, workers=1)
+    check = check_surrogate(check_model or model, surrogate, inputs, draws=check_draws, seed=seed,
+                            correlations=correlations, workers=workers, scheduler=scheduler, progress=progress)
+    return SurrogateMonteCarlo(mc=mc, surrogate=surrogate, evaluations=evaluations, check=check)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -14,8 +14,9 @@ import pytest
 
 from truepull.geometry.errors import InputError
 from truepull.geometry.quantities import Measured
-from truepull.integrate.uncertainty import (GumResult, Input, budget_table, gum_linear,
-                                            monte_carlo, validate_gum)
+from truepull.integrate.uncertainty import (GumResult, Input, block_size, budget_table, check_surrogate,
+                                            gum_linear, monte_carlo, quadratic_surrogate,
+                                            surrogate_monte_carlo, validate_gum)
 
 
 def stats():
@@ -292,13 +293,131 @@ def test_mc_adaptive_reaches_the_stated_tolerance():
                       adaptive=True, digits=2, workers=1)
     assert res.stable and res.draws > 4_000
     assert res.delta == pytest.approx(0.05)  # u = 1.0 to two digits: 10 x 10^-1, delta = 1/2 x 10^-1
-    assert 2 * res.tolerance.largest() <= res.delta
+    # the stopping rule of JCGM 101:2008 7.9.4 j): 2 s_y, 2 s_u, 2 s_ylow, 2 s_yhigh all within delta
+    t = res.tolerance
+    assert 2 * max(t.mean, t.u, t.low, t.high) <= res.delta
+    # the shortest interval's ends are judged by the same rule and reported beside it
+    assert res.shortest_stable == (2 * max(t.shortest_low, t.shortest_high) <= res.delta)
     # the tolerances are honest: errors against the exact normal values (scipy.stats.norm) stay
     # within 6 of them (Student t with h - 1 >= 9 degrees of freedom makes 6 a safe bound)
     t = res.tolerance
     assert abs(res.value) < 6 * t.mean
     assert abs(res.interval[0] + z975() * sd) < 6 * t.low
     assert abs(res.interval[1] - z975() * sd) < 6 * t.high
+
+
+def test_jcgm101_additive_model_9_2_2():
+    # JCGM 101:2008 9.2.2 (from memory): Y = X1 + X2 + X3 + X4, each X_i ~ N(0, 1); the GUM gives
+    # u(y) = sqrt(sum u_i^2) = 2 exactly and the 95 % interval -+ 1.96 x 2 = [-3.92, 3.92]; the
+    # adaptive Monte Carlo of 7.9.4 (blocks of M = 10^4) must agree within its own stated tolerance
+    inputs = [Input(f"x{i}", 0.0, 1.0) for i in range(1, 5)]
+    assert block_size(0.95) == 10_000  # M = max(J, 10^4), J = 100 / (1 - p) = 2000 (JCGM 101 7.9.4 b)
+    res = monte_carlo(None, inputs, samples=10 * block_size(0.95), blocks=10, step_blocks=1, groups_per_block=1,
+                      adaptive=True, digits=2, model_batch=sum_batch, seed=11, workers=1)
+    gum = gum_linear(sum_model, inputs)
+    assert gum.u_c == pytest.approx(2.0, rel=1e-12)
+    assert res.stable and res.delta == pytest.approx(0.05)  # u = 2.0: delta = 1/2 x 10^-1 (7.9.2)
+    assert (res.draws - 10 * 10_000) % 10_000 == 0 and res.blocks == res.draws // 10_000
+    assert abs(res.u - 2.0) <= res.delta
+    assert abs(res.value) <= res.delta
+    z = z975() * 2.0  # scipy.stats.norm.ppf
+    assert abs(res.interval[0] + z) <= res.delta and abs(res.interval[1] - z) <= res.delta
+    assert check_agrees(gum, res)
+
+
+def check_agrees(gum, mc):
+    return validate_gum(gum, mc, digits=2).agrees  # JCGM 101:2008 8.2: a linear model validates the GUM
+
+
+def test_adaptive_rule_on_the_square_of_a_normal():
+    # Y = X^2 with X ~ N(mu, s^2): Var Y = 4 mu^2 s^2 + 2 s^4 (normal moments, from memory); with
+    # mu / s = 10 / 3, -sqrt(q) < X < sqrt(q) is X < sqrt(q) but for below 1e-7 at both quantiles, so
+    # Y's quantiles are the squares of X's: (mu + s z_p)^2, z_p from scipy.stats.norm
+    mu, s = 1.0, 0.3
+    res = monte_carlo(None, [Input("x", mu, s)], samples=100_000, blocks=10, step_blocks=1, groups_per_block=1,
+                      adaptive=True, digits=2, model_batch=square_batch, seed=17, workers=1)
+    exact_u = math.sqrt(4 * mu**2 * s**2 + 2 * s**4)
+    t = res.tolerance
+    assert res.stable and 2 * max(t.mean, t.u, t.low, t.high) <= res.delta  # JCGM 101 7.9.4 j)
+    assert res.delta == pytest.approx(0.005)  # u = 0.6134 -> 0.61 = 61 x 10^-2: delta = 1/2 x 10^-2 (7.9.2)
+    assert abs(res.u - exact_u) <= res.delta
+    assert abs(res.value - (mu**2 + s**2)) <= res.delta  # E X^2 = mu^2 + s^2
+    # the ends: "stable" bounds their block standard deviations (2 s <= delta), not their errors;
+    # the errors are Student t with h - 1 >= 9 degrees of freedom in units of s, so within 4 s
+    # but for about 0.3 % of seeds (scipy.stats.t)
+    low, high = (mu - z975() * s) ** 2, (mu + z975() * s) ** 2
+    assert abs(res.interval[0] - low) <= 4 * t.low and abs(res.interval[1] - high) <= 4 * t.high
+    assert 4 * max(t.low, t.high) <= 2 * res.delta
+
+
+def exp_model(x):
+    return math.exp(x[0])
+
+
+def product_plus(x):
+    return x[0] * x[1] + 0.5 * x[0] ** 2
+
+
+def test_surrogate_of_a_quadratic_model_is_exact_and_the_check_says_so():
+    # Y = X1 X2 + X1^2 / 2 is its own second-order Taylor model: the surrogate's error at the check
+    # draws is rounding only, and the adaptive run's u is Goodman's exact variance (Goodman 1960,
+    # JASA 55:708) plus Var(X1^2 / 2) and the covariance of the two terms (normal moments, from memory)
+    m1, s1, m2, s2 = 2.0, 0.3, 3.0, 0.2
+    inputs = [Input("x1", m1, s1), Input("x2", m2, s2)]
+    gum = gum_linear(product_plus, inputs, steps=[s1 / 10, s2 / 10])
+    run = surrogate_monte_carlo(product_plus, inputs, gum, check_draws=60, seed=5)
+    assert run.surrogate.pairs == ((0, 1),)
+    assert run.surrogate.hessian == pytest.approx(np.array([[1.0, 1.0], [1.0, 0.0]]), abs=1e-6)
+    assert run.check.max_error < 1e-9 and run.check.draws == 60 and run.negligible
+    var = (m2**2 * s1**2 + m1**2 * s2**2 + s1**2 * s2**2) + 0.5 * s1**4 + m1**2 * s1**2 + 2 * m1 * m2 * s1**2
+    assert run.mc.stable and abs(run.mc.u - math.sqrt(var)) <= run.mc.delta
+
+
+def test_surrogate_without_the_mixed_term_is_caught_by_its_check():
+    # leaving out H_12 of X1 X2 leaves an error of exactly (x1 - m1)(x2 - m2) at every draw, whose
+    # rms is s1 s2 (independent normals); the check must see it at the level of its sampling error
+    m1, s1, m2, s2 = 2.0, 0.5, 3.0, 1.0
+    inputs = [Input("x1", m1, s1), Input("x2", m2, s2)]
+    gum = gum_linear(product, inputs)
+    sur, evaluations = quadratic_surrogate(product, inputs, gum, leading=[])
+    assert evaluations == 0 and sur.pairs == ()
+    check = check_surrogate(product, sur, inputs, draws=400, seed=3)
+    # the mean of n squared products of independent normals has relative standard error
+    # sqrt((9 - 1) / n) (E z^4 = 3 for each factor, from memory); 5 of those on the mean square
+    assert abs(check.rms_error**2 / (s1 * s2) ** 2 - 1) < 5 * math.sqrt(8 / 400)
+    with_pair, evaluations = quadratic_surrogate(product, inputs, gum)
+    assert evaluations == 4 and with_pair.pairs == ((0, 1),)
+    assert check_surrogate(product, with_pair, inputs, draws=400, seed=3).max_error < 1e-9
+
+
+def test_surrogate_error_of_an_exponential_is_its_taylor_remainder():
+    # Y = exp(X), X ~ N(0, 0.05^2): Y is lognormal (quantiles exp(s z_p), scipy.stats.norm); the
+    # second-order surrogate misses the remainder exp(d) - (1 + d + d^2 / 2) at each draw, which the
+    # check reports; the interval widened by the largest error must hold the exact quantiles
+    s = 0.05
+    inputs = [Input("x", 0.0, s)]
+    gum = gum_linear(exp_model, inputs, steps=[s / 10])
+    run = surrogate_monte_carlo(exp_model, inputs, gum, check_draws=200, seed=9)
+    check = run.check
+    d = np.log(check.values)  # the draws themselves, recovered from the model values
+    remainder = check.values - (1 + d + d**2 / 2)
+    assert np.allclose(check.errors, remainder, rtol=1e-6, atol=1e-12)
+    assert check.max_error == pytest.approx(np.max(np.abs(remainder)), rel=1e-6)
+    low, high = math.exp(-z975() * s), math.exp(z975() * s)
+    lo_b, hi_b = run.interval_bound
+    t = run.mc.tolerance
+    assert lo_b - 2 * t.low <= low and high <= hi_b + 2 * t.high
+    assert run.u_bound >= run.mc.u
+
+
+def test_surrogate_check_runs_the_same_on_dask(dask_cluster):
+    cluster, client = dask_cluster
+    inputs = [Input("a", 2.0, 0.002), Input("b", 4.0, 0.004), Input("k", 0.1, 0.001)]
+    gum = gum_linear(ratio_exp, inputs)
+    sur, _ = quadratic_surrogate(ratio_exp, inputs, gum)
+    here = check_surrogate(ratio_exp, sur, inputs, draws=50, seed=2)
+    there = check_surrogate(ratio_exp, sur, inputs, draws=50, seed=2, scheduler=client)
+    assert np.array_equal(here.values, there.values) and here.max_error == there.max_error
 
 
 def test_mc_adaptive_gives_up_at_max_samples():
