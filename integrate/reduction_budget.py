@@ -16,14 +16,23 @@ on a Dask cluster. Curves are cached per geometry, so stepping a measured value 
 - GUM (JCGM 100:2008): sensitivities by Richardson central differences with steps of u/10, the
   engine at the reduction's tolerance; the model's relative noise given to the derivative error
   bound is the reduction's own numerical error estimate relative to G.
-- Monte Carlo (JCGM 101:2008): normal inputs, the engine at a looser tolerance (default 1e-6, so a
-  draw stays affordable; G's numerical error is then about that size relative, far below the
-  uncertainties a budget is for), seeded, parallel through executor.map_parallel.
+- Monte Carlo (JCGM 101:2008): normal inputs, seeded. A full-model draw costs an engine run (about
+  0.1 s per core on the demo), while the adaptive procedure of JCGM 101 7.9.4 needs 10^5 to 10^6
+  draws for two significant digits of u and of the interval's ends. So by default the draws go
+  through a second-order Taylor surrogate of G(x) (uncertainty.quadratic_surrogate: the GUM's
+  gradient, the diagonal second derivatives from the same stencil, the mixed ones among the
+  leading inputs), checked at `check_draws` independent draws through the full model with the
+  engine at a looser tolerance (default 1e-6; G's numerical error is then about that size relative,
+  far below the uncertainties a budget is for): the surrogate's largest and rms error there are
+  reported and folded into bounds on u and on the interval. full_model=True sends every draw
+  through the full model instead. Every full-model evaluation (GUM stencil, mixed derivatives,
+  check draws, full-model draws) runs through executor.map_parallel, locally or on Dask.
 """
 
 from __future__ import annotations
 
 import math
+import time
 from dataclasses import dataclass, replace
 from functools import lru_cache, partial
 
@@ -35,9 +44,16 @@ from truepull.geometry.quantities import Measured
 from truepull.integrate.reduction import (NODE_GAP, Reduction, StepUndefined, final_G, measurement_values,
                                           observations, pendulum_inertia, per_unit_g)
 from truepull.integrate.torque_curve import sample_curve
-from truepull.integrate.uncertainty import Input, budget_table, gum_linear, monte_carlo
+from truepull.integrate.uncertainty import (INTERVAL_KIND, SHORTEST_KIND, Input, block_size, budget_table,
+                                           gum_linear, monte_carlo, surrogate_monte_carlo)
 
 MC_RTOL = 1e-6
+# significant digits of u(G) to which the adaptive Monte Carlo makes u and the interval stable
+MC_DIGITS = 2
+# full-model draws that check the surrogate
+CHECK_DRAWS = 100
+# the most full-model draws an adaptive run with full_model=True makes
+FULL_MODEL_MAX_DRAWS = 1_000_000
 STEP_FRACTION = 0.1
 
 _UNITS = {"at": "m", "density": "kg/m^3", "mass": "kg", "rotate": "rad", "turn": "rad", "shift": "m"}
@@ -201,7 +217,9 @@ def g_model(context: ModelContext, x) -> float:
 @dataclass(frozen=True)
 class Budget:
     """u_G from the GUM (None without inputs), its rows (budget_table dicts), the Monte Carlo result
-    (None when not run), with the tolerances used and notes."""
+    (None when not run), with the tolerances used and notes. `surrogate` is the
+    uncertainty.SurrogateMonteCarlo when the draws went through the surrogate (None when every draw
+    went through the full model); `mc_seconds` the Monte Carlo's wall time, surrogate and check included."""
 
     u_G: float | None
     u_G_error: float | None
@@ -210,18 +228,49 @@ class Budget:
     monte_carlo: object | None
     mc_rtol: float
     notes: tuple[str, ...] = ()
+    surrogate: object | None = None
+    mc_seconds: float | None = None
+    check_seconds: float | None = None
+    input_names: tuple[str, ...] = ()
 
     def to_json(self, G: float) -> dict:
         out = {"u_G": self.u_G, "u_G_ppm": (self.u_G / G * 1e6 if self.u_G is not None else None),
                "u_G_error": self.u_G_error,
                "budget": [{k: row[k] for k in ("input", "value", "u", "unit", "sensitivity", "sensitivity_error",
                                                  "contribution", "contribution_ppm", "share")} for row in self.rows]}
-        mc = self.monte_carlo
-        out["monte_carlo"] = None if mc is None else {
-            "mean": mc.value, "u_G": mc.u, "u_G_ppm": mc.u / G * 1e6, "interval_95": list(mc.interval),
-            "shortest_95": list(mc.shortest), "draws": mc.draws, "seed": mc.seed, "rtol": self.mc_rtol,
-            "stable": mc.stable, "tolerance_u": mc.tolerance.u}
+        out["monte_carlo"] = None if self.monte_carlo is None else self._mc_json(G)
         out["budget_notes"] = list(self.notes)
+        return out
+
+    def _mc_json(self, G: float) -> dict:
+        mc, t = self.monte_carlo, self.monte_carlo.tolerance
+        out = {
+            "mean": mc.value, "u_G": mc.u, "u_G_ppm": mc.u / G * 1e6, "coverage": mc.coverage,
+            "interval_95": list(mc.interval), "interval_kind": INTERVAL_KIND,
+            "shortest_95": list(mc.shortest), "shortest_kind": SHORTEST_KIND,
+            "draws": mc.draws, "blocks": mc.blocks, "adaptive": mc.adaptive, "max_draws": mc.max_draws,
+            "digits": MC_DIGITS, "delta": mc.delta, "stable": mc.stable, "shortest_stable": mc.shortest_stable,
+            "tolerance": {"mean": t.mean, "u": t.u, "low": t.low, "high": t.high,
+                          "shortest_low": t.shortest_low, "shortest_high": t.shortest_high},
+            "tolerance_u": t.u, "seed": mc.seed, "rtol": self.mc_rtol,
+            "model": "full" if self.surrogate is None else "surrogate", "seconds": self.mc_seconds,
+            "surrogate": None,
+        }
+        run = self.surrogate
+        if run is not None:
+            check = run.check
+            names = self.input_names
+            out["surrogate"] = {
+                "kind": "second-order Taylor model of G in the inputs",
+                "mixed_pairs": [[names[i], names[j]] for i, j in run.surrogate.pairs],
+                "evaluations": run.evaluations, "check_draws": check.draws, "check_rtol": self.mc_rtol,
+                "max_error": check.max_error, "rms_error": check.rms_error,
+                "max_error_ppm": check.max_error / G * 1e6, "rms_error_ppm": check.rms_error / G * 1e6,
+                "full_mean": check.full_mean, "full_u": check.full_u, "negligible": run.negligible,
+                "u_G_bound": run.u_bound, "interval_95_bound": list(run.interval_bound),
+                "check_seconds": self.check_seconds,
+                "seconds_per_full_draw": (self.check_seconds / check.draws if self.check_seconds else None),
+            }
         return out
 
 
@@ -241,12 +290,15 @@ def budget_nodes(scene, reduction: Reduction, fiber_q=None) -> tuple[tuple[float
 
 
 def reduction_budget(scene, reduction: Reduction, scene_text: str, *, test: str = "pendulum",
-                     source: str = "attractor", fiber_q: Measured | None = None, samples: int = 200,
-                     seed: int | None = 0, mc_rtol: float = MC_RTOL, workers: int | None = None,
-                     scheduler=None, progress: bool = False) -> Budget:
-    """The GUM budget and (samples > 0) the Monte Carlo propagation for a reduction of `scene`, whose
-    TOML text is `scene_text`."""
-    if isinstance(samples, bool) or not isinstance(samples, int) or samples < 0:
+                     source: str = "attractor", fiber_q: Measured | None = None, samples: int | None = None,
+                     seed: int | None = 0, mc_rtol: float = MC_RTOL, check_draws: int = CHECK_DRAWS,
+                     full_model: bool = False, workers: int | None = None, scheduler=None,
+                     progress: bool = False) -> Budget:
+    """The GUM budget and the Monte Carlo propagation for a reduction of `scene`, whose TOML text is
+    `scene_text`. samples None: adaptive (JCGM 101:2008 7.9.4, u and the interval's ends stable to
+    MC_DIGITS significant digits); samples N > 0: N draws, their stability judged; 0: no Monte
+    Carlo. The draws go through the checked surrogate unless full_model."""
+    if samples is not None and (isinstance(samples, bool) or not isinstance(samples, int) or samples < 0):
         raise InputError(scene.path, "--samples", f"must be a whole number of at least 0, got {samples!r}")
     if not mc_rtol > 0:
         raise InputError(scene.path, "--mc-rtol", "the tolerance must be greater than zero")
@@ -271,9 +323,40 @@ def reduction_budget(scene, reduction: Reduction, scene_text: str, *, test: str 
     rows = tuple(budget_table(gum, y_scale=reduction.G))
     if abs(gum.value - reduction.G) > 10 * reduction.numerical_error + 1e-12 * abs(reduction.G):
         notes.append(f"the budget model's G differs from the reduction's by {(gum.value / reduction.G - 1) * 1e6:.3g} ppm")
-    mc = None
-    if samples > 0:
+    mc = run = None
+    mc_seconds = check_seconds = None
+    if samples != 0:
         mc_context = replace(context, rtol=mc_rtol)
-        mc = monte_carlo(partial(g_model, mc_context), inputs, samples=samples, seed=seed, workers=workers,
-                         scheduler=scheduler, progress=progress)
-    return Budget(gum.u_c, gum.u_c_error, rows, gum.value, mc, mc_rtol, tuple(notes))
+        start = time.perf_counter()
+        if full_model:
+            m = block_size(0.95)
+            first = 10 * m if samples is None else samples
+            mc = monte_carlo(partial(g_model, mc_context), inputs, samples=first, seed=seed, blocks=10,
+                             adaptive=samples is None, digits=MC_DIGITS, step_blocks=1 if samples is None else None,
+                             max_samples=FULL_MODEL_MAX_DRAWS if samples is None else None,
+                             workers=workers, scheduler=scheduler, progress=progress)
+        else:
+            run = surrogate_monte_carlo(partial(g_model, context), inputs, gum, samples=samples,
+                                        check_model=partial(g_model, mc_context), check_draws=check_draws,
+                                        seed=seed, digits=MC_DIGITS, rel_noise=rel_noise, workers=workers,
+                                        scheduler=scheduler, progress=progress)
+            mc = run.mc
+            check_seconds = run.check_seconds
+        mc_seconds = time.perf_counter() - start
+        notes.extend(_mc_notes(mc, run))
+    return Budget(gum.u_c, gum.u_c_error, rows, gum.value, mc, mc_rtol, tuple(notes), run, mc_seconds,
+                  check_seconds, tuple(r.name for r in refs))
+
+
+def _mc_notes(mc, run) -> list[str]:
+    out = []
+    if not mc.stable:
+        what = ("the most draws allowed" if mc.adaptive else f"the {mc.draws} draws asked for")
+        out.append(f"the Monte Carlo is NOT stable to {MC_DIGITS} significant digits of u after {what} "
+                   f"(twice its block tolerance {2 * mc.tolerance.rule():.2g} exceeds delta {mc.delta:.2g}; "
+                   "JCGM 101:2008 7.9.4)")
+    if run is not None and not run.negligible:
+        out.append(f"the surrogate differs from the full model by up to {run.check.max_error:.2g} at its check draws, "
+                   f"more than half the Monte Carlo's tolerance delta {mc.delta:.2g}: use the bounds "
+                   "(u + rms error, interval widened by the largest error) or --full-model")
+    return out

@@ -18,6 +18,7 @@ picklable bound arguments; a lambda or a nested function works only with workers
 from __future__ import annotations
 
 import math
+import time
 from dataclasses import dataclass, field
 from functools import partial
 from typing import Callable, Sequence
@@ -617,6 +618,10 @@ class SurrogateMonteCarlo:
     surrogate: QuadraticModel
     evaluations: int
     check: SurrogateCheck
+    # wall times (s): the mixed derivatives, the surrogate's draws, the check draws
+    build_seconds: float = 0.0
+    draw_seconds: float = 0.0
+    check_seconds: float = 0.0
 
     @property
     def u_bound(self) -> float:
@@ -645,8 +650,10 @@ def surrogate_monte_carlo(model, inputs: Sequence[Input], gum: GumResult, *, sam
     `digits` significant digits of u (or max_samples draws); samples N: N draws in 10 blocks, the
     stability judged all the same. The model evaluations go through executor.map_parallel; the
     surrogate's draws are vectorised here."""
+    t0 = time.perf_counter()
     surrogate, evaluations = quadratic_surrogate(model, inputs, gum, leading=leading, rel_noise=rel_noise,
                                                  workers=workers, scheduler=scheduler, progress=progress)
+    t1 = time.perf_counter()
     if samples is None:
         m = block_size(coverage)
         mc = monte_carlo(None, inputs, samples=10 * m, seed=seed, correlations=correlations, coverage=coverage,
@@ -656,9 +663,12 @@ def surrogate_monte_carlo(model, inputs: Sequence[Input], gum: GumResult, *, sam
     else:
         mc = monte_carlo(None, inputs, samples=samples, seed=seed, correlations=correlations, coverage=coverage,
                          blocks=10, groups_per_block=1, digits=digits, model_batch=surrogate, workers=1)
+    t2 = time.perf_counter()
     check = check_surrogate(check_model or model, surrogate, inputs, draws=check_draws, seed=seed,
                             correlations=correlations, workers=workers, scheduler=scheduler, progress=progress)
-    return SurrogateMonteCarlo(mc=mc, surrogate=surrogate, evaluations=evaluations, check=check)
+    t3 = time.perf_counter()
+    return SurrogateMonteCarlo(mc=mc, surrogate=surrogate, evaluations=evaluations, check=check,
+                               build_seconds=t1 - t0, draw_seconds=t2 - t1, check_seconds=t3 - t2)
 
 
 # ---------------------------------------------------------------------------------------------
