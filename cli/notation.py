@@ -61,3 +61,10 @@ def ppm(u: float, value: float) -> str:
 def with_unit(value: float, u: float, unit: str, **kw) -> str:
     """`value(u) unit (u_r ppm)`: concise notation and the relative standard uncertainty."""
     return f"{concise(value, u, **kw)} {unit} ({ppm(u, value)} ppm)"
+
+
+def rounded(value: float, u: float, **kw) -> str:
+    """The value alone, rounded and written as concise(value, u) writes it (e.g. interval ends)."""
+    text = concise(value, u, **kw)
+    head, _, tail = text.partition("(")
+    return head + tail.partition(")")[2] if tail else text

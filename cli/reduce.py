@@ -3,8 +3,10 @@ uncertainty budget (GUM linear propagation and Monte Carlo)."""
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
+from truepull.cli import notation
 from truepull.cli.output import fmt, format_table, print_json
 from truepull.geometry.errors import InputError
 from truepull.geometry.quantities import parse_scalar
@@ -20,8 +22,14 @@ def add_arguments(parser) -> None:
                         help="engine tolerance for the reduction and the GUM sensitivities (default 1e-9)")
     parser.add_argument("--mc-rtol", type=float, default=1e-6,
                         help="looser engine tolerance inside the Monte Carlo (default 1e-6)")
-    parser.add_argument("--samples", type=int, default=200,
-                        help="Monte Carlo draws (default 200; 0 skips the Monte Carlo)")
+    parser.add_argument("--samples", type=int, default=None,
+                        help="Monte Carlo draws, fixed (default: adaptive, JCGM 101:2008 7.9, until u and the 95 %% "
+                             "interval are stable to two significant digits; 0 skips the Monte Carlo)")
+    parser.add_argument("--full-model", action="store_true",
+                        help="every Monte Carlo draw through the full model (slow; for a cluster) instead of "
+                             "the checked second-order surrogate")
+    parser.add_argument("--check-draws", type=int, default=100,
+                        help="full-model draws that check the surrogate (default 100)")
     parser.add_argument("--seed", type=int, default=0, help="seed of the Monte Carlo draws (default 0)")
     parser.add_argument("--workers", type=int, default=None,
                         help="local worker processes (default: one per core; 1 runs here)")
@@ -45,12 +53,12 @@ def _fiber_q(raw):
 def reduce_data(args) -> dict:
     """The whole result for parsed command-line arguments (see reduction_data)."""
     return reduction_data(args.scene, rtol=args.rtol, mc_rtol=args.mc_rtol, samples=args.samples, seed=args.seed,
-                          workers=args.workers, scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test,
+                          check_draws=args.check_draws, full_model=args.full_model, workers=args.workers, scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test,
                           source=args.source, budget=not args.no_budget, progress=not args.no_progress)
 
 
-def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, samples: int = 200, seed: int = 0,
-                   workers: int | None = None, scheduler=None, fiber_q: str | None = None, test: str = "pendulum",
+def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, samples: int | None = None,
+                   seed: int = 0, check_draws: int = 100, full_model: bool = False, workers: int | None = None, scheduler=None, fiber_q: str | None = None, test: str = "pendulum",
                    source: str = "attractor", budget: bool = True, progress: bool = False) -> dict:
     """The reduction of the scene file at `scene_path` and its budget as plain values: the
     `reduce --json` object (also for other verbs, such as the report)."""
@@ -59,8 +67,10 @@ def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, sam
 
     scene = load_scene(scene_path)
     q = _fiber_q(fiber_q)
-    if isinstance(samples, bool) or not isinstance(samples, int) or samples < 0:
+    if samples is not None and (isinstance(samples, bool) or not isinstance(samples, int) or samples < 0):
         raise InputError(None, "--samples", f"must be 0 or more, got {samples}")
+    if isinstance(check_draws, bool) or not isinstance(check_draws, int) or check_draws < 2:
+        raise InputError(None, "--check-draws", f"must be 2 or more, got {check_draws}")
     reduction = reduce_measurement(scene, test=test, source=source, rtol=rtol, fiber_q=q)
     data = reduction.to_json()
     data["scene"] = scene.path
@@ -70,7 +80,8 @@ def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, sam
     else:
         text = Path(scene_path).read_text(encoding="utf-8")
         result = reduction_budget(scene, reduction, text, test=test, source=source, fiber_q=q, samples=samples,
-                                  seed=seed, mc_rtol=mc_rtol, workers=workers, scheduler=scheduler,
+                                  seed=seed, mc_rtol=mc_rtol, check_draws=check_draws, full_model=full_model,
+                                  workers=workers, scheduler=scheduler,
                                   progress=progress)
         data.update(result.to_json(reduction.G))
     order = ["G", "u_G", "G_point", "corrections", "budget"]
@@ -79,6 +90,87 @@ def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, sam
 
 def _ppm(x):
     return "-" if x is None else f"{x:+.3f}"
+
+
+def g_line(data: dict) -> str:
+    """G in concise notation with its GUM u (k = 1) and u in ppm, or G alone without a budget."""
+    G, u = data["G"], data["u_G"]
+    if u is None:
+        return f"G = {G:.9g} {G_UNIT}"
+    return f"G = {notation.with_unit(G, u, G_UNIT)}, GUM (JCGM 100:2008), k = 1"
+
+
+def mc_lines(data: dict) -> list[str]:
+    """The Monte Carlo in words: how, how many draws, whether stable, both intervals, the surrogate."""
+    mc = data.get("monte_carlo")
+    if not mc:
+        return []
+    u = mc["u_G"]
+    how = "adaptive, JCGM 101:2008 7.9.4" if mc["adaptive"] else "fixed number of draws"
+    state = (f"stable to {mc['digits']} significant digits of u (delta = {mc['delta']:.2g})" if mc["stable"] else
+             f"NOT stable to {mc['digits']} significant digits of u (twice the block tolerances reach "
+             f"{2 * max(mc['tolerance'][k] for k in ('mean', 'u', 'low', 'high')):.2g}, delta {mc['delta']:.2g})")
+    via = "the full model" if mc["model"] == "full" else "a checked second-order surrogate"
+    out = [f"Monte Carlo ({how}): {mc['draws']:,} draws in {mc['blocks']} blocks through {via}, {state}",
+           f"  u = {u:.2g} {G_UNIT} ({notation.ppm(u, mc['mean'])} ppm; block tolerance s_u = "
+           f"{mc['tolerance']['u']:.2g}), mean {notation.rounded(mc['mean'], u)}"]
+    lo, hi = mc["interval_95"]
+    slo, shi = mc["shortest_95"]
+    out.append(f"  95 % interval, {mc['interval_kind']}: [{notation.rounded(lo, u)}, {notation.rounded(hi, u)}]; "
+               f"{mc['shortest_kind']}: [{notation.rounded(slo, u)}, {notation.rounded(shi, u)}]"
+               + ("" if mc["shortest_stable"] else " (its ends not stable to delta)"))
+    sur = mc.get("surrogate")
+    if sur:
+        G = data["G"]
+        out.append(f"  surrogate: {sur['kind']}, {len(sur['mixed_pairs'])} mixed derivatives ({sur['evaluations']} "
+                   f"extra model evaluations); checked at {sur['check_draws']} full-model draws (engine rtol "
+                   f"{sur['check_rtol']:g}, {sur['seconds_per_full_draw']:.2g} s wall a draw): error max "
+                   f"{sur['max_error']:.2g} ({sur['max_error_ppm']:.2g} ppm), rms {sur['rms_error']:.2g} "
+                   f"({sur['rms_error_ppm']:.2g} ppm), "
+                   + ("negligible (2 x max <= delta)" if sur["negligible"] else "NOT negligible (2 x max > delta)"))
+        blo, bhi = sur["interval_95_bound"]
+        out.append(f"  with the surrogate's error folded in: u <= {sur['u_G_bound']:.3g} "
+                   f"({notation.ppm(sur['u_G_bound'], G)} ppm), 95 % interval within "
+                   f"[{notation.rounded(blo, u)}, {notation.rounded(bhi, u)}]")
+    else:
+        out.append(f"  every draw through the full model (engine rtol {mc['rtol']:g})")
+    return out
+
+
+def point_formula_lines(data: dict) -> list[str]:
+    """The point-mass formula the baseline uses, with the numbers that went into it."""
+    t = data.get("point_terms")
+    if not t or data["G_point"] is None:
+        return []
+    ip, T, pos = t["inertia_point"], t["periods"], t["positions"]
+    if t["method"] == "deflection":
+        phi, gam = t["angles"], t["torques_per_G"]
+        if len(pos) == 2:
+            value = ip * (2 * math.pi / T[0]) ** 2 * (phi[0] - phi[1]) / (gam[0] - gam[1])
+            return [f"G_point = I_p (2 pi / T)^2 (phi_{pos[0]} - phi_{pos[1]}) / (Gamma_{pos[0]} - Gamma_{pos[1]})",
+                    f"        = {ip:.9g} kg m^2 x (2 pi / {T[0]:.9g} s)^2 x ({phi[0]:.9g} - ({phi[1]:.9g})) rad",
+                    f"          / ({gam[0]:.9g} - ({gam[1]:.9g})) kg^2 m^-1",
+                    f"        = {value:.9g} {G_UNIT}",
+                    "  (I_p: the pendulum's bodies as points; T: the free period; phi: the measured angles; Gamma: "
+                    "torque per unit G of each attractor body on its nearest pendulum body, as points, as drawn; "
+                    "for two balls on a light beam, 2 pi^2 L b^2 theta / (M T^2))"]
+        slope = data["G_point"] / (ip * (2 * math.pi / T[0]) ** 2)
+        return [f"G_point = I_p (2 pi / T)^2 s, s the least-squares slope of the angles against Gamma",
+                f"        = {ip:.9g} kg m^2 x (2 pi / {T[0]:.9g} s)^2 x {slope:.9g} kg^-2 m rad = {data['G_point']:.9g}",
+                "  (angles " + ", ".join(f"{p} {a:.9g} rad" for p, a in zip(pos, phi)) + "; Gamma "
+                + ", ".join(f"{p} {g:.9g}" for p, g in zip(pos, gam)) + " kg^2 m^-1)"]
+    k = t["stiffness_per_G"]
+    if len(pos) == 2:
+        value = ip * ((2 * math.pi / T[0]) ** 2 - (2 * math.pi / T[1]) ** 2) / (k[0] - k[1])
+        return [f"G_point = I_p ((2 pi / T_{pos[0]})^2 - (2 pi / T_{pos[1]})^2) / (k_{pos[0]} - k_{pos[1]})",
+                f"        = {ip:.9g} kg m^2 x ((2 pi / {T[0]:.9g} s)^2 - (2 pi / {T[1]:.9g} s)^2)",
+                f"          / ({k[0]:.9g} - ({k[1]:.9g})) kg^2 m^-1 rad^-1",
+                f"        = {value:.9g} {G_UNIT}",
+                "  (I_p: the pendulum's bodies as points; T: the measured periods; k: gravitational stiffness per "
+                "unit G of each attractor body on its nearest pendulum body, as points, as drawn)"]
+    return [f"G_point = I_p (omega_i^2 - omega_j^2) / (k_i - k_j) by least squares over "
+            + ", ".join(f"{p} (T {tt:.9g} s, k {kk:.9g})" for p, tt, kk in zip(pos, T, k))
+            + f", I_p {ip:.9g} kg m^2 = {data['G_point']:.9g}"]
 
 
 def render(data: dict) -> str:
@@ -91,15 +183,13 @@ def render(data: dict) -> str:
     lines.append(f"method: {data['method']} ({where})")
     lines.append("")
     G, u = data["G"], data["u_G"]
-    ppm = f" ({u / G * 1e6:.3g} ppm)" if u is not None else ""
-    lines.append(f"G        = {G:.9g} {G_UNIT}" + (f"  +- {u:.3g}{ppm} (GUM, k = 1)" if u is not None else ""))
-    mc = data.get("monte_carlo")
-    if mc:
-        lo, hi = mc["interval_95"]
-        lines.append(f"           Monte Carlo: u = {mc['u_G']:.3g} ({mc['u_G_ppm']:.3g} ppm), mean {mc['mean']:.9g}, "
-                     f"95 % interval [{lo:.9g}, {hi:.9g}], {mc['draws']} draws, engine rtol {mc['rtol']:g}")
+    lines.append(g_line(data))
+    lines.append(f"G        = {G:.9g} {G_UNIT}" + (f"  +- {u:.3g} (GUM, k = 1), all digits" if u is not None else ""))
+    lines.extend(mc_lines(data))
+    lines.append("")
     if data["G_point"] is not None:
         lines.append(f"G_point  = {data['G_point']:.9g} {G_UNIT}  (textbook point-mass formula)")
+        lines.extend(point_formula_lines(data))
     lines.append(f"numerical error of G about {data['numerical_error'] / G * 1e6:.2g} ppm "
                  f"(engine rtol {data['rtol']:g}{'' if data['reached'] else ', NOT reached everywhere'})")
     lines.append("")

@@ -76,9 +76,12 @@ def add_arguments(parser) -> None:
                              f"(default: {SURVEY_RTOL:g})")
     parser.add_argument("--turn", metavar="START:STOP:STEP",
                         help="turn scan in degrees, e.g. --turn=-60:60:5 (default: across the positions' turns)")
-    parser.add_argument("--samples", type=int, default=200,
-                        help="Monte Carlo draws of the budget beside the GUM linear one (default: 200, as for "
-                             "reduce; about 5 s for the demo on 2 cores; 0 for the GUM budget only)")
+    parser.add_argument("--samples", type=int, default=None,
+                        help="Monte Carlo draws of the budget beside the GUM linear one, fixed (default: adaptive, "
+                             "JCGM 101:2008 7.9, through the checked surrogate, as for reduce; 0 for the GUM "
+                             "budget only)")
+    parser.add_argument("--check-draws", type=int, default=100,
+                        help="full-model draws that check the Monte Carlo's surrogate (default: 100)")
     parser.add_argument("--workers", type=int, default=None,
                         help="local worker processes (default: one per core)")
     parser.add_argument("--test", default="pendulum", help="the suspended group (default: pendulum)")
@@ -382,30 +385,38 @@ def section_reduce(ctx: Context) -> Section:
     reduction = red.reduce_measurement(scene, test=ctx.args.test, source=ctx.args.source, rtol=ctx.args.rtol)
     data = reduction.to_json()
     budget = bud.reduction_budget(scene, reduction, ctx.scene_text, test=ctx.args.test, source=ctx.args.source,
-                                  samples=ctx.args.samples,
+                                  samples=ctx.args.samples, check_draws=ctx.args.check_draws,
                                   workers=ctx.args.workers, progress=False)
     data.update(budget.to_json(reduction.G))
     s.data = data
     s.reached = bool(reduction.reached)
     G, u = data["G"], data["u_G"]
     unit = "m^3 kg^-1 s^-2"
-    parts = [f"**G = {G:.9g} {unit}**" + (f" ± {u:.3g} ({u / G * 1e6:.3g} ppm, GUM, k = 1)" if u else "")
+    from truepull.cli import reduce as reduce_cli
+
+    parts = [f"**{reduce_cli.g_line(data)}**; all digits: G = {G:.9g}" + (f" ± {u:.3g}" if u else "")
              + f"; method {data['method']}; numerical error about {data['numerical_error'] / G * 1e6:.2g} ppm "
              f"at engine tolerance {data['rtol']:g}" + ("" if data["reached"] else " (NOT reached everywhere)") + "."]
-    mc = data.get("monte_carlo")
-    if mc:
-        lo, hi = mc["interval_95"]
-        parts.append(f"Monte Carlo (JCGM 101): u = {mc['u_G']:.3g} ({mc['u_G_ppm']:.3g} ppm), mean {mc['mean']:.9g}, "
-                     f"95 % interval [{lo:.9g}, {hi:.9g}], {mc['draws']} draws.")
+    mc_text = reduce_cli.mc_lines(data)
+    if mc_text:
+        parts.append("\n".join(["- " + mc_text[0]] + ["- " + line.strip() for line in mc_text[1:]]))
     if data["G_point"] is not None:
         parts.append(f"Point-mass value (textbook formula): G_point = {data['G_point']:.9g} {unit}. "
                      "The corrections below take it to G; their product is exact.")
+        formula = reduce_cli.point_formula_lines(data)
+        if formula:
+            parts.append("```\n" + "\n".join(formula[:-1]) + "\n```\n\n" + formula[-1].strip())
     crow = [[c["name"], fmt(c["factor"], 12), f"{c['ppm']:+.3f}", "yes" if c["applied"] else "no input", c["note"]]
             for c in data["corrections"]]
-    parts.append(_md_table(["correction", "factor", "ppm", "applied", "note"], crow, "lrrll"))
+    parts.append(_md_table(["correction", "factor", "ppm", "applied", "note"], crow, "lrrll")
+                 + "\n\nColumns: the refinement switched on; the factor it multiplies G by; that factor - 1 in ppm; "
+                 "whether its input is in the scene; how it was computed.")
     prow = [[p["position"], fmt(p["equilibrium"] * 1e3, 9), fmt(p["torque_axis"], 6), fmt(p["stiffness_axis"], 6)]
             for p in data["positions"]]
-    parts.append(_md_table(["position", "equilibrium (mrad)", "torque (N m)", "stiffness (N m/rad)"], prow, "lrrr"))
+    parts.append(_md_table(["position", "equilibrium (mrad)", "torque (N m)", "stiffness (N m/rad)"], prow, "lrrr")
+                 + "\n\nColumns: the measured position; the solved turn of the pendulum from the fiber's rest angle; "
+                 "the attractor's torque about the fiber axis there; its gravitational stiffness "
+                 "-d(torque)/d(turn) there.")
     parts.append(f"Moment of inertia {fmt(data['inertia'], 9)} kg m^2 (as points: {fmt(data['inertia_point'], 9)}); "
                  f"fiber constant {fmt(data['fiber_constant'], 9)} N m/rad.")
     if data["budget"]:
@@ -413,9 +424,12 @@ def section_reduce(ctx: Context) -> Section:
                  f"{b['contribution_ppm']:.3g}", f"{b['share'] * 100:.1f} %"]
                 for b in sorted(data["budget"], key=lambda b: -b["contribution"])]
         parts.append("Uncertainty budget (JCGM 100, linear propagation):\n\n" +
-                     _md_table(["input", "value", "u", "unit", "sensitivity", "ppm of G", "share"], brow, "lrrlrrr"))
+                     _md_table(["input", "value", "u", "unit", "sensitivity", "ppm of G", "share"], brow, "lrrlrrr")
+                     + "\n\nColumns: the input quantity; its value and standard uncertainty u (k = 1) in SI; "
+                     "the unit of both; the sensitivity dG/dx (m^3 kg^-1 s^-2 per unit of the input); the "
+                     "contribution |dG/dx| u in ppm of G; its share of u(G)^2.")
         png, caption = FIGURES["budget"]
-        budget_png(ctx.folder / png, data["budget"], G)
+        budget_png(ctx.folder / png, data["budget"], G, u)
         s.figures.append(png)
         parts.append(f"![{caption}]({png})")
     parts += [f"Note: {n}" for n in list(data.get("notes", [])) + list(data.get("budget_notes", []))]
@@ -423,8 +437,9 @@ def section_reduce(ctx: Context) -> Section:
     return s
 
 
-def budget_png(path, rows, G: float, top: int = 20) -> None:
-    """Horizontal bars: each input's contribution to u(G) in ppm, largest at the top."""
+def budget_png(path, rows, G: float, u: float | None = None, top: int = 20) -> None:
+    """Horizontal bars: each input's contribution to u(G) in ppm, largest at the top; the title gives
+    G in concise notation when u is known."""
     from matplotlib.figure import Figure
 
     rows = sorted(rows, key=lambda b: -b["contribution"])[:top][::-1]
@@ -435,7 +450,10 @@ def budget_png(path, rows, G: float, top: int = 20) -> None:
     ax.barh(range(len(rows)), ppm, color="C0")
     ax.set_yticks(range(len(rows)), names, fontsize=8)
     ax.set_xlabel("contribution to u(G) (ppm of G)")
-    ax.set_title(f"uncertainty budget of G = {G:.7g} m^3 kg^-1 s^-2", fontsize=10)
+    from truepull.cli.notation import concise, ppm
+
+    shown = f"{concise(G, u)} m^3 kg^-1 s^-2 ({ppm(u, G)} ppm)" if u else f"{G:.7g} m^3 kg^-1 s^-2"
+    ax.set_title(f"uncertainty budget of G = {shown}", fontsize=10)
     ax.grid(True, axis="x", alpha=0.3)
     save_figure_atomic(fig, path, dpi=110)
 
@@ -576,8 +594,10 @@ def _validate(args) -> None:
     for key, value in (("--rtol", args.rtol), ("--survey-rtol", args.survey_rtol)):
         if not (value > 0 and math.isfinite(value)):
             raise InputError(None, key, "the tolerance must be a finite number greater than zero")
-    if args.samples < 0:
+    if args.samples is not None and args.samples < 0:
         raise InputError(None, "--samples", f"must be 0 or more, got {args.samples}")
+    if args.check_draws < 2:
+        raise InputError(None, "--check-draws", f"must be 2 or more, got {args.check_draws}")
     if args.workers is not None and args.workers < 1:
         raise InputError(None, "--workers", "must be 1 or more")
     if args.data is not None and not Path(args.data).is_file():

@@ -491,6 +491,7 @@ class Reduction:
     reached: bool
     notes: tuple[str, ...] = field(default_factory=tuple)
     G_point_all_pairs: float | None = None
+    point_terms: dict | None = None
 
     def to_json(self) -> dict:
         return {
@@ -505,6 +506,7 @@ class Reduction:
                           for i, (p, e, t, k) in enumerate(zip(self.positions, self.equilibrium, self.torque,
                                                                self.stiffness))],
             "angle_offset": self.offset, "G_point_all_pairs": self.G_point_all_pairs, "notes": list(self.notes),
+            "point_terms": self.point_terms,
         }
 
 
@@ -640,7 +642,8 @@ def reduce_measurement(scene, *, test: str = "pendulum", source: str = "attracto
         inertia_point=inertia_point, fiber_constant=float(kappa), positions=obs.positions,
         equilibrium=tuple(float(t) for t in theta), torque=torque, stiffness=stiff, offset=offset,
         period_ratio=ratio, nodes=tuple(cv.nodes for cv in curves), state=tuple(float(v) for v in state_b),
-        rtol=rtol, reached=reached, notes=tuple(dict.fromkeys(notes)), G_point_all_pairs=all_pairs)
+        rtol=rtol, reached=reached, notes=tuple(dict.fromkeys(notes)), G_point_all_pairs=all_pairs,
+        point_terms=point_terms(obs, drawn, inertia_point) if G_point is not None else None)
 
 
 def _check_sign(scene, obs, G):
@@ -797,3 +800,18 @@ def _engine_error(obs, drawn, curves, inertia, w20, steps) -> float:
             kk[i] += delta
             err += abs(swing_fit(inertia, w20, kk, obs.weights)[0] - base)
     return float(err * abs(G / base)) if base else float(err)
+
+
+def point_terms(obs: Observations, drawn, inertia_point: float) -> dict:
+    """The numbers that go into G_point, in SI: deflection G_point = I_p (2 pi / T)^2 s, s the slope of
+    the measured angles against the textbook pairs' point torques per unit G (two positions:
+    s = (phi_1 - phi_2) / (Gamma_1 - Gamma_2)); swing G_point = I_p (omega_1^2 - omega_2^2) /
+    (k_1 - k_2) with omega_i = 2 pi / T_i and k the point stiffness per unit G (least squares for more)."""
+    out = {"method": obs.method, "inertia_point": float(inertia_point), "positions": list(obs.positions),
+           "periods": [float(t) for t in obs.periods]}
+    if obs.method == "deflection":
+        out["angles"] = [float(a) for a in obs.angles]
+        out["torques_per_G"] = [float(d.nearest_torque) for d in drawn]
+    else:
+        out["stiffness_per_G"] = [float(d.nearest_stiffness) for d in drawn]
+    return out
