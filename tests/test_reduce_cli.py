@@ -23,7 +23,7 @@ def one_numba_thread():
     numba.set_num_threads(before)
 
 
-QUICK = ["--samples", "40", "--workers", "1", "--no-progress"]
+QUICK = ["--samples", "40", "--check-draws", "10", "--workers", "1", "--no-progress"]
 
 
 def deflection_text():
@@ -167,3 +167,73 @@ def test_bad_options(tmp_path, capsys, argv, words):
 def test_missing_scene_file(tmp_path, capsys):
     line = run_bad(capsys, ["reduce", str(tmp_path / "nope.toml")])
     assert "not found" in line
+
+
+# ------------------------------------------------------------------------ Monte Carlo and notation
+
+def test_adaptive_monte_carlo_by_default_states_draws_stability_and_surrogate(tmp_path, capsys):
+    data = run_json(capsys, ["reduce", write(tmp_path, deflection_text()), "--check-draws", "12", "--workers", "1",
+                             "--no-progress"])
+    assert list(data)[:5] == ["G", "u_G", "G_point", "corrections", "budget"]
+    mc = data["monte_carlo"]
+    assert mc["adaptive"] and mc["model"] == "surrogate" and mc["interval_kind"] == "probabilistically symmetric"
+    assert mc["shortest_kind"] == "shortest"
+    # JCGM 101:2008 7.9.4: blocks of M = 10^4, at least 10 of them; stable means the rule j) holds
+    assert mc["draws"] == 10_000 * mc["blocks"] and mc["blocks"] >= 10
+    t = mc["tolerance"]
+    assert mc["stable"] and 2 * max(t["mean"], t["u"], t["low"], t["high"]) <= mc["delta"]
+    # delta from u(G) to two significant digits (JCGM 101 7.9.2): half a unit of u's second digit
+    e = math.floor(math.log10(mc["u_G"]))
+    assert mc["delta"] == pytest.approx(0.5 * 10.0 ** (e - 1), rel=1e-9)
+    # the reduction of this synthetic balance is nearly linear over the input spread, so the Monte
+    # Carlo's u agrees with the GUM's to its stated tolerance (JCGM 101:2008 8: the GUM validated)
+    assert abs(mc["u_G"] - data["u_G"]) <= mc["delta"]
+    sur = mc["surrogate"]
+    assert sur["check_draws"] == 12 and sur["negligible"] and sur["max_error"] >= sur["rms_error"] > 0
+    assert sur["u_G_bound"] == pytest.approx(mc["u_G"] + sur["rms_error"], rel=1e-12)  # Minkowski
+    assert sur["max_error"] / data["G"] * 1e6 == pytest.approx(sur["max_error_ppm"], rel=1e-12)
+
+
+def test_fixed_samples_say_whether_they_are_stable(tmp_path, capsys):
+    assert main(["reduce", write(tmp_path, deflection_text())] + QUICK) == 0
+    text = capsys.readouterr().out
+    assert "fixed number of draws" in text and "40 draws" in text and "NOT stable" in text
+    assert "probabilistically symmetric" in text and "shortest" in text and "surrogate" in text
+    assert "10 full-model draws" in text
+
+
+def _nearest_torque_per_g(psi):
+    """Axial torque per unit G of each attractor ball on its nearest bob only, as drawn (Newton's law
+    for point pairs, written out from tests/synthetic_balance.py's geometry)."""
+    r = math.hypot(sb.D, sb.B)
+    total = 0.0
+    bobs = [(sb.D, 0.0), (-sb.D, 0.0)]
+    for sa in (1, -1):
+        ax, ay = sa * r * math.cos(sb.ANGLE + psi), sa * r * math.sin(sb.ANGLE + psi)
+        bx, by = min(bobs, key=lambda b: math.hypot(ax - b[0], ay - b[1]))
+        dx, dy = ax - bx, ay - by
+        total += sb.M_BOB * sb.M_BIG * (bx * dy - by * dx) / math.hypot(dx, dy) ** 3
+    return total
+
+
+def test_the_point_mass_formula_is_written_with_its_numbers(tmp_path, capsys):
+    data = run_json(capsys, ["reduce", write(tmp_path, deflection_text()), "--samples", "0", "--workers", "1",
+                             "--no-progress"])
+    t = data["point_terms"]
+    # the textbook inputs: points of the bobs' masses at +-D (I_p = 2 m D^2, handbook), the measured
+    # period and angles, and the nearest pairs' point torques (Newton's law, by hand above)
+    assert t["inertia_point"] == pytest.approx(2 * sb.M_BOB * sb.D**2, rel=1e-12)
+    assert t["torques_per_G"][0] == pytest.approx(_nearest_torque_per_g(sb.PSI_A), rel=1e-12)
+    assert t["torques_per_G"][1] == pytest.approx(_nearest_torque_per_g(sb.PSI_B), rel=1e-12)
+    # and they give G_point by the formula written out
+    g = t["inertia_point"] * (2 * math.pi / t["periods"][0]) ** 2 * (t["angles"][0] - t["angles"][1]) / (
+        t["torques_per_G"][0] - t["torques_per_G"][1])
+    assert g == pytest.approx(data["G_point"], rel=1e-12)
+    assert main(["reduce", write(tmp_path, deflection_text()), "--samples", "0", "--workers", "1", "--no-progress"]) == 0
+    text = capsys.readouterr().out
+    assert "G_point = I_p (2 pi / T)^2 (phi_A - phi_B) / (Gamma_A - Gamma_B)" in text
+    assert f"{t['inertia_point']:.9g} kg m^2" in text and f"{data['G_point']:.9g}" in text
+    # G in concise notation, u to two digits (JCGM 100:2008 7.2.2), beside all digits
+    from truepull.cli.notation import concise
+
+    assert f"G = {concise(data['G'], data['u_G'])} m^3 kg^-1 s^-2" in text

@@ -154,7 +154,8 @@ def plain(tmp_path_factory):
 @pytest.fixture(scope="module")
 def full_report(spheres, tmp_path_factory):
     out = tmp_path_factory.mktemp("reports") / "full"
-    code = main(["report", str(spheres), "--out", str(out), "--samples", "40", "--workers", "1", "--turn=-60:60:20",
+    code = main(["report", str(spheres), "--out", str(out), "--samples", "40", "--check-draws", "10", "--workers", "1",
+                 "--turn=-60:60:20",
                  "--data", str(demo_run_path())])
     return code, out
 
@@ -195,6 +196,26 @@ def test_report_with_a_measurement_carries_its_G(full_report):
     assert red["G"] == pytest.approx(G_TRUE, rel=1e-7)
     assert red["u_G"] > 0 and red["budget"]
     assert f"G = {red['G']:.9g}" in (out / "report.md").read_text()
+
+
+def test_report_states_the_monte_carlo_and_explains_its_tables(full_report):
+    code, out = full_report
+    red = _load(out)["sections"]["reduce"]
+    mc = red["monte_carlo"]
+    md = (out / "report.md").read_text()
+    section = md[md.index("## G from the measurement"):]
+    section = section[:section.index("\n## ")]
+    assert mc["draws"] == 40 and not mc["adaptive"] and mc["model"] == "surrogate"
+    assert mc["surrogate"]["check_draws"] == 10
+    # 40 draws cannot hold u to two digits (JCGM 101:2008 7.9.4 j): the report must say so
+    assert not mc["stable"] and "NOT stable" in section and "40 draws" in section
+    assert "probabilistically symmetric" in section and "shortest" in section and "surrogate" in section
+    # every table of the section is followed by its columns explained once
+    tables = sum(1 for line in section.splitlines() if line.startswith("|") and set(line) <= set("|:-"))
+    assert tables >= 3 and section.count("Columns: ") == tables
+    from truepull.cli.notation import concise
+
+    assert f"G = {concise(red['G'], red['u_G'])}" in section and "ppm" in section
 
 
 def test_report_asks_what_a_flattened_attractor_sphere_does(full_report):
