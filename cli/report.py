@@ -189,15 +189,21 @@ def section_check(ctx: Context) -> Section:
         rows.append([d["name"], d["group"], kind, fmt(d["mass"] * 1e3), fmt(d["volume"] / lf**3),
                      _vec(d["com"], lf), " ".join(fmt(x, 5) for x in principal)])
     parts = [_md_table(["body", "group", "shape", "mass (g)", f"volume ({lu}^3)", f"centre of mass ({lu})",
-                        f"principal moments (kg {lu}^2)"], rows, "lllrrll")]
+                        f"principal moments (kg {lu}^2)"], rows, "lllrrll")
+             + "\n\nColumns: the body; its group; its shape; its mass; its volume; its centre of mass; the principal "
+             "moments of inertia about its centre of mass."]
     grows = [[name, fmt(g["mass"] * 1e3), _vec(g["com"], lf), fmt(g["inertia_axis"] / lf**2)]
              for name, g in data["groups"].items()]
     parts.append(_md_table(["group", "net mass (g)", f"centre of mass ({lu})",
-                            f"moment of inertia about the fiber axis (kg {lu}^2)"], grows, "lrlr"))
+                            f"moment of inertia about the fiber axis (kg {lu}^2)"], grows, "lrlr")
+                 + "\n\nColumns: the group; its mass with holes subtracted; its centre of mass; its moment of "
+                 "inertia about the fiber axis through the pivot.")
     if ctx.scene.positions:
         prow = [[p.name, p.group, fmt(p.turn.value / ctx.scene.angle_factor), ctx.scene.angle_unit,
                  _vec([c.value for c in p.shift], lf)] for p in ctx.scene.positions]
-        parts.append(_md_table(["position", "group", "turn", "unit", f"shift ({lu})"], prow, "llrll"))
+        parts.append(_md_table(["position", "group", "turn", "unit", f"shift ({lu})"], prow, "llrll")
+                     + "\n\nColumns: the position; the group it moves; its turn about the frame axis and the "
+                     "turn's unit; its shift.")
     if data["warnings"]:
         parts.append("Warnings:\n\n" + "\n".join(f"- {w}" for w in data["warnings"]))
     else:
@@ -236,7 +242,10 @@ def section_compare(ctx: Context) -> Section:
                      fmt(float(np.linalg.norm(c.exact.force)), 8), "yes" if c.reached else "NO"])
     parts = [f"Test group `{comps[0].test}`, source group `{comps[0].source}`; torque about the fiber axis, "
              f"stiffness -d(torque)/d(turn of the test group); requested tolerance {ctx.args.rtol:g}.",
-             _md_table(head, rows, "l" + "r" * 8 + "l")]
+             _md_table(head, rows, "l" + "r" * 8 + "l")
+             + "\n\nColumns: the position; the exact torque about the fiber axis, the point-mass model's, their "
+             "ratio and the exact torque's estimated error; the same for the stiffness (no error column); the "
+             "exact force's magnitude; whether the tolerance was reached."]
     for c in comps:
         total = c.exact.torque_axis
         # a share of a total that cancels (a symmetric position) says nothing
@@ -248,7 +257,9 @@ def section_compare(ctx: Context) -> Section:
             prow.append([p.test, p.source, fmt(t, 8), share, p.method])
         where = f"position {c.position}" if c.position else "the scene as drawn"
         parts.append(f"Pairs at {where}:\n\n" + _md_table(["test body", "source body", "torque (N m)", "share",
-                                                           "method"], prow, "llrrl"))
+                                                           "method"], prow, "llrrl")
+                     + ("\n\nColumns: the body pulled; the body pulling; the exact torque about the fiber axis; "
+                        "its share of the total; how the engine computed it." if c is comps[0] else ""))
         for n in c.notes:
             parts.append(f"Note ({where}): {n}")
     s.markdown = "\n\n".join(parts)
@@ -324,7 +335,9 @@ def _harmonics_parts(series, group: str, data: dict) -> list[str]:
             f"tau(phi) = sum of C_m cos(m phi) + S_m sin(m phi), from the multipole moments up to degree "
             f"{series.L} (the higher degrees add at most {fmt(series.bounds.torque, 2)} N m at any turn); the "
             f"leading harmonics, above a millionth of the largest:",
-            _md_table(["m", "C_m (N m)", "S_m (N m)", "amplitude (N m)", "error (N m)"], rows, "rrrrr")]
+            _md_table(["m", "C_m (N m)", "S_m (N m)", "amplitude (N m)", "error (N m)"], rows, "rrrrr")
+            + "\n\nColumns: the harmonic's order m; its cosine and sine coefficients; sqrt(C_m^2 + S_m^2); the "
+            "bound on their error."]
 
 
 # --- bias ----------------------------------------------------------------------------------------
@@ -350,7 +363,10 @@ def section_bias(ctx: Context) -> Section:
              f"({fmt(result.torque_axis, 10)} N m) to each body's placement, size and density, ranked by the "
              f"change a stated uncertainty makes (ppm per u); derivatives per SI unit, at tolerance "
              f"{ctx.args.survey_rtol:g}." + (f" G model: {result.G_model}." if result.G_model else ""),
-             _md_table(head, rows, "llrrrrr")]
+             _md_table(head, rows, "llrrrrr")
+             + "\n\nColumns: the body; its parameter; the parameter's value; the torque's derivative with respect "
+             "to it; its stated standard uncertainty; the torque's change for one u, in ppm; G's change for one u, "
+             "in ppm."]
     if len(result.rows) > BIAS_ROWS_SHOWN:
         parts.append(f"The {BIAS_ROWS_SHOWN} largest of {len(result.rows)} rows; all are in report.json.")
     from truepull.cli.bias import what_if_rows, write_png as bias_png
@@ -364,7 +380,9 @@ def section_bias(ctx: Context) -> Section:
                      f"density, flattened by {REPORT_FLATTENING:g} along the fiber axis (semi-axes a, a, a (1 - f)), "
                      f"the others unchanged (torque at {where}; G by {what_ifs[0].G_method or 'no model: no measurement'}).")
         parts.append(_md_table(["change", "torque before (N m)", "after (N m)", "torque ppm", "G ppm"],
-                               what_if_rows(what_ifs), "lrrrr"))
+                               what_if_rows(what_ifs), "lrrrr")
+                     + "\n\nColumns: the change made; the torque before and after it; the torque's change in ppm; "
+                     "G's change in ppm.")
     if what_ifs or any(r.torque_ppm is not None for r in result.rows):
         png, caption = FIGURES["bias"]
         bias_png(ctx.folder / png, result, what_ifs, ctx.scene.title or "")
