@@ -123,7 +123,8 @@ def mc_lines(data: dict) -> list[str]:
     if sur:
         G = data["G"]
         out.append(f"  surrogate: {sur['kind']}, {len(sur['mixed_pairs'])} mixed derivatives ({sur['evaluations']} "
-                   f"extra model evaluations); checked at {sur['check_draws']} full-model draws (engine rtol "
+                   f"extra model evaluations{'; built again with more after a first check found it off' if sur.get('refined') else ''}"
+                   f"); checked at {sur['check_draws']} full-model draws (engine rtol "
                    f"{sur['check_rtol']:g}, {sur['seconds_per_full_draw']:.2g} s wall a draw): error max "
                    f"{sur['max_error']:.2g} ({sur['max_error_ppm']:.2g} ppm), rms {sur['rms_error']:.2g} "
                    f"({sur['rms_error_ppm']:.2g} ppm), "

@@ -263,7 +263,7 @@ class Budget:
             out["surrogate"] = {
                 "kind": "second-order Taylor model of G in the inputs",
                 "mixed_pairs": [[names[i], names[j]] for i, j in run.surrogate.pairs],
-                "evaluations": run.evaluations, "check_draws": check.draws, "check_rtol": self.mc_rtol,
+                "evaluations": run.evaluations, "refined": run.refined, "check_draws": check.draws, "check_rtol": self.mc_rtol,
                 "max_error": check.max_error, "rms_error": check.rms_error,
                 "max_error_ppm": check.max_error / G * 1e6, "rms_error_ppm": check.rms_error / G * 1e6,
                 "full_mean": check.full_mean, "full_u": check.full_u, "negligible": run.negligible,

@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import partial
 from typing import Callable, Sequence
 
@@ -493,6 +493,8 @@ SURROGATE_MAX_DRAWS = 5_000_000
 SURROGATE_LEADING = 8
 # ... those whose |c_i| u_i + |H_ii| u_i^2 is at least this fraction of the largest
 SURROGATE_CUT = 1e-2
+# a surrogate found not negligible is built again with at most this many mixed-derivative evaluations
+SURROGATE_REFINE_EVALUATIONS = 400
 # spawn keys of the check draws start here, apart from every Monte Carlo group index
 CHECK_GROUP_BASE = 2**40
 CHECK_GROUPS = 16
@@ -622,6 +624,7 @@ class SurrogateMonteCarlo:
     build_seconds: float = 0.0
     draw_seconds: float = 0.0
     check_seconds: float = 0.0
+    refined: bool = False  # built a second time with more mixed derivatives after a failed check
 
     @property
     def u_bound(self) -> float:
@@ -642,14 +645,45 @@ def surrogate_monte_carlo(model, inputs: Sequence[Input], gum: GumResult, *, sam
                           check_model=None, check_draws: int = 100, seed: int | None = 0, correlations=None,
                           coverage: float = 0.95, digits: int = 2, max_samples: int = SURROGATE_MAX_DRAWS,
                           leading: Sequence[int] | None = None, rel_noise: float = differences.DEFAULT_REL_NOISE,
-                          workers: int | None = 1, scheduler=None, progress: bool = False) -> SurrogateMonteCarlo:
+                          refine_evaluations: int = SURROGATE_REFINE_EVALUATIONS, workers: int | None = 1,
+                          scheduler=None, progress: bool = False) -> SurrogateMonteCarlo:
     """JCGM 101:2008 Monte Carlo through the quadratic_surrogate of `model` (built from `gum`), checked
     by check_surrogate at `check_draws` draws of `check_model` (default: `model`; e.g. the same model
     at a looser engine tolerance). samples None: the adaptive procedure of JCGM 101 7.9.4 with blocks
     of M = block_size(coverage) draws, 10 to start with and then one at a time, until stable to
     `digits` significant digits of u (or max_samples draws); samples N: N draws in 10 blocks, the
     stability judged all the same. The model evaluations go through executor.map_parallel; the
-    surrogate's draws are vectorised here."""
+    surrogate's draws are vectorised here. When the check finds the surrogate's error not negligible
+    (and `leading` is not given), the surrogate is built once more with the mixed derivatives among
+    as many inputs as `refine_evaluations` model evaluations allow, and run and checked again."""
+    result = _surrogate_run(model, inputs, gum, leading, samples, check_model, check_draws, seed, correlations,
+                            coverage, digits, max_samples, rel_noise, workers, scheduler, progress)
+    if result.negligible or leading is not None or refine_evaluations <= result.evaluations:
+        return result
+    # not good enough: the mixed derivatives among as many inputs as `refine_evaluations` allow
+    # (those with a nonzero u, by |c_i| u_i + |H_ii| u_i^2, then by relative uncertainty u_i / |x_i|),
+    # and the run and its check again
+    values, u = _check_inputs(inputs)
+    c = np.array([row.sensitivity for row in gum.rows])
+    d2, _ = differences.second_derivatives(gum.stencil, np.asarray(gum.steps, float), gum.value, rel_noise)
+    score = np.abs(c) * u + np.abs(d2) * u**2
+    rel = np.where(values != 0, u / np.where(values != 0, np.abs(values), 1.0), u)
+    order = sorted((i for i in range(values.size) if u[i] > 0), key=lambda i: (-score[i], -rel[i]))
+    k = len(order)
+    while k > 2 and 2 * k * (k - 1) > refine_evaluations:
+        k -= 1
+    if k <= len(result.surrogate.pairs) and set(order[:k]) <= {i for p in result.surrogate.pairs for i in p}:
+        return result
+    again = _surrogate_run(model, inputs, gum, order[:k], samples, check_model, check_draws, seed, correlations,
+                           coverage, digits, max_samples, rel_noise, workers, scheduler, progress)
+    return replace(again, evaluations=again.evaluations + result.evaluations,
+                   build_seconds=again.build_seconds + result.build_seconds,
+                   draw_seconds=again.draw_seconds + result.draw_seconds,
+                   check_seconds=again.check_seconds + result.check_seconds, refined=True)
+
+
+def _surrogate_run(model, inputs, gum, leading, samples, check_model, check_draws, seed, correlations, coverage,
+                   digits, max_samples, rel_noise, workers, scheduler, progress) -> SurrogateMonteCarlo:
     t0 = time.perf_counter()
     surrogate, evaluations = quadratic_surrogate(model, inputs, gum, leading=leading, rel_noise=rel_noise,
                                                  workers=workers, scheduler=scheduler, progress=progress)

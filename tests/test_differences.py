@@ -56,3 +56,22 @@ def test_noisy_model_widens_the_bound():
     f = lambda p: np.exp(p[0]) * (1 + 1e-9 * rng.uniform(-1, 1))  # noqa: E731
     d, err = _derivative(f, 1.0, 1e-4, rel_noise=1e-9)
     assert abs(d[0] - np.e) <= err[0]  # closed form: d/dx exp(x) = exp(x)
+
+
+def test_second_derivatives_against_calculus_with_a_bound_that_holds():
+    # d^2/dx^2 of exp(x) sin(y) / z (calculus): exp sin / z, -exp sin / z, 2 exp sin / z^3
+    import math
+
+    from truepull.integrate.differences import OFFSETS, second_derivatives
+
+    x = np.array([0.3, 1.1, 2.5])
+
+    def f(p):
+        return math.exp(p[0]) * math.sin(p[1]) / p[2]
+
+    exact = f(x) * np.array([1.0, -1.0, 2.0 / x[2] ** 2])
+    for h in (np.array([1e-3, 1e-3, 1e-3]), np.array([0.1, 0.1, 0.1])):
+        values = np.array([[f(x + k * h[i] * np.eye(3)[i]) for k in OFFSETS] for i in range(3)])
+        d2, err = second_derivatives(values, h, f(x))
+        assert np.all(np.abs(d2 - exact) <= err)  # the bound covers the true error
+        assert np.all(err <= (1e-6 if h[0] < 0.01 else 1e-2) * np.abs(exact))

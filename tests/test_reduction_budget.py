@@ -170,3 +170,23 @@ def test_the_pivot_is_an_input_and_moving_it_is_moving_every_part_the_other_way(
         assert abs(c[f"frame.pivot.{axis}"] + total) <= 1e-6 * scale
     assert abs(c["frame.pivot.x"]) > 1e-2 * max(abs(c[f"body[{b}].at.x"]) for b in bodies)
     assert abs(c["frame.pivot.z"]) <= err["frame.pivot.z"] + 1e-9 * abs(c["body[bob-east].at.x"])
+
+
+def test_surrogate_checked_against_the_full_model_and_the_full_model_path(deflection):
+    scene, result, text = deflection
+    budget = reduction_budget(scene, result, text, samples=2_000, seed=4, check_draws=30, workers=1)
+    run, mc = budget.surrogate, budget.monte_carlo
+    # the check draws went through the full model: their spread is the model's u, which a sample sd
+    # of 30 normal values estimates within 4 / sqrt(2 x 29) relative (common practice)
+    assert abs(run.check.full_u / budget.u_G - 1) < 4 / math.sqrt(2 * 29)
+    # the mixed terms of the bob and ball densities (zero first-order effect, so not among the leading
+    # inputs) matter here at the level of delta (JCGM 101:2008 7.9.2, two digits): the first check sees
+    # it, the surrogate is built again with every pair, and its error falls far below delta
+    assert run.refined and run.negligible and run.check.max_error < 0.05 * mc.delta
+    assert len(run.surrogate.pairs) == 45  # all pairs of the 10 inputs
+    data = budget.to_json(result.G)["monte_carlo"]
+    assert data["model"] == "surrogate" and data["surrogate"]["check_draws"] == 30 and data["surrogate"]["refined"]
+    full = reduction_budget(scene, result, text, samples=40, seed=4, full_model=True, workers=1)
+    assert full.surrogate is None and full.monte_carlo.draws == 40
+    assert full.to_json(result.G)["monte_carlo"]["model"] == "full"
+    assert full.to_json(result.G)["monte_carlo"]["surrogate"] is None
