@@ -28,8 +28,8 @@ def add_arguments(parser) -> None:
     parser.add_argument("--full-model", action="store_true",
                         help="every Monte Carlo draw through the full model (slow; for a cluster) instead of "
                              "the checked second-order surrogate")
-    parser.add_argument("--check-draws", type=int, default=100,
-                        help="full-model draws that check the surrogate (default 100)")
+    parser.add_argument("--check-draws", type=int, default=50,
+                        help="full-model draws that check the surrogate (default 50)")
     parser.add_argument("--seed", type=int, default=0, help="seed of the Monte Carlo draws (default 0)")
     parser.add_argument("--workers", type=int, default=None,
                         help="local worker processes (default: one per core; 1 runs here)")
@@ -53,12 +53,14 @@ def _fiber_q(raw):
 def reduce_data(args) -> dict:
     """The whole result for parsed command-line arguments (see reduction_data)."""
     return reduction_data(args.scene, rtol=args.rtol, mc_rtol=args.mc_rtol, samples=args.samples, seed=args.seed,
-                          check_draws=args.check_draws, full_model=args.full_model, workers=args.workers, scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test,
-                          source=args.source, budget=not args.no_budget, progress=not args.no_progress)
+                          check_draws=args.check_draws, full_model=args.full_model, workers=args.workers,
+                          scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test, source=args.source,
+                          budget=not args.no_budget, progress=not args.no_progress)
 
 
 def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, samples: int | None = None,
-                   seed: int = 0, check_draws: int = 100, full_model: bool = False, workers: int | None = None, scheduler=None, fiber_q: str | None = None, test: str = "pendulum",
+                   seed: int = 0, check_draws: int = 50, full_model: bool = False, workers: int | None = None,
+                   scheduler=None, fiber_q: str | None = None, test: str = "pendulum",
                    source: str = "attractor", budget: bool = True, progress: bool = False) -> dict:
     """The reduction of the scene file at `scene_path` and its budget as plain values: the
     `reduce --json` object (also for other verbs, such as the report)."""

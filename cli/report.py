@@ -80,8 +80,8 @@ def add_arguments(parser) -> None:
                         help="Monte Carlo draws of the budget beside the GUM linear one, fixed (default: adaptive, "
                              "JCGM 101:2008 7.9, through the checked surrogate, as for reduce; 0 for the GUM "
                              "budget only)")
-    parser.add_argument("--check-draws", type=int, default=100,
-                        help="full-model draws that check the Monte Carlo's surrogate (default: 100)")
+    parser.add_argument("--check-draws", type=int, default=50,
+                        help="full-model draws that check the Monte Carlo's surrogate (default: 50)")
     parser.add_argument("--workers", type=int, default=None,
                         help="local worker processes (default: one per core)")
     parser.add_argument("--test", default="pendulum", help="the suspended group (default: pendulum)")

@@ -51,7 +51,7 @@ MC_RTOL = 1e-6
 # significant digits of u(G) to which the adaptive Monte Carlo makes u and the interval stable
 MC_DIGITS = 2
 # full-model draws that check the surrogate
-CHECK_DRAWS = 100
+CHECK_DRAWS = 50
 # the most full-model draws an adaptive run with full_model=True makes
 FULL_MODEL_MAX_DRAWS = 1_000_000
 STEP_FRACTION = 0.1
