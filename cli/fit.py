@@ -70,7 +70,12 @@ def _read_columns(path: str, wanted: list[str], labels_column: str | None, label
         dialect = csv.Sniffer().sniff(lines[0][1], delimiters=",;\t")
     except csv.Error:
         dialect = csv.excel
-    rows = list(csv.reader([ln for _, ln in lines], dialect))
+    reader = csv.reader([ln for _, ln in lines], dialect)
+    try:
+        rows = list(reader)
+    except csv.Error as exc:  # a cell over the csv module's field limit, a NUL byte, a stray quote
+        line_no = lines[min(reader.line_num, len(lines)) - 1][0]
+        raise InputError(path, None, f"line {line_no}: not readable as CSV ({exc})") from None
     header = [h.strip() for h in rows[0]]
     present = ", ".join(h for h in header if h) or "none"
     optional = labels_column if labels_column in header or labels_required else None
@@ -99,10 +104,13 @@ def _read_columns(path: str, wanted: list[str], labels_column: str | None, label
                 continue
             if not cell:
                 raise InputError(path, name, f"line {line_no}: empty cell in column '{name}'")
+            shown = cell if len(cell) <= 40 else cell[:37] + "..."
             try:
                 numbers[name][k] = float(cell)
             except ValueError:
-                raise InputError(path, name, f"line {line_no}: '{cell}' in column '{name}' is not a number") from None
+                raise InputError(path, name, f"line {line_no}: '{shown}' in column '{name}' is not a number") from None
+            if not np.isfinite(numbers[name][k]):
+                raise InputError(path, name, f"line {line_no}: '{shown}' in column '{name}' is not a finite number")
     return numbers, labels, line_numbers
 
 
