@@ -50,6 +50,9 @@ def add_arguments(parser) -> None:
 
 # ---------------------------------------------------------------- reading the CSV
 
+CELL_LIMIT = 1e100  # largest magnitude _read_columns accepts in a cell (its inverse: the smallest nonzero)
+
+
 def _read_columns(path: str, wanted: list[str], labels_column: str | None, labels_required: bool):
     """Columns `wanted` as float arrays, column `labels_column` as strings (None when it is absent and
     not required), and the file line number of each data row. Blank lines and lines starting with '#'
@@ -109,8 +112,14 @@ def _read_columns(path: str, wanted: list[str], labels_column: str | None, label
                 numbers[name][k] = float(cell)
             except ValueError:
                 raise InputError(path, name, f"line {line_no}: '{shown}' in column '{name}' is not a number") from None
-            if not np.isfinite(numbers[name][k]):
+            value = abs(numbers[name][k])
+            if not np.isfinite(value):
                 raise InputError(path, name, f"line {line_no}: '{shown}' in column '{name}' is not a finite number")
+            # the fits form sums of products of up to three values: beyond 1e100 (or below 1e-100 but not 0)
+            # they would overflow or lose all precision; no recorded time or angle is anywhere near
+            if value > CELL_LIMIT or 0 < value < 1 / CELL_LIMIT:
+                raise InputError(path, name, f"line {line_no}: '{shown}' in column '{name}' is out of range "
+                                             f"(magnitudes from {1 / CELL_LIMIT:g} to {CELL_LIMIT:g}, or 0)")
     return numbers, labels, line_numbers
 
 
