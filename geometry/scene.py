@@ -2,7 +2,9 @@
 
 Every number is converted to SI once, here (m, kg, kg/m^3, rad, s). Any key the scene format does not
 know is refused, so a typo cannot silently change a result. Bad input raises InputError naming the
-file, the key (e.g. `body[bob-east].radius`) and the reason.
+file, the key (e.g. `body[bob-east].radius`) and the reason. Values must be finite and, in SI, within
+the ranges of `quantities.LIMITS` (lengths 1e-12 .. 1e12 m, angles up to 1e6 rad, ...); directions
+(`axis`, `rotate.axis`, `frame.axis`) are three plain numbers; a decrement is at most MAX_DECREMENT.
 """
 
 from __future__ import annotations
