@@ -142,7 +142,8 @@ def _check_extent(vertices, name, where, key):
 def mesh_report(path, units: str = "m") -> dict:
     """Facts about a mesh file, for inspection: counts, bounding box, watertightness, winding,
     and (when closed) volume, centroid and inertia about the centroid for density 1, all in SI
-    after scaling from `units`. Raises InputError only if the file is missing or not a mesh."""
+    after scaling from `units`. Raises InputError if the file is missing or not a mesh, and for a
+    closed part out of the length range or with overlapping shells (its mass properties would be wrong)."""
     factor = si_factor(units, "length", str(path), "units")
     mesh = _read_trimesh(path)
     v = np.asarray(mesh.vertices, dtype=float) * factor
@@ -162,11 +163,14 @@ def mesh_report(path, units: str = "m") -> dict:
         "notes": [],
     }
     if report["watertight"] and report["winding_consistent"]:
+        name = Path(path).name
+        _check_extent(v, name, str(path), None)
         shape = MeshShape(v, np.asarray(mesh.faces), os.fspath(path))
         if shape.volume() < 0:
             report["inside_out"] = True
             report["notes"].append("wound inside-out; truepull turns it right way out")
             shape = MeshShape(v, np.asarray(mesh.faces)[:, ::-1], os.fspath(path))
+        _check_shells(shape.trimesh(), name, str(path), None)
         report["volume"] = shape.volume()
         report["centroid"] = shape.centroid()
         report["inertia"] = shape.inertia_unit_density()

@@ -121,6 +121,8 @@ def test_overlapping_shells_refused(tmp_path):
     with pytest.raises(InputError, match="overlap") as info:
         load_mesh(p, "m", file="s.toml", key="body[x].file")
     assert info.value.file == "s.toml" and info.value.key == "body[x].file"
+    with pytest.raises(InputError, match="overlap"):  # `truepull mesh` says so too, not a doubled volume
+        mesh_report(p, "m")
     crossed = trimesh.util.concatenate([trimesh.creation.box(extents=(5, 1, 1)), trimesh.creation.box(extents=(1, 5, 1))])
     with pytest.raises(InputError, match="overlap"):
         load_mesh(write(crossed, tmp_path / "cross.stl"), "m")
