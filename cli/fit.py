@@ -50,6 +50,9 @@ def add_arguments(parser) -> None:
 
 # ---------------------------------------------------------------- reading the CSV
 
+CELL_LIMIT = 1e100  # largest magnitude _read_columns accepts in a cell (its inverse: the smallest nonzero)
+
+
 def _read_columns(path: str, wanted: list[str], labels_column: str | None, labels_required: bool):
     """Columns `wanted` as float arrays, column `labels_column` as strings (None when it is absent and
     not required), and the file line number of each data row. Blank lines and lines starting with '#'
@@ -70,7 +73,12 @@ def _read_columns(path: str, wanted: list[str], labels_column: str | None, label
         dialect = csv.Sniffer().sniff(lines[0][1], delimiters=",;\t")
     except csv.Error:
         dialect = csv.excel
-    rows = list(csv.reader([ln for _, ln in lines], dialect))
+    reader = csv.reader([ln for _, ln in lines], dialect)
+    try:
+        rows = list(reader)
+    except csv.Error as exc:  # a cell over the csv module's field limit, a NUL byte, a stray quote
+        line_no = lines[min(reader.line_num, len(lines)) - 1][0]
+        raise InputError(path, None, f"line {line_no}: not readable as CSV ({exc})") from None
     header = [h.strip() for h in rows[0]]
     present = ", ".join(h for h in header if h) or "none"
     optional = labels_column if labels_column in header or labels_required else None
@@ -99,10 +107,19 @@ def _read_columns(path: str, wanted: list[str], labels_column: str | None, label
                 continue
             if not cell:
                 raise InputError(path, name, f"line {line_no}: empty cell in column '{name}'")
+            shown = cell if len(cell) <= 40 else cell[:37] + "..."
             try:
                 numbers[name][k] = float(cell)
             except ValueError:
-                raise InputError(path, name, f"line {line_no}: '{cell}' in column '{name}' is not a number") from None
+                raise InputError(path, name, f"line {line_no}: '{shown}' in column '{name}' is not a number") from None
+            value = abs(numbers[name][k])
+            if not np.isfinite(value):
+                raise InputError(path, name, f"line {line_no}: '{shown}' in column '{name}' is not a finite number")
+            # the fits form sums of products of up to three values: beyond 1e100 (or below 1e-100 but not 0)
+            # they would overflow or lose all precision; no recorded time or angle is anywhere near
+            if value > CELL_LIMIT or 0 < value < 1 / CELL_LIMIT:
+                raise InputError(path, name, f"line {line_no}: '{shown}' in column '{name}' is out of range "
+                                             f"(magnitudes from {1 / CELL_LIMIT:g} to {CELL_LIMIT:g}, or 0)")
     return numbers, labels, line_numbers
 
 

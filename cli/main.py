@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import os
+import re
 import sys
 
 from truepull.geometry.errors import InputError
@@ -73,8 +74,29 @@ def build_parser(load_verbs: list[str] | None = None) -> argparse.ArgumentParser
     return parser
 
 
+# a range value that starts with a minus sign, e.g. "-10:10:1" or "-5:5" (argparse takes it for an option)
+_NEGATIVE_RANGE = re.compile(r"^-(?:\d|\.\d)[\d.eE+-]*(?::[-+]?[\d.eE+-]*)+$")
+
+
+def join_range_values(argv: list[str]) -> list[str]:
+    """`--turn -10:10:1` -> `--turn=-10:10:1`: an option given without '=' and followed by a range
+    that starts with a minus sign takes it as its value (there is no doubt: no option looks like that)."""
+    out = []
+    i = 0
+    while i < len(argv):
+        a = argv[i]
+        if (a.startswith("--") and "=" not in a and a != "--" and i + 1 < len(argv)
+                and _NEGATIVE_RANGE.match(argv[i + 1])):
+            out.append(f"{a}={argv[i + 1]}")
+            i += 2
+            continue
+        out.append(a)
+        i += 1
+    return out
+
+
 def main(argv: list[str] | None = None) -> int:
-    argv = list(sys.argv[1:] if argv is None else argv)
+    argv = join_range_values(list(sys.argv[1:] if argv is None else argv))
     verb = next((a for a in argv if not a.startswith("-")), None)
     parser = build_parser([verb] if verb in VERBS else [])
     args = parser.parse_args(argv)

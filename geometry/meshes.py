@@ -3,17 +3,27 @@
 A body mesh must be closed (watertight) and consistently wound; one wound inside-out (negative
 volume) is turned right way out. Coordinates are scaled from `file_units` to metres; the file's
 origin becomes the body's reference point.
+
+Coincident vertices are merged by trimesh in coordinates centred on the mesh's bounding box and
+scaled by its size (a power of two), so the merge tolerance is relative to the part and a closed
+part far from its file's origin stays closed (trimesh's own merge hashes absolute coordinates times
+1e8 into 64-bit integers, which overflows beyond about 9e10 file units).
+
+A file may hold several closed shells: disjoint parts, or a cavity (an inward-wound shell inside an
+outward one). Shells that overlap are refused, not joined: their overlap would be counted twice.
+The test is the winding number of the whole mesh just inside every shell, which must be 1.
 """
 
 from __future__ import annotations
 
 import os
+import warnings
 from pathlib import Path
 
 import numpy as np
 
 from truepull.geometry.errors import InputError
-from truepull.geometry.quantities import si_factor
+from truepull.geometry.quantities import LIMITS, si_factor
 from truepull.geometry.shapes import MeshShape
 
 
@@ -28,7 +38,9 @@ def _read_trimesh(path, file=None, key=None):
     if not path.is_file():
         raise InputError(where, key, f"mesh file '{path}' is not a file")
     try:
-        mesh = trimesh.load(str(path), force="mesh")
+        with warnings.catch_warnings(), np.errstate(all="ignore"):
+            warnings.simplefilter("ignore")
+            mesh = trimesh.load(str(path), force="mesh", process=False)
     except Exception as exc:  # trimesh raises many types for unreadable files
         msg = " ".join(str(exc).split())[:200] or type(exc).__name__
         raise InputError(where, key, f"cannot read '{path.name}' as a mesh ({msg})") from None
@@ -36,9 +48,53 @@ def _read_trimesh(path, file=None, key=None):
         raise InputError(where, key, f"'{path.name}' holds no triangle mesh (found {type(mesh).__name__})")
     if len(mesh.faces) == 0 or len(mesh.vertices) == 0:
         raise InputError(where, key, f"'{path.name}' is an empty mesh (no triangles)")
-    if not np.all(np.isfinite(mesh.vertices)):
+    vertices = np.asarray(mesh.vertices, dtype=float)
+    if not np.all(np.isfinite(vertices)):
         raise InputError(where, key, f"'{path.name}' has non-finite vertex coordinates")
-    return mesh
+    return _merged(trimesh, vertices, np.asarray(mesh.faces, dtype=np.int64))
+
+
+def _merged(trimesh, vertices, faces):
+    """trimesh.Trimesh with coincident vertices merged relative to the part's size (see module doc)."""
+    low, high = vertices.min(axis=0), vertices.max(axis=0)
+    centre = 0.5 * (low + high)
+    extent = float(np.max(high - low))
+    scale = 2.0 ** np.ceil(np.log2(extent)) if extent > 0 else 1.0
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        work = trimesh.Trimesh(vertices=(vertices - centre) / scale, faces=faces, process=True)
+        return trimesh.Trimesh(vertices=np.asarray(work.vertices) * scale + centre,
+                               faces=np.asarray(work.faces), process=False)
+
+
+def _check_shells(mesh, name, where, key):
+    """Refuse a mesh whose closed shells overlap (or hold an inward-wound shell in no other shell):
+    just inside each shell the whole mesh's winding number must be 1 (2 where two shells overlap)."""
+    import trimesh
+
+    from truepull.geometry.winding import winding_numbers
+
+    labels = trimesh.graph.connected_component_labels(mesh.face_adjacency, node_count=len(mesh.faces))
+    if labels.max(initial=0) == 0:
+        return
+    rng = np.random.default_rng(0)
+    triangles = np.asarray(mesh.triangles)
+    normals = np.asarray(mesh.face_normals)
+    size = float(np.max(np.ptp(mesh.vertices, axis=0)))
+    picks = []
+    for c in range(labels.max() + 1):
+        faces = np.flatnonzero(labels == c)
+        picks.append(rng.choice(faces, size=min(len(faces), 400), replace=len(faces) < 400))
+    picks = np.concatenate(picks)
+    weights = rng.dirichlet(np.ones(3), size=len(picks))
+    points = np.einsum("nk,nkj->nj", weights, triangles[picks]) - 1e-7 * size * normals[picks]
+    w = winding_numbers(points, triangles)
+    if np.any(w > 1.5):
+        raise InputError(where, key, f"mesh '{name}' holds closed shells that overlap (the overlap would be "
+                                     "counted twice); join them into one closed surface (a boolean union) first")
+    if np.any(w < 0.5):
+        raise InputError(where, key, f"mesh '{name}' holds a shell wound inside-out that lies in no other shell "
+                                     "(it would count as negative mass); fix its face orientation")
 
 
 def load_mesh(path, file_units: str = "m", file=None, key=None) -> MeshShape:
@@ -49,24 +105,45 @@ def load_mesh(path, file_units: str = "m", file=None, key=None) -> MeshShape:
     mesh = _read_trimesh(path, file, key)
     name = Path(path).name
     if not mesh.is_watertight:
+        f = np.asarray(mesh.faces)
+        collapsed = int(np.count_nonzero((f[:, 0] == f[:, 1]) | (f[:, 1] == f[:, 2]) | (f[:, 0] == f[:, 2])))
+        why = (f"; {collapsed} of its triangles collapse to a line or point, as when a part far from its file's "
+               "origin loses precision (STL stores about 7 significant digits): move it near its origin"
+               if collapsed else "")
         raise InputError(where, key, f"mesh '{name}' is not watertight (it has holes or open edges); "
-                                     "a body must be a closed surface")
+                                     f"a body must be a closed surface{why}")
     if not mesh.is_winding_consistent:
         raise InputError(where, key, f"mesh '{name}' is not consistently wound (its faces point inconsistently)")
     vertices = np.asarray(mesh.vertices, dtype=float) * factor
+    _check_extent(vertices, name, where, key)
     faces = np.asarray(mesh.faces, dtype=np.int64)
     shape = MeshShape(vertices, faces, os.fspath(path))
     if shape.volume() < 0:
         shape = MeshShape(vertices, faces[:, ::-1], os.fspath(path), inverted=True)
     if not shape.volume() > 0:
         raise InputError(where, key, f"mesh '{name}' encloses no volume")
+    _check_shells(shape.trimesh(), name, where, key)
     return shape
+
+
+def _check_extent(vertices, name, where, key):
+    """Coordinates (m) and the part's size within quantities.LIMITS["length"] (finite mass properties)."""
+    largest, smallest = LIMITS["length"]
+    reach = float(np.max(np.abs(vertices)))
+    size = float(np.max(np.ptp(vertices, axis=0)))
+    if not np.isfinite(reach) or reach > largest:
+        raise InputError(where, key, f"mesh '{name}' reaches {reach:.3g} m from its origin after scaling to "
+                                     f"metres, beyond the accepted {largest:g} m")
+    if size < smallest:
+        raise InputError(where, key, f"mesh '{name}' is {size:.3g} m across after scaling to metres, below "
+                                     f"the accepted {smallest:g} m")
 
 
 def mesh_report(path, units: str = "m") -> dict:
     """Facts about a mesh file, for inspection: counts, bounding box, watertightness, winding,
     and (when closed) volume, centroid and inertia about the centroid for density 1, all in SI
-    after scaling from `units`. Raises InputError only if the file is missing or not a mesh."""
+    after scaling from `units`. Raises InputError if the file is missing or not a mesh, and for a
+    closed part out of the length range or with overlapping shells (its mass properties would be wrong)."""
     factor = si_factor(units, "length", str(path), "units")
     mesh = _read_trimesh(path)
     v = np.asarray(mesh.vertices, dtype=float) * factor
@@ -86,11 +163,14 @@ def mesh_report(path, units: str = "m") -> dict:
         "notes": [],
     }
     if report["watertight"] and report["winding_consistent"]:
+        name = Path(path).name
+        _check_extent(v, name, str(path), None)
         shape = MeshShape(v, np.asarray(mesh.faces), os.fspath(path))
         if shape.volume() < 0:
             report["inside_out"] = True
             report["notes"].append("wound inside-out; truepull turns it right way out")
             shape = MeshShape(v, np.asarray(mesh.faces)[:, ::-1], os.fspath(path))
+        _check_shells(shape.trimesh(), name, str(path), None)
         report["volume"] = shape.volume()
         report["centroid"] = shape.centroid()
         report["inertia"] = shape.inertia_unit_density()

@@ -2,7 +2,9 @@
 
 Every number is converted to SI once, here (m, kg, kg/m^3, rad, s). Any key the scene format does not
 know is refused, so a typo cannot silently change a result. Bad input raises InputError naming the
-file, the key (e.g. `body[bob-east].radius`) and the reason.
+file, the key (e.g. `body[bob-east].radius`) and the reason. Values must be finite and, in SI, within
+the ranges of `quantities.LIMITS` (lengths 1e-12 .. 1e12 m, angles up to 1e6 rad, ...); directions
+(`axis`, `rotate.axis`, `frame.axis`) are three plain numbers; a decrement is at most MAX_DECREMENT.
 """
 
 from __future__ import annotations
@@ -20,11 +22,14 @@ from truepull.geometry.errors import InputError
 from truepull.geometry.materials import known_materials, material_key
 from truepull.geometry.meshes import load_mesh
 from truepull.geometry.placement import Placement
-from truepull.geometry.quantities import Measured, parse_scalar, parse_vector, si_factor
+from truepull.geometry.quantities import Measured, parse_direction, parse_scalar, parse_vector, si_factor
 
 DEFAULT_UNITS = {"length": "m", "mass": "kg", "density": "kg/m^3", "angle": "deg", "time": "s"}
 SHAPE_NAMES = ("point", "sphere", "shell", "cylinder", "box", "cone", "ellipsoid", "mesh")
 METHODS = ("deflection", "swing")
+# largest logarithmic decrement per period accepted: at 10 the amplitude falls by e**10 (22 000 times)
+# in one period, so no period or equilibrium could have been read from such a swing
+MAX_DECREMENT = 10.0
 
 TOP_KEYS = ("scene", "units", "frame", "body", "position", "measurement")
 SCENE_KEYS = ("title", "G")
@@ -212,11 +217,9 @@ class _Reader:
         return parse_vector(raw, kind, unit, self.file, key, 3, nonzero=nonzero)
 
     def direction(self, raw, key) -> tuple[float, float, float]:
-        v = parse_vector(raw, "dimensionless", "", self.file, key, 3, nonzero=True)
-        if any(c.u for c in v):
-            raise InputError(self.file, key, "a direction takes no '+-': state the uncertainty of a tilt as "
-                                             "rotate = { axis = [...], angle = \"0 +- u deg\" } on the bodies")
-        return tuple(c.value for c in v)
+        """A unit vector from three plain numbers (a direction takes no unit and no '+-': the
+        uncertainty of a tilt is stated as rotate = { axis = [...], angle = "0 +- u deg" })."""
+        return parse_direction(raw, self.file, key)
 
 
 def _type_name(raw) -> str:
@@ -248,6 +251,8 @@ def load_scene_text(text: str, path_for_messages: str = "-", base_dir: str | Non
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         r.fail(None, f"not valid TOML: {exc}")
+    except RecursionError:
+        r.fail(None, "not a usable scene: tables or lists are nested too deeply")
     r.check_keys(data, TOP_KEYS, "", "the scene file")
 
     _read_units(r, data.get("units", {}))
@@ -503,6 +508,10 @@ def _read_measurement(r: _Reader, raw, positions) -> Measurement:
     decrement = None
     if "decrement" in t:
         decrement = r.scalar(t["decrement"], "dimensionless", "measurement.decrement", nonnegative=True)
+        if decrement.value > MAX_DECREMENT:
+            r.fail("measurement.decrement", f"a logarithmic decrement of {decrement.value:.3g} per period is beyond "
+                                            f"{MAX_DECREMENT:g} (the swing would die out within a period: no "
+                                            "period could be measured)")
     extra = {}
     if "fiber_q" in t:
         extra["fiber_q"] = r.scalar(t["fiber_q"], "dimensionless", "measurement.fiber_q", positive=True)

@@ -108,3 +108,49 @@ def test_winding_number_inside_test_matches_primitive():
     outer = Cylinder(0.1 * 1.001, 0.201)
     inside = mc.contains(pts)
     assert np.all(inside[inner.contains(pts)]) and not np.any(inside[~outer.contains(pts)])
+
+
+def _cube(side=1.0, at=(0.0, 0.0, 0.0)):
+    tm = trimesh.creation.box(extents=(side, side, side))
+    tm.apply_translation(at)
+    return tm
+
+
+def test_overlapping_shells_refused(tmp_path):
+    p = write(trimesh.util.concatenate([_cube(), _cube(at=(0.5, 0, 0))]), tmp_path / "two.stl")
+    with pytest.raises(InputError, match="overlap") as info:
+        load_mesh(p, "m", file="s.toml", key="body[x].file")
+    assert info.value.file == "s.toml" and info.value.key == "body[x].file"
+    with pytest.raises(InputError, match="overlap"):  # `truepull mesh` says so too, not a doubled volume
+        mesh_report(p, "m")
+    crossed = trimesh.util.concatenate([trimesh.creation.box(extents=(5, 1, 1)), trimesh.creation.box(extents=(1, 5, 1))])
+    with pytest.raises(InputError, match="overlap"):
+        load_mesh(write(crossed, tmp_path / "cross.stl"), "m")
+
+
+def test_disjoint_shells_and_a_cavity_are_one_body(tmp_path):
+    # volumes of cubes (elementary): two disjoint unit cubes 2; a unit cube with a 0.5 cube cavity 0.875
+    p = write(trimesh.util.concatenate([_cube(), _cube(at=(3, 0, 0))]), tmp_path / "apart.stl")
+    assert load_mesh(p, "m").volume() == pytest.approx(2.0, rel=1e-12)
+    cavity = _cube(0.5)
+    cavity.invert()
+    p = write(trimesh.util.concatenate([_cube(), cavity]), tmp_path / "hollow.stl")
+    assert load_mesh(p, "m").volume() == pytest.approx(0.875, rel=1e-12)
+    stray = _cube(at=(3, 0, 0))
+    stray.invert()
+    p = write(trimesh.util.concatenate([trimesh.creation.box(extents=(2, 2, 2)), stray]), tmp_path / "stray.stl")
+    with pytest.raises(InputError, match="inside-out"):
+        load_mesh(p, "m")
+
+
+def test_closed_part_far_from_its_origin_stays_closed(tmp_path, recwarn):
+    # OBJ keeps the coordinates in decimal text; at 1e11 trimesh's own absolute merge would overflow
+    p = write(_cube(at=(1e11, 0, 0)), tmp_path / "far.obj")
+    m = load_mesh(p, "m")
+    assert m.volume() == pytest.approx(1.0, rel=1e-4)  # 1e11 +- 0.5 keeps ~5 digits of the edge
+    assert not [w for w in recwarn if issubclass(w.category, RuntimeWarning)]
+    with pytest.raises(InputError, match="beyond the accepted"):
+        load_mesh(write(_cube(at=(1e13, 0, 0)), tmp_path / "farther.obj"), "m")
+    # a single-precision STL this far out has really lost its shape: refused, saying why
+    with pytest.raises(InputError, match="collapse"):
+        load_mesh(write(_cube(at=(1e9, 0, 0)), tmp_path / "far.stl"), "m")

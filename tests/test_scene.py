@@ -294,6 +294,26 @@ BAD = {
     "not toml": ("this is = = not toml", None),
     "name not a string": (GOOD.replace('name = "bob-west"', "name = 3"), "body[#2].name"),
     "true as a number": (GOOD.replace("radius = 10\n", "radius = true\n"), "body[bob-west].radius"),
+    # values beyond the finite ranges of quantities.LIMITS, and nonsense units, at load with file and key
+    "radius overflows in SI": (GOOD.replace("radius = 10\n", 'radius = "1e308 km"\n'), "body[bob-west].radius"),
+    "radius too large": (GOOD.replace("radius = 10\n", "radius = 1e120\n"), "body[bob-west].radius"),
+    "radius subnormal with a mass": (GOOD.replace("radius = 40", "radius = 1e-308"), "body[big-east].radius"),
+    "integer too large for a float": (GOOD.replace("radius = 10\n", f"radius = {10**400}\n"),
+                                      "body[bob-west].radius"),
+    "subnormal box edge": (body_block("", shape='shape = "box"\nsize = [1e-320, 1, 1]'), "body[x].size[0]"),
+    "huge box edge": (body_block("", shape='shape = "box"\nsize = [1e200, 1, 1]'), "body[x].size[0]"),
+    "subnormal density": (body_block("", matter="density = 1e-320"), "body[x].density"),
+    "rotate angle too large": (body_block("rotate = { axis = [0, 0, 1], angle = 1e300 }"), "body[x].rotate.angle"),
+    "rotate angle in mm/m": (body_block('rotate = { axis = [0, 0, 1], angle = "3 mm/m" }'), "body[x].rotate.angle"),
+    "rotate angle in deg**2": (body_block('rotate = { axis = [0, 0, 1], angle = "90 deg deg" }'),
+                               "body[x].rotate.angle"),
+    "turn too large": (GOOD.replace("turn = 90", "turn = 1e308"), "position[B].turn"),
+    "misplaced +-": (GOOD.replace("radius = 10\n", 'radius = "10 +- mm"\n'), "body[bob-west].radius"),
+    "direction with a unit": (GOOD.replace("axis = [0, 0, 1]", 'axis = ["1 deg deg", 0, 1]'), "frame.axis"),
+    "direction with pi": (GOOD.replace("axis = [0, 0, 1]", 'axis = ["1 pi", 0, 1]'), "frame.axis"),
+    "decrement too large": (GOOD.replace("decrement = 0.05", "decrement = 1e300"), "measurement.decrement"),
+    "decrement beyond 10": (GOOD.replace("decrement = 0.05", "decrement = 11"), "measurement.decrement"),
+    "nested 1000 deep": ("a = " + "[" * 1000 + "]" * 1000 + "\n", None),
 }
 
 
@@ -318,3 +338,16 @@ def test_missing_scene_file(tmp_path):
 def test_subtract_with_negative_density_is_a_hole():
     s = load(body_block("subtract = true", matter="density = -1000"))
     assert s.body("x").density == -1000.0 and s.body("x").is_hole
+
+
+def test_extreme_directions_read_as_the_directions_they_name():
+    s = load(GOOD.replace("axis = [0, 0, 1]", "axis = [1e-320, 0, 0]"))
+    np.testing.assert_array_equal(s.frame.axis, [1.0, 0.0, 0.0])
+    s = load(GOOD.replace("axis = [0, 0, 1]", "axis = [1e308, 1e308, 0]"))
+    np.testing.assert_allclose(s.frame.axis, [math.sqrt(0.5), math.sqrt(0.5), 0.0], rtol=1e-15)
+
+
+def test_concise_uncertainty_in_a_scene():
+    s = load(GOOD.replace('radius = "10 +- 0.01"', 'radius = "10.000(10)"'))
+    east = s.body("bob-east")
+    assert east.shape.radius == pytest.approx(0.010) and east.spec.size["radius"].u == pytest.approx(1e-5)
