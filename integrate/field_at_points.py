@@ -258,7 +258,7 @@ def gradient_zeros(bodies, start, end, s_values, T_along, G, rtol=1e-9) -> list[
         if fa == 0.0:
             root = a
         elif fa * fb < 0.0:
-            root = brentq(lambda s: float(tuu(s)[0][0]), a, b, xtol=1e-15 * max(length, 1.0), rtol=4e-16)
+            root = brentq(lambda s: float(tuu(s)[0][0]), a, b, xtol=1e-15 * max(length, 1.0), rtol=4.0 * np.finfo(float).eps)
         else:
             continue
         h = 1e-3 * (s_values[1] - s_values[0]) if len(s_values) > 1 else 1e-6 * length
