@@ -56,6 +56,12 @@ def si_factor(unit: str, kind: str, file=None, key=None) -> float:
     si_unit, dim = KINDS[kind]
     if unit.strip() in ("", "1") and kind in ("dimensionless",):
         return 1.0
+    # fast path: plain units from an exact table, without building pint's registry
+    from truepull.geometry.unit_table import lookup
+
+    fast = lookup(unit, kind)
+    if fast is not None:
+        return fast
     ureg = units()
     try:
         q = ureg.Quantity(1.0, unit)

@@ -318,3 +318,13 @@ def test_missing_scene_file(tmp_path):
 def test_subtract_with_negative_density_is_a_hole():
     s = load(body_block("subtract = true", matter="density = -1000"))
     assert s.body("x").density == -1000.0 and s.body("x").is_hole
+
+
+def test_default_G_is_scipys_codata_value():
+    # scipy.constants (CODATA 2018 and 2022 agree on G: 6.67430(15)e-11) is the reference
+    from scipy.constants import physical_constants
+
+    from truepull.geometry.scene import CODATA_2018_G
+
+    value, _unit, u = physical_constants["Newtonian constant of gravitation"]
+    assert CODATA_2018_G == (value, u)
