@@ -155,6 +155,15 @@ def to_json(pf, zeros=None) -> dict:
     return out
 
 
+def check_vtk_name(path: str, grid: bool) -> str:
+    """The --vtk file's suffix, checked: .vts or .vtk for a grid, .vtp or .vtk otherwise."""
+    suffix = Path(path).suffix.lower()
+    allowed = (".vts", ".vtk") if grid else (".vtp", ".vtk")
+    if suffix not in allowed:
+        raise InputError(None, "--vtk", f"file name must end in {' or '.join(allowed)}, got '{path}'")
+    return suffix
+
+
 def write_vtk(path: str, pf, grid_shape=None) -> None:
     """Point data (SI) on a StructuredGrid (for --grid) or PolyData, written whole or not at all."""
     import tempfile
@@ -162,10 +171,7 @@ def write_vtk(path: str, pf, grid_shape=None) -> None:
     import pyvista as pv
 
     target = Path(path)
-    suffix = target.suffix.lower()
-    allowed = (".vts", ".vtk") if grid_shape is not None else (".vtp", ".vtk")
-    if suffix not in allowed:
-        raise InputError(None, "--vtk", f"file name must end in {' or '.join(allowed)}, got '{path}'")
+    suffix = check_vtk_name(path, grid_shape is not None)
     if grid_shape is not None:
         nx, ny, nz = grid_shape
         xyz = pf.points.reshape(nz, ny, nx, 3)
@@ -228,6 +234,8 @@ def run(args) -> int:
         grid_shape = (len(xs), len(ys), len(zs))
         Z, Y, X = np.meshgrid(zs, ys, xs, indexing="ij")
         pts = np.column_stack([X.ravel(), Y.ravel(), Z.ravel()]) * f
+    if args.vtk:
+        check_vtk_name(args.vtk, grid_shape is not None)   # before the work, not after it
     pf = field_at_points(scene, pts, args.source, args.position, args.rtol)
     zeros = None
     if line is not None:
