@@ -26,6 +26,7 @@ VERBS = {
     "view": "truepull.cli.view",
     "mesh": "truepull.cli.mesh",
     "report": "truepull.cli.report",
+    "field": "truepull.cli.field",
 }
 
 VERB_HELP = {
@@ -38,6 +39,7 @@ VERB_HELP = {
     "view": "3-D picture of the bodies and the attractor's field",
     "mesh": "inspect a mesh part file and print a [[body]] block for it",
     "report": "the whole job into a folder of Markdown, JSON and figures",
+    "field": "potential, field and gradient tensor of a group at points, with error estimates",
 }
 
 

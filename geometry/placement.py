@@ -2,10 +2,10 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.spatial.transform import Rotation
 
 _Z = np.array([0.0, 0.0, 1.0])
 
@@ -23,6 +23,20 @@ def _unit(v) -> np.ndarray:
     return v / n
 
 
+def rotvec_matrix(rotvec) -> np.ndarray:
+    """The rotation matrix (3x3) of a rotation vector (axis times angle in rad), by Rodrigues' formula
+    R = I + sin(t) K + (1 - cos(t)) K^2 (K the cross-product matrix of the unit axis); written here so
+    that placing bodies does not import scipy.spatial (about 0.5 s of start-up); tested against
+    scipy.spatial.transform.Rotation."""
+    v = np.asarray(rotvec, dtype=float).reshape(3)
+    t = float(np.linalg.norm(v))
+    if t == 0.0:
+        return np.eye(3)
+    k = v / t
+    K = np.array([[0.0, -k[2], k[1]], [k[2], 0.0, -k[0]], [-k[1], k[0], 0.0]])
+    return np.eye(3) + math.sin(t) * K + (1.0 - math.cos(t)) * (K @ K)
+
+
 def rotation_z_to(axis) -> np.ndarray:
     """The shortest rotation (3x3) taking local z to the direction `axis`; a half turn about x for -z."""
     a = _unit(axis)
@@ -32,9 +46,9 @@ def rotation_z_to(axis) -> np.ndarray:
     if s < 1e-15:
         if c > 0:
             return np.eye(3)
-        return Rotation.from_rotvec([np.pi, 0.0, 0.0]).as_matrix()
+        return rotvec_matrix([np.pi, 0.0, 0.0])
     angle = np.arctan2(s, c)
-    return Rotation.from_rotvec(cross / s * angle).as_matrix()
+    return rotvec_matrix(cross / s * angle)
 
 
 @dataclass(frozen=True, eq=False)
@@ -66,7 +80,7 @@ class Placement:
     @staticmethod
     def turn_about(pivot, axis, angle: float) -> "Placement":
         """A right-handed rotation by `angle` (rad) about the line through `pivot` along `axis`."""
-        r = Rotation.from_rotvec(_unit(axis) * float(angle)).as_matrix()
+        r = rotvec_matrix(_unit(axis) * float(angle))
         p = _as_floats(pivot)
         return Placement(r, p - r @ p)
 
@@ -78,7 +92,7 @@ class Placement:
         r = np.eye(3) if axis is None else rotation_z_to(axis)
         angle = float(rotate_angle)
         if rotate_axis is not None and angle != 0.0:
-            r = Rotation.from_rotvec(_unit(rotate_axis) * angle).as_matrix() @ r
+            r = rotvec_matrix(_unit(rotate_axis) * angle) @ r
         return Placement(r, _as_floats(at))
 
     def apply(self, points) -> np.ndarray:
@@ -107,5 +121,7 @@ class Placement:
                     and np.allclose(self.translation, other.translation, atol=atol, rtol=0))
 
     def __repr__(self) -> str:
+        from scipy.spatial.transform import Rotation
+
         rv = Rotation.from_matrix(self.rotation).as_rotvec()
         return f"Placement(rotvec={np.round(rv, 12).tolist()}, translation={self.translation.tolist()})"

@@ -106,6 +106,12 @@ def si_factor(unit: str, kind: str, file=None, key=None) -> float:
         return 1.0
     if any(pm in text for pm in _PLUS_MINUS):
         raise InputError(file, key, f"misplaced '+-' in '{unit}': write \"value +- u unit\", e.g. \"10 +- 0.01 mm\"")
+    # fast path: plain units from an exact table, without building pint's registry
+    from truepull.geometry.unit_table import lookup
+
+    fast = lookup(unit, kind)
+    if fast is not None:
+        return fast
     ureg = units()
     try:
         parsed = ureg.parse_units(text)

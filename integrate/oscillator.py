@@ -25,7 +25,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.polynomial import Polynomial
-from scipy.optimize import brentq
 
 from truepull.geometry.errors import InputError
 
@@ -102,6 +101,8 @@ def period_ratio(potential: Polynomial, amplitude: float, nodes: int = 48) -> Pe
     if not (g(lo) < 0 < g(hi)):
         raise InputError(None, "measurement.amplitude",
                          f"an amplitude of {a:.6g} rad swings beyond where the torque curve confines the pendulum")
+    from scipy.optimize import brentq  # here, not at import: scipy.optimize is slow to load
+
     s = brentq(g, lo, hi, xtol=1e-15 * a, rtol=4 * np.finfo(float).eps, maxiter=200)
     x_minus, x_plus = s - a, s + a
     energy = float(v(x_plus))

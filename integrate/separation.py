@@ -13,7 +13,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.optimize import brentq
 
 from truepull.geometry.distance import signed_distance
 
@@ -65,6 +64,8 @@ def _ellipsoid_distance(radii, y) -> float:
     hi = float(np.linalg.norm(a * y)) + 1.0e-300
     while f(hi) > 0:
         hi *= 2.0
+    from scipy.optimize import brentq  # here, not at import: scipy.optimize is slow to load
+
     t = brentq(f, 0.0, hi, xtol=1e-300, rtol=1e-15, maxiter=400)
     x = a * a * y / (a * a + t)
     return float(np.linalg.norm(x - y))

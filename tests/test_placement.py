@@ -73,3 +73,14 @@ def test_arrays_read_only():
 def test_zero_axis_refused():
     with pytest.raises(ValueError):
         rotation_z_to([0, 0, 0])
+
+
+def test_rotvec_matrix_matches_scipy_rotation():
+    # Rodrigues' formula against scipy.spatial.transform.Rotation.from_rotvec (reference library)
+    from scipy.spatial.transform import Rotation
+
+    from truepull.geometry.placement import rotvec_matrix
+
+    rng = np.random.default_rng(7)
+    for v in [*rng.normal(size=(20, 3)), np.array([np.pi, 0, 0]), np.array([0, 0, 1e-9]), np.zeros(3)]:
+        np.testing.assert_allclose(rotvec_matrix(v), Rotation.from_rotvec(v).as_matrix(), atol=1e-15, rtol=0)

@@ -351,3 +351,13 @@ def test_concise_uncertainty_in_a_scene():
     s = load(GOOD.replace('radius = "10 +- 0.01"', 'radius = "10.000(10)"'))
     east = s.body("bob-east")
     assert east.shape.radius == pytest.approx(0.010) and east.spec.size["radius"].u == pytest.approx(1e-5)
+
+
+def test_default_G_is_scipys_codata_value():
+    # scipy.constants (CODATA 2018 and 2022 agree on G: 6.67430(15)e-11) is the reference
+    from scipy.constants import physical_constants
+
+    from truepull.geometry.scene import CODATA_2018_G
+
+    value, _unit, u = physical_constants["Newtonian constant of gravitation"]
+    assert CODATA_2018_G == (value, u)
