@@ -50,7 +50,9 @@ _PLUS_MINUS = ("+-", "+/-", "±")
 #   angle itself is no longer known to the precision torques need), smallest nonzero 1e-30 rad;
 # - time 1e-12 s .. 1e12 s; angular rate 1e-30 .. 1e6 rad/s; dimensionless 1e-30 .. 1e30;
 # - G 1e-30 .. 1e10 in SI (any value a scaled test may use, never a subnormal or an overflow).
-# Zero is always accepted where the key allows it; an uncertainty has the same bounds as its value.
+# Zero is always accepted where the key allows it; the smallest nonzero magnitude binds sizes and other
+# positive values, masses and densities, not coordinates or uncertainties (a computed 3e-18 m is zero).
+# An uncertainty has the same largest bound as its value.
 LIMITS = {
     "length": (1e12, 1e-12),
     "mass": (1e30, 1e-30),
@@ -157,8 +159,10 @@ def _read_text(raw: str, file, key):
     return value, u, unit
 
 
-def _check_range(value: float, kind: str, file, key, raw, what: str = "value"):
-    """Refuse a non-finite SI value, or one outside LIMITS[kind] (see there for why)."""
+def check_range(value: float, kind: str, file, key, raw, what: str = "value", small: bool = True):
+    """Refuse a non-finite SI value, or one outside LIMITS[kind] (see there for why); the smallest
+    nonzero magnitude is enforced only with `small` (sizes, masses, densities: not coordinates, where a
+    computed 3e-18 m means zero)."""
     largest, smallest = LIMITS[kind]
     si = _SI_NAMES[kind]
     if not math.isfinite(value):
@@ -166,7 +170,7 @@ def _check_range(value: float, kind: str, file, key, raw, what: str = "value"):
     if abs(value) > largest:
         raise InputError(file, key, f"{what} {raw!r} is too large: {abs(value):.3g} {si} is beyond the accepted "
                                     f"{largest:g} {si}".rstrip())
-    if value != 0 and abs(value) < smallest:
+    if small and value != 0 and abs(value) < smallest:
         raise InputError(file, key, f"{what} {raw!r} is too small: {abs(value):.3g} {si} is below the accepted "
                                     f"nonzero {smallest:g} {si}")
 
@@ -198,9 +202,9 @@ def parse_scalar(raw, kind: str, default_unit: str, file=None, key=None,
         factor = si_factor(unit, kind, file, key)
     value_si = value * factor
     u_si = None if u is None else u * abs(factor)
-    _check_range(value_si, kind, file, key, raw)
+    check_range(value_si, kind, file, key, raw, small=positive or kind in ("mass", "density"))
     if u_si is not None:
-        _check_range(u_si, kind, file, key, raw, "uncertainty of")
+        check_range(u_si, kind, file, key, raw, "uncertainty of", small=False)
     if positive and not value_si > 0:
         raise InputError(file, key, f"must be greater than zero, got {raw!r}")
     if nonnegative and value_si < 0:

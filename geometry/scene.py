@@ -22,7 +22,7 @@ from truepull.geometry.errors import InputError
 from truepull.geometry.materials import known_materials, material_key
 from truepull.geometry.meshes import load_mesh
 from truepull.geometry.placement import Placement
-from truepull.geometry.quantities import Measured, parse_direction, parse_scalar, parse_vector, si_factor
+from truepull.geometry.quantities import Measured, check_range, parse_direction, parse_scalar, parse_vector, si_factor
 
 DEFAULT_UNITS = {"length": "m", "mass": "kg", "density": "kg/m^3", "angle": "deg", "time": "s"}
 SHAPE_NAMES = ("point", "sphere", "shell", "cylinder", "box", "cone", "ellipsoid", "mesh")
@@ -388,22 +388,25 @@ def _read_size(r: _Reader, t: dict, kind: str, where: str):
         return size, mesh, file, file_units
     if kind == "box":
         v = r.vector(t["size"], "length", f"{where}.size")
-        for c, m in zip("xyz", v):
+        for i, (c, m) in enumerate(zip("xyz", v)):
             if not m.value > 0:
                 r.fail(f"{where}.size", f"every edge must be greater than zero (size.{c} = {m.value:g} m)")
+            check_range(m.value, "length", r.file, f"{where}.size[{i}]", t["size"][i])
             size[f"size.{c}"] = m
         return size, mesh, file, file_units
     if kind == "ellipsoid":
         v = r.vector(t["radii"], "length", f"{where}.radii")
-        for c, m in zip("abc", v):
+        for i, (c, m) in enumerate(zip("abc", v)):
             if not m.value > 0:
                 r.fail(f"{where}.radii", f"every semi-axis must be greater than zero (radii.{c} = {m.value:g} m)")
+            check_range(m.value, "length", r.file, f"{where}.radii[{i}]", t["radii"][i])
             size[f"radii.{c}"] = m
         return size, mesh, file, file_units
     for k in spec:
         if k in t:
             positive = k in ("radius", "length")
             size[k] = r.scalar(t[k], "length", f"{where}.{k}", positive=positive, nonnegative=not positive)
+            check_range(size[k].value, "length", r.file, f"{where}.{k}", t[k])
     if "inner_radius" in size and size["inner_radius"].value >= size["radius"].value:
         what = "shell" if kind == "shell" else "tube"
         r.fail(f"{where}.inner_radius", f"inner_radius must be smaller than radius (an inverted {what})")

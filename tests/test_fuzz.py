@@ -331,7 +331,7 @@ def test_check_keeps_the_promise_on_mutated_scenes(tmp_path):
 
 def test_compare_and_scan_keep_the_promise_on_mutated_scenes(tmp_path):
     rng = random.Random(14)
-    n = int(300 * SCALE)
+    n = int(200 * SCALE)
     outcomes = {0: 0, 2: 0, 3: 0}
     for path in _scene_cases(tmp_path, rng, n, weights=[4, 1, 1, 0]):
         r = rng.random()

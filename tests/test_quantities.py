@@ -79,7 +79,9 @@ def test_dimensionless_ratios_are_not_angles(text):
 @pytest.mark.parametrize("raw", [float("nan"), float("inf"), "nan", "-inf", "1e400", "1e308 km", 10**400,
                                  "1e20", 1e-320, "1e-13", "1 +- 1e20"])
 def test_values_outside_the_finite_range_refused(raw):
-    reason = refused(raw)
+    with pytest.raises(InputError) as info:
+        parse_scalar(raw, "length", "m", "s.toml", "body[b].radius", positive=True)
+    reason = info.value.reason
     assert any(w in reason for w in ("finite", "too large", "too small", "cannot read"))
 
 
@@ -90,6 +92,10 @@ def test_range_limits_keep_mass_properties_finite():
     assert math.isfinite(rho_big * big**5) and rho_small * small**5 > 2.2250738585072014e-308
     assert read(big).value == big and read(-big).value == -big and read(small).value == small
     assert read(0).value == 0.0
+    # a coordinate computed as r cos(pi/2) is 6e-17 r: zero in effect, and accepted as such
+    assert read(math.cos(math.pi / 2)).value == math.cos(math.pi / 2)
+    with pytest.raises(InputError, match="too small"):
+        parse_scalar(1e-13, "length", "m", "s.toml", "body[b].radius", positive=True)
 
 
 def test_angle_bound():
