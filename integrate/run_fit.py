@@ -326,10 +326,13 @@ def fit_run(time, angle, labels, *, drift_order: int | None = None, anharmonic: 
     npar = p.size
     rss = float(r @ r)
     jac = res.jac
-    _, svals, vt = np.linalg.svd(jac, full_matrices=False)
-    if not svals[-1] > 1e-12 * svals[0]:
+    # J^T J by einsum (no threaded BLAS call: an SVD of the tall J is slow on a busy machine); the
+    # scaled parameters are all of order one, so squaring the condition number is harmless here
+    jtj = np.einsum("ij,ik->jk", jac, jac, optimize=False)
+    evals, evecs = np.linalg.eigh(jtj)
+    if not evals[0] > 1e-24 * evals[-1]:
         raise InputError(file, None, "the run fit is degenerate: the parameters are not separately determined")
-    cov = (vt.T / svals ** 2) @ vt * (rss / (n - npar))
+    cov = (evecs / evals) @ evecs.T * (rss / (n - npar))
     rms, lag1, dw = _residual_diagnostics(r * ys)
     inflation = 1.0
     notes = []
