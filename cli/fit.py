@@ -21,6 +21,7 @@ from truepull.geometry.quantities import parse_scalar, si_factor, units
 from truepull.integrate.fitting import SegmentFit, fit_record, spot_to_angle
 from truepull.integrate.run_fit import MAX_DRIFT_ORDER, RunFit, fit_run
 
+TERMS_RTOL = 1e-6          # engine tolerance for the second-order terms of the equation of motion
 HELP = "fit a recorded angle-time run: period, decrement, equilibrium per position"
 
 
@@ -386,15 +387,32 @@ def fit_with_scene(args, scene_path: str, time, angle, labels, line_numbers, val
     base = Path(scene_path).resolve().parent
     text, _ = measured_scene_text(scene_path, args, fits, linear, base)
     scene = load_scene_text(text, scene_path, str(base))
-    reduction = reduce_measurement(scene, test=test, source=source, rtol=rtol)
+    # the second-order terms are themselves corrections of a few tens of ppm: a loose engine tolerance
+    # (TERMS_RTOL) places the equilibria and the curve's curvature far more closely than they need
+    loose = max(rtol, TERMS_RTOL)
+    reduction = reduce_measurement(scene, test=test, source=source, rtol=loose)
     amp = max(s["amplitude_at_start"] for s in linear.segments)
-    terms = anharmonic_terms_from_scene(scene, reduction, amp, test=test, source=source, rtol=rtol)
+    terms = anharmonic_terms_from_scene(scene, reduction, amp, test=test, source=source, rtol=loose)
     run = fit_run(time, angle, labels, drift_order=args.drift_order, anharmonic=terms, file=args.data,
                   time_key=args.time_column, angle_key=value_column, line_numbers=line_numbers, fits=fits)
     notes = [f"linear-model equilibria differ from the second-order ones by "
              + ", ".join(f"{p}: {fmt(float(linear.equilibria[i] - run.equilibria[i]), 3)} rad"
                          for i, p in enumerate(run.positions))]
     return fits, run, notes
+
+
+def fitted_scene_text(args, scene_path: str, *, test: str = "pendulum", source: str = "attractor",
+                      rtol: float = 1e-9) -> tuple[str, RunFit, list[str]]:
+    """(scene text with the fitted [measurement], run fit, notes) for `reduce SCENE --data RUN` and the
+    report: the run in args.data fitted with the scene's second-order equation of motion."""
+    time, angle, labels, line_numbers, value_column = load_run(args)
+    if labels is None:
+        raise InputError(args.data, args.position_column or "position",
+                         "a measurement needs a position label per row (no position column)")
+    fits, run, notes = fit_with_scene(args, scene_path, time, angle, labels, line_numbers, value_column,
+                                      test=test, source=source, rtol=rtol)
+    text, more = measured_scene_text(scene_path, args, fits, run, Path(scene_path).resolve().parent)
+    return text, run, notes + more
 
 
 def fit_data(time, angle, labels, line_numbers, value_column, args, anharmonic=None):
@@ -420,6 +438,8 @@ def write_into(args, fits, run=None) -> tuple[str, list[str]]:
         raise InputError(args.out, "--out", "must not be the --into scene: the input is never overwritten")
     if out.exists() and not args.force:
         raise InputError(args.out, "--out", "already exists; add --force to replace it")
+    if not out.resolve().parent.is_dir():
+        raise InputError(args.out, "--out", f"folder {out.resolve().parent} does not exist")
     new_text, notes = measured_scene_text(args.into, args, fits, run, out.resolve().parent)
     load_scene_text(new_text, str(out), str(out.resolve().parent))   # the new scene must load from there
     write_atomic(out, new_text.encode("utf-8"))

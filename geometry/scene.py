@@ -30,7 +30,7 @@ TOP_KEYS = ("scene", "units", "frame", "body", "position", "measurement")
 SCENE_KEYS = ("title", "G")
 FRAME_KEYS = ("pivot", "axis")
 POSITION_KEYS = ("name", "group", "turn", "shift")
-MEASUREMENT_KEYS = ("method", "angle", "period", "decrement", "fiber_q", "amplitude")
+MEASUREMENT_KEYS = ("method", "angle", "period", "decrement", "fiber_q", "amplitude", "angle_correlation")
 BODY_COMMON_KEYS = ("name", "group", "shape", "at", "axis", "rotate", "density", "material", "mass", "subtract")
 ROTATE_KEYS = ("axis", "angle")
 # shape -> {scene key: required?}; box `size` and ellipsoid `radii` are 3-vectors
@@ -99,7 +99,11 @@ class Measurement:
     `period` (s): deflection -> one Measured (the free period at the first position in `angle`);
     swing -> position name -> Measured. `decrement`: logarithmic decrement per period or None.
     `extra`: optional keys also accepted: "fiber_q" (Measured, dimensionless quality factor of the
-    fiber) and "amplitude" (Measured rad, or position name -> Measured rad: swing amplitude)."""
+    fiber), "amplitude" (Measured rad, or position name -> Measured rad: swing amplitude) and
+    "angle_correlation" (tuple of tuples: the correlation coefficients r_ij of the measured angles, in
+    the order of `angle`'s keys as written; symmetric, ones on the diagonal, positive semi-definite;
+    written by `truepull fit --into` from the one fit of the whole run, used by the budget's GUM and
+    Monte Carlo). In the file: angle_correlation = [[1, r], [r, 1]]."""
 
     method: str
     angle: dict[str, Measured]
@@ -512,4 +516,28 @@ def _read_measurement(r: _Reader, raw, positions) -> Measurement:
                                                positive=True)
         else:
             extra["amplitude"] = r.scalar(t["amplitude"], "angle", "measurement.amplitude", positive=True)
+    if "angle_correlation" in t:
+        extra["angle_correlation"] = _read_correlation(r, t["angle_correlation"], len(angle))
     return Measurement(method, angle, period, decrement, extra)
+
+
+def _read_correlation(r: _Reader, raw, n: int) -> tuple[tuple[float, ...], ...]:
+    """An n x n correlation matrix: numbers in [-1, 1], ones on the diagonal, symmetric, positive
+    semi-definite (smallest eigenvalue above -1e-9)."""
+    key = "measurement.angle_correlation"
+    if n < 2:
+        r.fail(key, "needs angles at two or more positions")
+    if not (isinstance(raw, list) and len(raw) == n and all(isinstance(row, list) and len(row) == n for row in raw)):
+        r.fail(key, f"must be a {n} x {n} matrix of numbers (one row per angle, in the order of angle's keys)")
+    if not all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) for row in raw for v in row):
+        r.fail(key, "every entry must be a finite number")
+    m = np.array(raw, dtype=float)
+    if np.any(np.abs(m) > 1):
+        r.fail(key, "correlation coefficients must lie between -1 and 1")
+    if not np.allclose(np.diag(m), 1.0, rtol=0, atol=1e-12):
+        r.fail(key, "the diagonal must be 1")
+    if not np.allclose(m, m.T, rtol=0, atol=1e-12):
+        r.fail(key, "the matrix must be symmetric (r_ij = r_ji)")
+    if np.linalg.eigvalsh(m)[0] < -1e-9:
+        r.fail(key, "not positive semi-definite: no set of angles can have these correlations")
+    return tuple(tuple(float(v) for v in row) for row in m)
