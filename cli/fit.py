@@ -7,6 +7,7 @@ prints a table, JSON, a picture, or a copy of a scene with its [measurement] tab
 
 from __future__ import annotations
 
+import argparse
 import csv
 import math
 import sys
@@ -385,14 +386,21 @@ def fit_with_scene(args, scene_path: str, time, angle, labels, line_numbers, val
     if linear is None:
         return fits, None, []
     base = Path(scene_path).resolve().parent
-    text, _ = measured_scene_text(scene_path, args, fits, linear, base)
-    scene = load_scene_text(text, scene_path, str(base))
-    # the second-order terms are themselves corrections of a few tens of ppm: a loose engine tolerance
-    # (TERMS_RTOL) places the equilibria and the curve's curvature far more closely than they need
+    # the equilibria are located by a deflection reduction of the linear fit's angles, whatever the
+    # method written; the second-order terms are themselves corrections of a few tens of ppm, so a
+    # loose engine tolerance (TERMS_RTOL) places the equilibria and the curvature closely enough
+    as_deflection = argparse.Namespace(**{**vars(args), "method": "deflection"})
+    text, _ = measured_scene_text(scene_path, as_deflection, fits, linear, base)
     loose = max(rtol, TERMS_RTOL)
-    reduction = reduce_measurement(scene, test=test, source=source, rtol=loose)
-    amp = max(s["amplitude_at_start"] for s in linear.segments)
-    terms = anharmonic_terms_from_scene(scene, reduction, amp, test=test, source=source, rtol=loose)
+    try:
+        scene = load_scene_text(text, scene_path, str(base))
+        reduction = reduce_measurement(scene, test=test, source=source, rtol=loose)
+        amp = max(s["amplitude_at_start"] for s in linear.segments)
+        terms = anharmonic_terms_from_scene(scene, reduction, amp, test=test, source=source, rtol=loose)
+    except InputError as exc:
+        return fits, linear, [f"the second-order equation of motion is not used (the equilibria could not be "
+                              f"located from the scene: {exc.reason}); "
+                              f"the linear model's amplitude offset is not modelled"]
     run = fit_run(time, angle, labels, drift_order=args.drift_order, anharmonic=terms, file=args.data,
                   time_key=args.time_column, angle_key=value_column, line_numbers=line_numbers, fits=fits)
     notes = [f"linear-model equilibria differ from the second-order ones by "
