@@ -3,6 +3,11 @@
 Every number is converted to SI once, here (m, kg, kg/m^3, rad, s). Any key the scene format does not
 know is refused, so a typo cannot silently change a result. Bad input raises InputError naming the
 file, the key (e.g. `body[bob-east].radius`) and the reason.
+
+[measurement] may carry `angle_correlation = [[1, r], [r, 1]]`: the correlation coefficients of the
+measured equilibrium angles, rows and columns in the order in which `angle`'s keys are written
+(symmetric, unit diagonal, |r| <= 1, positive semi-definite). `truepull fit --into` writes it from the
+one fit of the whole run; the uncertainty budget (GUM and Monte Carlo) uses it. Absent: independent.
 """
 
 from __future__ import annotations
