@@ -7,6 +7,7 @@ prints a table, JSON, a picture, or a copy of a scene with its [measurement] tab
 
 from __future__ import annotations
 
+import argparse
 import csv
 import math
 import sys
@@ -19,12 +20,20 @@ from truepull.cli.scene_text import replace_table, toml_key, toml_string
 from truepull.geometry.errors import InputError
 from truepull.geometry.quantities import parse_scalar, si_factor, units
 from truepull.integrate.fitting import SegmentFit, fit_record, spot_to_angle
+from truepull.integrate.run_fit import MAX_DRIFT_ORDER, RunFit, fit_run
 
+TERMS_RTOL = 1e-6          # engine tolerance for the second-order terms of the equation of motion
 HELP = "fit a recorded angle-time run: period, decrement, equilibrium per position"
 
 
-def add_arguments(parser) -> None:
-    parser.add_argument("data", metavar="DATA", help="CSV file with a header row")
+def add_data_arguments(parser, *, as_option: bool = False) -> None:
+    """The run's file, columns, units and the run fit's drift order (shared by fit, reduce and report).
+    `as_option`: the file is `--data RUN.csv` instead of the positional DATA."""
+    if as_option:
+        parser.add_argument("--data", metavar="RUN.csv", help="recorded run (CSV with a header row) to fit "
+                                                              "and reduce with the scene")
+    else:
+        parser.add_argument("data", metavar="DATA", help="CSV file with a header row")
     parser.add_argument("--time-column", default="time", help="column of times (default: time)")
     parser.add_argument("--angle-column", default="angle", help="column of pendulum angles (default: angle)")
     parser.add_argument("--spot-column", help="column of light-spot positions on an optical-lever scale, "
@@ -39,6 +48,13 @@ def add_arguments(parser) -> None:
                                                             "table and picture (default: rad)")
     parser.add_argument("--length-unit", default="m", help="unit of the spot column and the lever "
                                                            "distance (default: m)")
+    parser.add_argument("--drift-order", type=int, metavar="N",
+                        help="order of the run fit's drift polynomial (default: chosen by BIC, 0 to "
+                             f"{MAX_DRIFT_ORDER})")
+
+
+def add_arguments(parser) -> None:
+    add_data_arguments(parser)
     parser.add_argument("--png", metavar="FILE", help="picture of data, fit and residuals per segment")
     parser.add_argument("--into", metavar="SCENE", help="scene whose [measurement] table to fill in "
                                                         "(read only; see --out)")
@@ -186,8 +202,9 @@ def table_text(fits: tuple[SegmentFit, ...], time_unit: str, angle_unit: str) ->
     return "\n".join(lines)
 
 
-def write_png(path: str, fits, time, angle, time_unit: str, angle_unit: str) -> None:
-    """Data, fit and residuals for each segment (two rows of axes per segment, up to 3 across)."""
+def write_png(path: str, fits, time, angle, time_unit: str, angle_unit: str, run=None) -> None:
+    """Data, fit and residuals for each segment (two rows of axes per segment, up to 3 across); with
+    `run` the curve and residuals are the one fit of the whole run's."""
     from matplotlib.figure import Figure
 
     tf = si_factor(time_unit, "time", None, "--time-unit")
@@ -205,15 +222,21 @@ def write_png(path: str, fits, time, angle, time_unit: str, angle_unit: str) -> 
         bottom = fig.add_subplot(grid[2 * r + 1, c], sharex=top)
         fine = np.linspace(f.t_start, f.t_end, max(400, 20 * int((f.t_end - f.t_start) / f.period + 1)))
         top.plot(t / tf, y / af, ".", ms=2.5, color="0.45", label="data")
-        top.plot(fine / tf, f.evaluate(fine) / af, "-", lw=1.0, color="C0", label="fit")
-        top.plot(fine / tf, (f.equilibrium + f.drift * (fine - f.t_mid)) / af, "--", lw=0.8, color="C1",
-                 label="equilibrium")
+        model = run.evaluate if run is not None else f.evaluate
+        top.plot(fine / tf, model(fine) / af, "-", lw=1.0, color="C0", label="run fit" if run is not None else "fit")
+        if run is not None:
+            i = run.positions.index(f.position)
+            top.plot(fine / tf, (run.equilibria[i] + run.drift(fine)) / af, "--", lw=0.8, color="C1",
+                     label="equilibrium + drift")
+        else:
+            top.plot(fine / tf, (f.equilibrium + f.drift * (fine - f.t_mid)) / af, "--", lw=0.8, color="C1",
+                     label="equilibrium")
         name = f"position {f.position}" if f.position is not None else "record"
         top.set_title(f"segment {k + 1}: {name}\nT = {_pm(f.period, f.u_period, tf)} {_unit_label(time_unit)}, "
                       f"decrement = {_pm(f.decrement, f.u_decrement)}", fontsize=9)
         top.set_ylabel(f"angle [{_unit_label(angle_unit)}]")
         top.legend(fontsize=8, loc="upper right")
-        bottom.plot(t / tf, (y - f.evaluate(t)) / af, ".", ms=2.0, color="C3")
+        bottom.plot(t / tf, (y - model(t)) / af, ".", ms=2.0, color="C3")
         bottom.axhline(0.0, color="0.3", lw=0.6)
         bottom.set_ylabel(f"residual [{_unit_label(angle_unit)}]")
         bottom.set_xlabel(f"time [{_unit_label(time_unit)}]")
@@ -251,16 +274,25 @@ def _value_text(value: float, u: float, unit: str = "") -> str:
     return f"{text} {unit}".strip()
 
 
-def measurement_block(fits, method: str | None, data_name: str, keep: dict) -> tuple[str, list[str]]:
-    """The [measurement] table text for fits with named positions, and notes for the user."""
+def measurement_block(fits, method: str | None, data_name: str, keep: dict,
+                      run: RunFit | None = None) -> tuple[str, list[str]]:
+    """The [measurement] table text for fits with named positions, and notes for the user. With `run`
+    (the one fit of the whole run) the angles, periods and decrement are the run fit's, and the angles'
+    correlation is written as angle_correlation; without it, repeated segments are combined by the
+    Birge-widened weighted mean (the per-segment fallback)."""
     by_name: dict[str, list[SegmentFit]] = {}
     for f in fits:
         by_name.setdefault(f.position, []).append(f)
-    names = list(by_name)
+    names = list(run.positions) if run is not None else list(by_name)
     method = method or "deflection"
     notes = []
 
     def combined(name, field):
+        if run is not None and field in ("equilibrium", "period", "decrement"):
+            i = run.positions.index(name)
+            if field == "equilibrium":
+                return float(run.equilibria[i]), float(run.u_equilibria[i])
+            return float(getattr(run, field)[i]), float(getattr(run, "u_" + field)[i])
         segs = by_name[name]
         return combine([getattr(s, field) for s in segs], [getattr(s, "u_" + field) for s in segs])
 
@@ -268,10 +300,16 @@ def measurement_block(fits, method: str | None, data_name: str, keep: dict) -> t
         items = ", ".join(f"{toml_key(n)} = {toml_string(_value_text(*combined(n, field), unit))}" for n in names)
         return "{ " + items + " }"
 
-    lines = ["[measurement]", f"# from truepull fit of {data_name}", f"method = {toml_string(method)}"]
+    source = "one fit of the whole run" if run is not None else "per-segment fits"
+    lines = ["[measurement]", f"# from truepull fit of {data_name} ({source})", f"method = {toml_string(method)}"]
     first = names[0]
     if method == "deflection":
         lines.append(f"angle = {inline('equilibrium', 'rad')}")
+        if run is not None and len(names) > 1:
+            r = run.correlation
+            rows = ", ".join("[" + ", ".join(f"{r[i, j]:.6f}" if i != j else "1" for j in range(len(names))) + "]"
+                             for i in range(len(names)))
+            lines.append(f"angle_correlation = [{rows}]   # in the order of angle's keys")
         lines.append(f"period = {toml_string(_value_text(*combined(first, 'period'), 's'))}")
     else:
         lines.append(f"period = {inline('period', 's')}")
@@ -283,36 +321,55 @@ def measurement_block(fits, method: str | None, data_name: str, keep: dict) -> t
         notes.append(f"decrement at {first} came out negative ({dec:.3g} +- {u_dec:.2g}); not written")
     for key, raw in keep.items():
         lines.append(f"{key} = {toml_string(raw) if isinstance(raw, str) else repr(raw)}")
-    repeated = [n for n in names if len(by_name[n]) > 1]
-    if repeated:
+    repeated = [n for n in names if len(by_name.get(n, ())) > 1]
+    if repeated and run is None:
         notes.append("positions seen in more than one segment (" + ", ".join(repeated) + ") were combined by "
                      "the weighted mean, widened by the Birge ratio when they scatter")
+    elif repeated and method == "swing":
+        notes.append("the amplitudes of repeated positions are the Birge-widened weighted mean of the segments'")
     return "\n".join(lines) + "\n", notes
 
 
-def write_into(args, fits) -> tuple[str, list[str]]:
+def rebase_paths(text: str, data: dict, scene_dir: Path, out_dir: Path) -> str:
+    """The scene text with each body's relative mesh `file` re-based from `scene_dir` to `out_dir`, so
+    that the new scene loads from where it is written."""
+    import os
+    import re
+
+    bodies = data.get("body", [])
+    files = {b["file"] for b in bodies if isinstance(b, dict) and isinstance(b.get("file"), str)}
+    for old in sorted(files):
+        if Path(old).is_absolute():
+            continue
+        new = Path(os.path.relpath(scene_dir.resolve() / old, out_dir.resolve())).as_posix()
+        if new == old:
+            continue
+        pattern = re.compile(r"(\bfile\s*=\s*)(\"" + re.escape(old) + r"\"|'" + re.escape(old) + r"')")
+        text = pattern.sub(lambda m: m.group(1) + toml_string(new), text)
+    return text
+
+
+def _read_scene_toml(path: str):
     import tomllib
 
-    from truepull.geometry.scene import load_scene_text
-
-    if not args.out:
-        raise InputError(None, "--out", "--into needs --out NEW_SCENE (the scene itself is never overwritten)")
-    scene, out = Path(args.into), Path(args.out)
+    scene = Path(path)
     if not scene.is_file():
-        raise InputError(args.into, None, "scene file not found" if not scene.exists() else "not a file")
-    if out.resolve() == scene.resolve() or (out.exists() and out.samefile(scene)):
-        raise InputError(args.out, "--out", "must not be the --into scene: the input is never overwritten")
-    if out.exists() and not args.force:
-        raise InputError(args.out, "--out", "already exists; add --force to replace it")
+        raise InputError(path, None, "scene file not found" if not scene.exists() else "not a file")
     try:
         text = scene.read_bytes().decode("utf-8")
     except UnicodeDecodeError:
-        raise InputError(args.into, None, "not a text (UTF-8) file") from None
+        raise InputError(path, None, "not a text (UTF-8) file") from None
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise InputError(args.into, None, f"not valid TOML: {exc}") from None
+        raise InputError(path, None, f"not valid TOML: {exc}") from None
+    return text, data
 
+
+def measured_scene_text(scene_path: str, args, fits, run, out_dir: Path) -> tuple[str, list[str]]:
+    """The scene's text with its [measurement] replaced by the fit's (mesh paths re-based to
+    `out_dir`), and notes. Checks that the run's positions are the scene's."""
+    text, data = _read_scene_toml(scene_path)
     named = [f for f in fits if f.position is not None]
     names = list(dict.fromkeys(f.position for f in named))
     if len(names) < 2:
@@ -324,15 +381,144 @@ def write_into(args, fits) -> tuple[str, list[str]]:
     for name in names:
         if name not in known:
             raise InputError(args.data, args.position_column or "position",
-                             f"position '{name}' is not a [[position]] of {args.into} "
+                             f"position '{name}' is not a [[position]] of {scene_path} "
                              f"(positions there: {', '.join(map(str, known)) or 'none'})")
     old = data.get("measurement", {})
     keep = {k: old[k] for k in ("fiber_q",) if isinstance(old, dict) and isinstance(old.get(k), (str, int, float))}
-    block, notes = measurement_block(tuple(named), args.method, Path(args.data).name, keep)
-    new_text = replace_table(text, "measurement", block, file=args.into)
-    load_scene_text(new_text, str(out), str(scene.resolve().parent))   # the new scene must load as a scene
+    block, notes = measurement_block(tuple(named), getattr(args, "method", None), Path(args.data).name, keep, run)
+    new_text = replace_table(text, "measurement", block, file=scene_path)
+    return rebase_paths(new_text, data, Path(scene_path).parent, out_dir), notes
+
+
+def fit_with_scene(args, scene_path: str, time, angle, labels, line_numbers, value_column, *,
+                   test: str = "pendulum", source: str = "attractor", rtol: float = 1e-9):
+    """(segment fits, run fit, notes): the run fitted with the second-order equation of motion whose
+    terms come from the scene's torque curves (the equilibria located by a first, linear fit and its
+    reduction)."""
+    from truepull.geometry.scene import load_scene_text
+    from truepull.integrate.reduction import reduce_measurement
+    from truepull.integrate.swing_terms import anharmonic_terms_from_scene
+
+    fits, linear = fit_data(time, angle, labels, line_numbers, value_column, args)
+    if linear is None:
+        return fits, None, []
+    base = Path(scene_path).resolve().parent
+    # the equilibria are located by a deflection reduction of the linear fit's angles, whatever the
+    # method written; the second-order terms are themselves corrections of a few tens of ppm, so a
+    # loose engine tolerance (TERMS_RTOL) places the equilibria and the curvature closely enough
+    as_deflection = argparse.Namespace(**{**vars(args), "method": "deflection"})
+    text, _ = measured_scene_text(scene_path, as_deflection, fits, linear, base)
+    loose = max(rtol, TERMS_RTOL)
+    try:
+        scene = load_scene_text(text, scene_path, str(base))
+        reduction = reduce_measurement(scene, test=test, source=source, rtol=loose)
+        amp = max(s["amplitude_at_start"] for s in linear.segments)
+        terms = anharmonic_terms_from_scene(scene, reduction, amp, test=test, source=source, rtol=loose)
+    except InputError as exc:
+        return fits, linear, [f"the second-order equation of motion is not used (the equilibria could not be "
+                              f"located from the scene: {exc.reason}); "
+                              f"the linear model's amplitude offset is not modelled"]
+    run = fit_run(time, angle, labels, drift_order=args.drift_order, anharmonic=terms, file=args.data,
+                  time_key=args.time_column, angle_key=value_column, line_numbers=line_numbers, fits=fits)
+    notes = [f"linear-model equilibria differ from the second-order ones by "
+             + ", ".join(f"{p}: {fmt(float(linear.equilibria[i] - run.equilibria[i]), 3)} rad"
+                         for i, p in enumerate(run.positions))]
+    return fits, run, notes
+
+
+def fitted_scene_text(args, scene_path: str, *, test: str = "pendulum", source: str = "attractor",
+                      rtol: float = 1e-9) -> tuple[str, RunFit, list[str]]:
+    """(scene text with the fitted [measurement], run fit, notes) for `reduce SCENE --data RUN` and the
+    report: the run in args.data fitted with the scene's second-order equation of motion."""
+    time, angle, labels, line_numbers, value_column = load_run(args)
+    if labels is None:
+        raise InputError(args.data, args.position_column or "position",
+                         "a measurement needs a position label per row (no position column)")
+    fits, run, notes = fit_with_scene(args, scene_path, time, angle, labels, line_numbers, value_column,
+                                      test=test, source=source, rtol=rtol)
+    text, more = measured_scene_text(scene_path, args, fits, run, Path(scene_path).resolve().parent)
+    return text, run, notes + more
+
+
+def fit_data(time, angle, labels, line_numbers, value_column, args, anharmonic=None):
+    """(segment fits, run fit or None): the run fit needs position labels."""
+    fits = fit_record(time, angle, labels, file=args.data, time_key=args.time_column, angle_key=value_column,
+                      line_numbers=line_numbers)
+    if labels is None:
+        return fits, None
+    run = fit_run(time, angle, labels, drift_order=args.drift_order, anharmonic=anharmonic, file=args.data,
+                  time_key=args.time_column, angle_key=value_column, line_numbers=line_numbers, fits=fits)
+    return fits, run
+
+
+def write_into(args, fits, run=None) -> tuple[str, list[str]]:
+    from truepull.geometry.scene import load_scene_text
+
+    if not args.out:
+        raise InputError(None, "--out", "--into needs --out NEW_SCENE (the scene itself is never overwritten)")
+    scene, out = Path(args.into), Path(args.out)
+    if not scene.is_file():
+        raise InputError(args.into, None, "scene file not found" if not scene.exists() else "not a file")
+    if out.resolve() == scene.resolve() or (out.exists() and out.samefile(scene)):
+        raise InputError(args.out, "--out", "must not be the --into scene: the input is never overwritten")
+    if out.exists() and not args.force:
+        raise InputError(args.out, "--out", "already exists; add --force to replace it")
+    if not out.resolve().parent.is_dir():
+        raise InputError(args.out, "--out", f"folder {out.resolve().parent} does not exist")
+    new_text, notes = measured_scene_text(args.into, args, fits, run, out.resolve().parent)
+    load_scene_text(new_text, str(out), str(out.resolve().parent))   # the new scene must load from there
     write_atomic(out, new_text.encode("utf-8"))
     return str(out), notes
+
+
+def run_text(run: RunFit, time_unit: str, angle_unit: str) -> str:
+    """The one fit of the whole run as text: model, equilibria with covariance, periods, drift, residuals."""
+    tf = si_factor(time_unit, "time", None, "--time-unit")
+    af = _angle_factor(angle_unit)
+    tu, au = _unit_label(time_unit), _unit_label(angle_unit)
+    lines = ["one fit of the whole run:",
+             f"  model: drift of the zero a Legendre polynomial of order {run.drift_order} in time, zero at the "
+             f"run's start ({'chosen by BIC, the lowest wins' if run.drift_criterion == 'BIC' else 'given'}); "
+             f"equation of motion: {run.eom_order}; {run.n_points} points, {run.n_parameters} parameters"]
+    if run.bic:
+        lines.append("  BIC by drift order: " + ", ".join(f"{k}: {v:.1f}" for k, v in run.bic.items()))
+    headers = ["position", f"equilibrium [{au}]", f"period [{tu}]", "decrement", "segments"]
+    rows = []
+    for i, p in enumerate(run.positions):
+        rows.append([p, _pm(run.equilibria[i], run.u_equilibria[i], af), _pm(run.period[i], run.u_period[i], tf),
+                     _pm(run.decrement[i], run.u_decrement[i]), sum(s["position"] == p for s in run.segments)])
+    lines.append(format_table(headers, rows, "lrrrr"))
+    lines.append("  equilibria at the run's start (the drift's zero); correlation matrix of the equilibria:")
+    for i, p in enumerate(run.positions):
+        lines.append(f"    {p}: " + "  ".join(f"{run.correlation[i, j]: .4f}" for j in range(len(run.positions))))
+    if len(run.positions) >= 2:
+        c = run.covariance
+        d = run.equilibria[0] - run.equilibria[1]
+        u = math.sqrt(max(c[0, 0] + c[1, 1] - 2 * c[0, 1], 0.0))
+        lines.append(f"  difference {run.positions[0]} - {run.positions[1]}: {_pm(d, u, af)} {au}")
+    lines.append(f"  drift: Legendre coefficients " + ", ".join(_pm(c, u, af) for c, u in
+                 zip(run.drift_coefficients, run.u_drift_coefficients)) + f" {au}; it spans "
+                 f"{fmt(run.drift_span / af, 3)} {au} over the run")
+    lines.append(f"  residuals: rms {fmt(run.residual_rms / af, 3)} {au}, lag-1 autocorrelation "
+                 f"{run.lag1_autocorrelation:.3f}, Durbin-Watson {run.durbin_watson:.3f}; "
+                 + ("covariance multiplied by the AR(1) factor (1 + r)/(1 - r) = "
+                    f"{run.inflation:.3g}" if run.inflation != 1 else "no significant correlation "
+                    "(|r| <= 3/sqrt(n)): no inflation"))
+    if run.anharmonic_offset:
+        d = run.equilibria[0] - run.equilibria[1] if len(run.positions) > 1 else float("nan")
+        lines.append("  second-order model (Lindstedt-Poincare): mean-angle offset of the swing "
+                     + ", ".join(f"{p}: {fmt(v / af, 3)} {au}" for p, v in run.anharmonic_offset.items()))
+        if len(run.positions) > 1:
+            off = run.anharmonic_offset
+            ppm = (off[run.positions[0]] - off[run.positions[1]]) / d * 1e6
+            nxt = (run.anharmonic_next_order[run.positions[0]] + run.anharmonic_next_order[run.positions[1]]) / abs(d) * 1e6
+            lines.append(f"    = {ppm:.3g} ppm of the {run.positions[0]} - {run.positions[1]} difference; "
+                         f"the neglected next order is estimated below {nxt:.2g} ppm")
+    else:
+        lines.append("  linear model: the swing's amplitude-dependent offset of the mean angle is not modelled "
+                     "(give the scene with --into, or use reduce SCENE --data, to model it)")
+    lines.extend("  " + n for n in run.notes)
+    return "\n".join(lines)
 
 
 # ---------------------------------------------------------------- the verb
@@ -342,22 +528,31 @@ def run(args) -> int:
         raise InputError(None, "--into", "--out, --method and --force go with --into SCENE")
     units()  # the unit registry, once
     time, angle, labels, line_numbers, value_column = load_run(args)
-    fits = fit_record(time, angle, labels, file=args.data, time_key=args.time_column, angle_key=value_column,
-                      line_numbers=line_numbers)
-    written, notes = (None, [])
+    notes = []
+    if args.into and labels is not None:
+        fits, whole, notes = fit_with_scene(args, args.into, time, angle, labels, line_numbers, value_column)
+    else:
+        fits, whole = fit_data(time, angle, labels, line_numbers, value_column, args)
+    written = None
     if args.into:
-        written, notes = write_into(args, fits)
+        written, more = write_into(args, fits, whole)
+        notes += more
     if args.png:
-        write_png(args.png, fits, time, angle, args.time_unit, args.angle_unit)
+        write_png(args.png, fits, time, angle, args.time_unit, args.angle_unit, whole)
     if args.json:
         payload = {"segments": [f.as_dict() for f in fits]}
+        if whole is not None:
+            payload["run"] = whole.as_dict()
         if written:
             payload["written"] = written
         print_json(payload)
         for note in notes:
             sys.stderr.write(f"truepull fit: {note}\n")
         return 0
+    print("per-segment fits (starting values for the run fit):")
     print(table_text(fits, args.time_unit, args.angle_unit))
+    if whole is not None:
+        print(run_text(whole, args.time_unit, args.angle_unit))
     for note in notes:
         print(note)
     if written:

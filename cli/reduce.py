@@ -42,6 +42,9 @@ def add_arguments(parser) -> None:
     parser.add_argument("--source", default="attractor", help="the source group (default attractor)")
     parser.add_argument("--no-budget", action="store_true", help="skip the uncertainty budget")
     parser.add_argument("--no-progress", action="store_true", help="no progress bar on stderr")
+    from truepull.cli.fit import add_data_arguments
+
+    add_data_arguments(parser, as_option=True)
 
 
 def _fiber_q(raw):
@@ -51,23 +54,39 @@ def _fiber_q(raw):
 
 
 def reduce_data(args) -> dict:
-    """The whole result for parsed command-line arguments (see reduction_data)."""
-    return reduction_data(args.scene, rtol=args.rtol, mc_rtol=args.mc_rtol, samples=args.samples, seed=args.seed,
+    """The whole result for parsed command-line arguments (see reduction_data). With --data the run is
+    fitted with the scene (truepull.cli.fit.fitted_scene_text) and its measurement reduced."""
+    text, fit = None, None
+    if getattr(args, "data", None):
+        from truepull.cli.fit import fitted_scene_text
+
+        text, run, notes = fitted_scene_text(args, args.scene, test=args.test, source=args.source, rtol=args.rtol)
+        fit = {"data": args.data, "run": run.as_dict(), "notes": notes}
+    data = reduction_data(args.scene, rtol=args.rtol, mc_rtol=args.mc_rtol, samples=args.samples, seed=args.seed,
                           check_draws=args.check_draws, full_model=args.full_model, workers=args.workers,
-                          scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test, source=args.source,
-                          budget=not args.no_budget, progress=not args.no_progress)
+                          scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test, source=args.source, budget=not args.no_budget, progress=not args.no_progress, text=text)
+    if fit is not None:
+        data["fit"] = fit
+    return data
 
 
 def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, samples: int | None = None,
                    seed: int = 0, check_draws: int = 50, full_model: bool = False, workers: int | None = None,
                    scheduler=None, fiber_q: str | None = None, test: str = "pendulum",
-                   source: str = "attractor", budget: bool = True, progress: bool = False) -> dict:
+                   source: str = "attractor", budget: bool = True, progress: bool = False,
+                   text: str | None = None) -> dict:
     """The reduction of the scene file at `scene_path` and its budget as plain values: the
-    `reduce --json` object (also for other verbs, such as the report)."""
+    `reduce --json` object (also for other verbs, such as the report). `text` replaces the file's
+    text (e.g. the scene with a fitted [measurement]), relative paths still from the file's folder."""
     from truepull.integrate.reduction import reduce_measurement
     from truepull.integrate.reduction_budget import reduction_budget
 
-    scene = load_scene(scene_path)
+    if text is None:
+        scene = load_scene(scene_path)
+    else:
+        from truepull.geometry.scene import load_scene_text
+
+        scene = load_scene_text(text, str(scene_path), str(Path(scene_path).resolve().parent))
     q = _fiber_q(fiber_q)
     if samples is not None and (isinstance(samples, bool) or not isinstance(samples, int) or samples < 0):
         raise InputError(None, "--samples", f"must be 0 or more, got {samples}")
@@ -80,7 +99,8 @@ def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, sam
     if not budget:
         data.update({"u_G": None, "budget": [], "monte_carlo": None, "budget_notes": ["budget skipped"]})
     else:
-        text = Path(scene_path).read_text(encoding="utf-8")
+        if text is None:
+            text = Path(scene_path).read_text(encoding="utf-8")
         result = reduction_budget(scene, reduction, text, test=test, source=source, fiber_q=q, samples=samples,
                                   seed=seed, mc_rtol=mc_rtol, check_draws=check_draws, full_model=full_model,
                                   workers=workers, scheduler=scheduler,
@@ -224,6 +244,9 @@ def render(data: dict) -> str:
 
 
 def run(args) -> int:
+    from truepull.geometry.quantities import units
+
+    units()
     data = reduce_data(args)
     if args.json:
         print_json(data)

@@ -145,6 +145,8 @@ class Context:
     args: argparse.Namespace
     folder: Path
     comparisons: list = field(default_factory=list)
+    fitted: tuple | None = None          # (scene, scene text, run fit) with the recorded run's [measurement]
+    reduced: dict = field(default_factory=dict)   # section name -> reduce data
 
     @property
     def lf(self) -> float:
@@ -395,14 +397,18 @@ def section_bias(ctx: Context) -> Section:
 
 # --- reduce --------------------------------------------------------------------------------------
 
-def section_reduce(ctx: Context) -> Section:
+def section_reduce(ctx: Context, scene=None, scene_text: str | None = None, name: str = "reduce",
+                   title: str = "G from the measurement") -> Section:
+    """The reduction of `scene` (default: the report's scene) whose TOML text is `scene_text`."""
     red = _need("truepull.integrate.reduction")
     bud = _need("truepull.integrate.reduction_budget")
-    s = Section("reduce", "G from the measurement")
-    scene = ctx.scene
+    s = Section(name, title)
+    scene = scene if scene is not None else ctx.scene
+    scene_text = scene_text if scene_text is not None else ctx.scene_text
     reduction = red.reduce_measurement(scene, test=ctx.args.test, source=ctx.args.source, rtol=ctx.args.rtol)
     data = reduction.to_json()
-    budget = bud.reduction_budget(scene, reduction, ctx.scene_text, test=ctx.args.test, source=ctx.args.source,
+    ctx.reduced[name] = data
+    budget = bud.reduction_budget(scene, reduction, scene_text, test=ctx.args.test, source=ctx.args.source,
                                   samples=ctx.args.samples, check_draws=ctx.args.check_draws,
                                   workers=ctx.args.workers, progress=False)
     data.update(budget.to_json(reduction.G))
@@ -480,38 +486,74 @@ def budget_png(path, rows, G: float, u: float | None = None, top: int = 20) -> N
 
 def section_fit(ctx: Context) -> Section:
     from truepull.cli import fit as fit_cli
-    from truepull.integrate.fitting import fit_record
 
     s = Section("fit", "Fit of the recorded run")
     parser = argparse.ArgumentParser()
     fit_cli.add_arguments(parser)
-    fargs = parser.parse_args([ctx.args.data, "--time-unit", ctx.args.data_time_unit,
+    fargs = parser.parse_args([str(ctx.args.data), "--time-unit", ctx.args.data_time_unit,
                                "--angle-unit", ctx.args.data_angle_unit])
     t, angle, labels, lines, column = fit_cli.load_run(fargs)
-    fits = fit_record(t, angle, labels, file=ctx.args.data, time_key=fargs.time_column, angle_key=column,
-                      line_numbers=lines)
+    names = set(labels) if labels is not None else set()
+    known = {p.name for p in ctx.scene.positions}
+    notes = []
+    if len(names) >= 2 and names <= known:
+        text, run, notes = fit_cli.fitted_scene_text(fargs, ctx.scene_path, test=ctx.args.test,
+                                                     source=ctx.args.source, rtol=ctx.args.rtol)
+        from truepull.geometry.scene import load_scene_text
+        from truepull.integrate.fitting import fit_record
+
+        fits = fit_record(t, angle, labels, file=fargs.data, time_key=fargs.time_column, angle_key=column,
+                          line_numbers=lines)
+
+        fitted_scene = load_scene_text(text, ctx.scene_path, str(Path(ctx.scene_path).resolve().parent))
+        ctx.fitted = (fitted_scene, text, run)
+    else:
+        fits, run = fit_cli.fit_data(t, angle, labels, lines, column, fargs)
+        text = None
     png, caption = FIGURES["fit"]
-    fit_cli.write_png(str(ctx.folder / png), fits, t, angle, fargs.time_unit, fargs.angle_unit)
+    fit_cli.write_png(str(ctx.folder / png), fits, t, angle, fargs.time_unit, fargs.angle_unit, run)
     s.figures = [png]
     s.data = {"data": str(ctx.args.data), "segments": [f.as_dict() for f in fits]}
+    if run is not None:
+        s.data["run"] = run.as_dict()
     rows = [[k, f.position or "-", fmt(f.t_start), fmt(f.t_end), f.n_points, f"{fmt(f.period)} ± {fmt(f.u_period, 2)}",
              f"{fmt(f.decrement)} ± {fmt(f.u_decrement, 2)}", f"{fmt(f.equilibrium)} ± {fmt(f.u_equilibrium, 2)}",
              fmt(f.residual_rms, 3)] for k, f in enumerate(fits, start=1)]
-    parts = [f"`{Path(ctx.args.data).name}`: a damped sinusoid with drift and offset per segment of one position "
-             "(SI: s, rad; standard uncertainties).",
+    parts = [f"`{Path(ctx.args.data).name}`: first each segment alone (a damped sinusoid with drift and offset; "
+             "the starting values), then one fit of the whole run (SI: s, rad; standard uncertainties).",
              _md_table(["#", "position", "from (s)", "to (s)", "points", "period (s)", "decrement",
-                        "equilibrium (rad)", "residual rms (rad)"], rows, "rlrrrrrrr"),
-             f"![{caption}]({png})"]
+                        "equilibrium (rad)", "residual rms (rad)"], rows, "rlrrrrrrr")]
+    if run is not None:
+        parts.append("```\n" + fit_cli.run_text(run, "s", "rad") + "\n```")
+    parts.append(f"![{caption}]({png})")
     parts += [f"Note (segment {k}): {f.note}" for k, f in enumerate(fits, start=1) if f.note]
-    named = [f for f in fits if f.position is not None]
-    known = {p.name for p in ctx.scene.positions}
-    if len({f.position for f in named}) >= 2 and {f.position for f in named} <= known:
-        block, notes = fit_cli.measurement_block(tuple(named), None, Path(ctx.args.data).name, {})
+    if text is not None:
+        import re
+
+        block = re.search(r"^\[measurement\].*?(?=^\[|\Z)", text, re.S | re.M).group(0).rstrip() + "\n"
         s.data["measurement_block"] = block
-        parts.append("A `[measurement]` table from this fit (`truepull fit --into` writes it into a new scene):\n\n"
-                     "```toml\n" + block + "```")
-        parts += [f"Note: {n}" for n in notes]
+        parts.append("The `[measurement]` table from this fit (`truepull fit --into` writes it into a new scene; "
+                     "`truepull reduce SCENE --data RUN` reduces it directly):\n\n```toml\n" + block + "```")
+    parts += [f"Note: {n}" for n in notes]
     s.markdown = "\n\n".join(parts)
+    return s
+
+
+def section_reduce_run(ctx: Context) -> Section:
+    """G from the recorded run's fitted [measurement]; beside the scene's stated one when both exist."""
+    if ctx.fitted is None:
+        raise PieceMissing("the run's positions are not the scene's, so its fit is not reduced")
+    scene, text, _ = ctx.fitted
+    s = section_reduce(ctx, scene, text, "reduce_run", "G from the recorded run")
+    stated = ctx.reduced.get("reduce")
+    if stated is not None and stated.get("u_G") and s.data.get("u_G"):
+        d = s.data["G"] - stated["G"]
+        uc = math.hypot(s.data["u_G"], stated["u_G"])
+        s.data["stated_comparison"] = {"G_stated": stated["G"], "u_G_stated": stated["u_G"], "difference": d,
+                                       "in_combined_u": d / uc}
+        s.markdown += (f"\n\nThe scene's stated `[measurement]` gives G = {stated['G']:.9g} ± {stated['u_G']:.3g}; "
+                       f"the run's G differs by {d:.3g} m^3 kg^-1 s^-2, {d / uc:.2f} combined standard "
+                       f"uncertainties (sqrt(u1^2 + u2^2), as if independent).")
     return s
 
 
@@ -631,6 +673,8 @@ def plan(scene, args) -> list:
         steps.append(section_fit)
     if scene.measurement is not None:
         steps.append(section_reduce)
+    if args.data:
+        steps.append(section_reduce_run)
     if not args.no_view:
         steps.append(section_view)
     return steps
@@ -717,6 +761,10 @@ def run(args) -> int:
         from truepull.shapes import demo_path
 
         scene_path = str(demo_path())
+        if args.data is None:
+            from truepull.shapes import demo_run_path
+
+            args.data = str(demo_run_path())   # the built-in demo includes its invented run
     else:
         scene_path = args.scene
     scene = load_scene(scene_path)

@@ -5,6 +5,11 @@ know is refused, so a typo cannot silently change a result. Bad input raises Inp
 file, the key (e.g. `body[bob-east].radius`) and the reason. Values must be finite and, in SI, within
 the ranges of `quantities.LIMITS` (lengths 1e-12 .. 1e12 m, angles up to 1e6 rad, ...); directions
 (`axis`, `rotate.axis`, `frame.axis`) are three plain numbers; a decrement is at most MAX_DECREMENT.
+
+[measurement] may carry `angle_correlation = [[1, r], [r, 1]]`: the correlation coefficients of the
+measured equilibrium angles, rows and columns in the order in which `angle`'s keys are written
+(symmetric, unit diagonal, |r| <= 1, positive semi-definite). `truepull fit --into` writes it from the
+one fit of the whole run; the uncertainty budget (GUM and Monte Carlo) uses it. Absent: independent.
 """
 
 from __future__ import annotations
@@ -35,7 +40,7 @@ TOP_KEYS = ("scene", "units", "frame", "body", "position", "measurement")
 SCENE_KEYS = ("title", "G")
 FRAME_KEYS = ("pivot", "axis")
 POSITION_KEYS = ("name", "group", "turn", "shift")
-MEASUREMENT_KEYS = ("method", "angle", "period", "decrement", "fiber_q", "amplitude")
+MEASUREMENT_KEYS = ("method", "angle", "period", "decrement", "fiber_q", "amplitude", "angle_correlation")
 BODY_COMMON_KEYS = ("name", "group", "shape", "at", "axis", "rotate", "density", "material", "mass", "subtract")
 ROTATE_KEYS = ("axis", "angle")
 # shape -> {scene key: required?}; box `size` and ellipsoid `radii` are 3-vectors
@@ -106,7 +111,11 @@ class Measurement:
     `period` (s): deflection -> one Measured (the free period at the first position in `angle`);
     swing -> position name -> Measured. `decrement`: logarithmic decrement per period or None.
     `extra`: optional keys also accepted: "fiber_q" (Measured, dimensionless quality factor of the
-    fiber) and "amplitude" (Measured rad, or position name -> Measured rad: swing amplitude)."""
+    fiber), "amplitude" (Measured rad, or position name -> Measured rad: swing amplitude) and
+    "angle_correlation" (tuple of tuples: the correlation coefficients r_ij of the measured angles, in
+    the order of `angle`'s keys as written; symmetric, ones on the diagonal, positive semi-definite;
+    written by `truepull fit --into` from the one fit of the whole run, used by the budget's GUM and
+    Monte Carlo). In the file: angle_correlation = [[1, r], [r, 1]]."""
 
     method: str
     angle: dict[str, Measured]
@@ -526,4 +535,28 @@ def _read_measurement(r: _Reader, raw, positions) -> Measurement:
                                                positive=True)
         else:
             extra["amplitude"] = r.scalar(t["amplitude"], "angle", "measurement.amplitude", positive=True)
+    if "angle_correlation" in t:
+        extra["angle_correlation"] = _read_correlation(r, t["angle_correlation"], len(angle))
     return Measurement(method, angle, period, decrement, extra)
+
+
+def _read_correlation(r: _Reader, raw, n: int) -> tuple[tuple[float, ...], ...]:
+    """An n x n correlation matrix: numbers in [-1, 1], ones on the diagonal, symmetric, positive
+    semi-definite (smallest eigenvalue above -1e-9)."""
+    key = "measurement.angle_correlation"
+    if n < 2:
+        r.fail(key, "needs angles at two or more positions")
+    if not (isinstance(raw, list) and len(raw) == n and all(isinstance(row, list) and len(row) == n for row in raw)):
+        r.fail(key, f"must be a {n} x {n} matrix of numbers (one row per angle, in the order of angle's keys)")
+    if not all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) for row in raw for v in row):
+        r.fail(key, "every entry must be a finite number")
+    m = np.array(raw, dtype=float)
+    if np.any(np.abs(m) > 1):
+        r.fail(key, "correlation coefficients must lie between -1 and 1")
+    if not np.allclose(np.diag(m), 1.0, rtol=0, atol=1e-12):
+        r.fail(key, "the diagonal must be 1")
+    if not np.allclose(m, m.T, rtol=0, atol=1e-12):
+        r.fail(key, "the matrix must be symmetric (r_ij = r_ji)")
+    if np.linalg.eigvalsh(m)[0] < -1e-9:
+        r.fail(key, "not positive semi-definite: no set of angles can have these correlations")
+    return tuple(tuple(float(v) for v in row) for row in m)

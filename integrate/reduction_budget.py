@@ -274,6 +274,24 @@ class Budget:
         return out
 
 
+def input_correlations(scene, refs) -> np.ndarray | None:
+    """The inputs' correlation matrix (JCGM 100:2008 r_ij) from the [measurement]'s angle_correlation
+    (in the order of angle's keys); None when the scene states none (all independent)."""
+    m = scene.measurement
+    rows = m.extra.get("angle_correlation") if m is not None else None
+    if rows is None:
+        return None
+    keys = list(m.angle)
+    where = {f"measurement.angle.{k}": i for i, k in enumerate(keys)}
+    r = np.eye(len(refs))
+    idx = [(n, where[ref.name]) for n, ref in enumerate(refs) if ref.name in where]
+    for a, i in idx:
+        for b, j in idx:
+            if a != b:
+                r[a, b] = rows[i][j]
+    return r
+
+
 def budget_nodes(scene, reduction: Reduction, fiber_q=None) -> tuple[tuple[float, ...], ...]:
     """The turns at which the budget model samples each torque curve: the reduction's samples at the
     equilibrium (and, for a swing of amplitude A, at the equilibrium -+ A), without the pose as drawn
@@ -318,8 +336,9 @@ def reduction_budget(scene, reduction: Reduction, scene_text: str, *, test: str 
     inputs = [Input(r.name, r.value, r.u, r.unit) for r in refs]
     steps = [STEP_FRACTION * r.u for r in refs]
     rel_noise = max(reduction.numerical_error / abs(reduction.G), 1e-14)
+    correlations = input_correlations(scene, refs)
     gum = gum_linear(partial(g_model, context), inputs, steps=steps, rel_noise=rel_noise, workers=workers,
-                     scheduler=scheduler, progress=progress)
+                     scheduler=scheduler, progress=progress, correlations=correlations)
     rows = tuple(budget_table(gum, y_scale=reduction.G))
     if abs(gum.value - reduction.G) > 10 * reduction.numerical_error + 1e-12 * abs(reduction.G):
         notes.append(f"the budget model's G differs from the reduction's by {(gum.value / reduction.G - 1) * 1e6:.3g} ppm")
@@ -333,12 +352,13 @@ def reduction_budget(scene, reduction: Reduction, scene_text: str, *, test: str 
             first = 10 * m if samples is None else samples
             mc = monte_carlo(partial(g_model, mc_context), inputs, samples=first, seed=seed, blocks=10,
                              adaptive=samples is None, digits=MC_DIGITS, step_blocks=1 if samples is None else None,
-                             max_samples=FULL_MODEL_MAX_DRAWS if samples is None else None,
+                             max_samples=FULL_MODEL_MAX_DRAWS if samples is None else None, correlations=correlations,
                              workers=workers, scheduler=scheduler, progress=progress)
         else:
             run = surrogate_monte_carlo(partial(g_model, context), inputs, gum, samples=samples,
                                         check_model=partial(g_model, mc_context), check_draws=check_draws,
-                                        seed=seed, digits=MC_DIGITS, rel_noise=rel_noise, workers=workers,
+                                        seed=seed, digits=MC_DIGITS, rel_noise=rel_noise, correlations=correlations,
+                                        workers=workers,
                                         scheduler=scheduler, progress=progress)
             mc = run.mc
             check_seconds = run.check_seconds

@@ -286,3 +286,24 @@ def test_bad_options(tmp_path, capsys):
                                                 "angle": [math.sin(i / 5) for i in range(300)],
                                                 "position": ["near"] * 300}),
         "--into", str(tmp_path / "scene.toml"), "--out", str(tmp_path / "n.toml")])
+
+
+def test_run_fit_in_json_states_the_model_and_finds_the_generator_drift(capsys):
+    # the generator's linear drift DRIFT (shapes/make_demo_run.py) over the run's span T is the Legendre
+    # coefficient c_1 = DRIFT T / 2 (P_1(u) = u, u = 2 t / T - 1)
+    import json
+
+    from truepull.shapes import demo_run_path
+    from truepull.shapes import make_demo_run as mr
+
+    assert main(["fit", str(demo_run_path()), "--json"]) == 0
+    run = json.loads(capsys.readouterr().out)["run"]
+    assert run["model"]["drift_criterion"] == "BIC" and run["model"]["equation_of_motion"] == "linear"
+    span = run["segments"][-1]["t_end"] - run["segments"][0]["t_start"]
+    c1, u1 = run["drift"]["coefficients"][0], run["drift"]["u_coefficients"][0]
+    assert abs(c1 - mr.DRIFT * span / 2) < 4 * u1
+    assert main(["fit", str(demo_run_path()), "--json", "--drift-order", "3"]) == 0
+    run3 = json.loads(capsys.readouterr().out)["run"]
+    assert run3["model"]["drift_order"] == 3 and run3["model"]["drift_criterion"] == "given"
+    assert len(run3["drift"]["coefficients"]) == 3
+    assert main(["fit", str(demo_run_path()), "--drift-order", "-1"]) == 2

@@ -375,3 +375,15 @@ def test_test_and_source_groups_are_chosen_by_options(plain, tmp_path):
     results = _load(out)["sections"]["compare"]["results"]
     assert {p["source"] for p in results[0]["pairs"]} == {"table"}
     assert all(r["source"] == "stand" for r in results)
+
+
+def test_report_reduces_the_run_beside_the_stated_measurement(full_report):
+    code, out = full_report
+    sections = _load(out)["sections"]
+    assert sections["fit"]["run"]["model"]["equation_of_motion"].startswith("second order")
+    run, stated = sections["reduce_run"], sections["reduce"]
+    cmp = run["stated_comparison"]
+    assert cmp["G_stated"] == stated["G"]
+    # the difference in combined standard uncertainties, sqrt(u1^2 + u2^2) (JCGM 100 for independent values)
+    assert math.isclose(cmp["in_combined_u"], (run["G"] - stated["G"]) / math.hypot(run["u_G"], stated["u_G"]))
+    assert "G from the recorded run" in (out / "report.md").read_text()
