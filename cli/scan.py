@@ -14,7 +14,7 @@ import sys
 
 import numpy as np
 
-from truepull.cli.output import print_json, save_figure_atomic, write_atomic
+from truepull.cli.output import not_reached_exit, print_json, save_figure_atomic, write_atomic
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
 from truepull.integrate.scans import DEFAULT_CHECKS, Sweep, parse_range, scan
@@ -139,4 +139,4 @@ def run(args) -> int:
         sys.stderr.write(f"truepull scan: {note}\n")
     if args.png and not args.json:
         sys.stderr.write(f"truepull scan: wrote {args.png}\n")
-    return 0
+    return not_reached_exit("scan", result.reached)
