@@ -85,6 +85,15 @@ def build_parser(load_verbs: list[str] | None = None) -> argparse.ArgumentParser
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Run one verb; returns the exit code (see EXIT_CODES)."""
+    try:
+        return _main(argv)
+    except KeyboardInterrupt:  # Ctrl-C while starting up or parsing
+        _quiet_interrupt()
+        return 130
+
+
+def _main(argv: list[str] | None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     verb = next((a for a in argv if not a.startswith("-")), None)
     parser = build_parser([verb] if verb in VERBS else [])
