@@ -123,6 +123,34 @@ def _run_chunk(func, chunk: list):
         return [func(item) for item in chunk]
     except InputError as exc:
         return _RaisedInputError(exc.file, exc.key, exc.reason)
+    finally:
+        _forget_numba_lock()
+
+
+_forgotten: set = set()
+
+
+def _forget_numba_lock() -> None:
+    """Worker side: numba's thread start-up makes a named multiprocessing lock that only this process
+    uses; unlink it now and take it off the resource tracker's list, so a worker killed with its parent
+    leaves nothing for the tracker to warn about ("leaked semaphore objects")."""
+    mod = sys.modules.get("numba.np.ufunc.parallel")
+    lock = getattr(mod, "_backend_init_process_lock", None) if mod is not None else None
+    name = getattr(getattr(lock, "_semlock", None), "name", None)
+    if not name or name in _forgotten:
+        return
+    _forgotten.add(name)
+    try:
+        from multiprocessing import resource_tracker, util
+        from _multiprocessing import sem_unlink
+
+        for f in list(getattr(util, "_finalizer_registry", {}).values()):
+            if getattr(f, "_args", None) == (name,):
+                f.cancel()
+        sem_unlink(name)
+        resource_tracker.unregister(name, "semaphore")
+    except Exception:  # an unusual setup: at worst the tracker warns at exit
+        pass
 
 
 def _unpack(result):
@@ -206,6 +234,7 @@ def _start_worker(threads: int, main_pid: int) -> None:
     threading.Thread(target=_watch_parent, args=(main_pid, parent), name="truepull-parent-watchdog",
                      daemon=True).start()
     _limit_worker_threads(threads)
+    _forget_numba_lock()
 
 
 def _limit_worker_threads(threads: int) -> None:
@@ -229,10 +258,27 @@ def _context():
     return multiprocessing.get_context("spawn")
 
 
+def _start_helpers(ctx) -> None:
+    """Start the forkserver (and the resource tracker) with SIGINT ignored, which they inherit: a
+    Ctrl-C while the forkserver imports its preload modules would otherwise print its traceback."""
+    if ctx.get_start_method() != "forkserver" or threading.current_thread() is not threading.main_thread():
+        return
+    import signal
+    from multiprocessing import forkserver, resource_tracker
+
+    old = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        resource_tracker.ensure_running()
+        forkserver.ensure_running()
+    finally:
+        signal.signal(signal.SIGINT, old)
+
+
 def _pool(n_workers: int) -> ProcessPoolExecutor:
     with _pools_lock:
         pool = _pools.get(n_workers)
         if pool is None or getattr(pool, "_broken", False):
+            _start_helpers(_context())
             threads = max(1, (os.cpu_count() or 1) // n_workers)
             pool = ProcessPoolExecutor(max_workers=n_workers, mp_context=_context(),
                                        initializer=_start_worker, initargs=(threads, os.getpid()))
