@@ -316,6 +316,27 @@ def _stop_pool(n_workers: int, pool: ProcessPoolExecutor) -> None:
     gc.collect()
 
 
+class _sigint_held:
+    """Hold SIGINT back (delivered on leaving) while worker processes are being started, so every
+    started worker is known to the pool when the KeyboardInterrupt arrives. Main thread, POSIX only."""
+
+    def __enter__(self):
+        import signal
+
+        self._held = False
+        if hasattr(signal, "pthread_sigmask") and threading.current_thread() is threading.main_thread():
+            signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+            self._held = True
+        return self
+
+    def __exit__(self, *exc):
+        if self._held:
+            import signal
+
+            signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT})
+        return False
+
+
 def _check_picklable(func) -> None:
     try:
         pickle.dumps(func)
@@ -332,7 +353,8 @@ def _map_pool(func, items, n_workers, progress, desc):
     pool = _pool(n_workers)
     futures = {}
     try:
-        futures = {pool.submit(_run_chunk, func, chunk): k for k, chunk in enumerate(chunks)}
+        with _sigint_held():  # a Ctrl-C while workers start would leave one we cannot stop
+            futures = {pool.submit(_run_chunk, func, chunk): k for k, chunk in enumerate(chunks)}
         results: list = [None] * len(chunks)
         pending = set(futures)
         with _bar(len(items), progress, desc) as bar:

@@ -63,4 +63,4 @@ def test_ctrl_c_exits_130_quietly(tmp_path):
     os.killpg(proc.pid, signal.SIGINT)  # as a terminal's Ctrl-C does: the whole group
     _, err = proc.communicate(timeout=60)
     assert proc.returncode == 130, err
-    assert err.endswith("truepull: interrupted\n") and "Traceback" not in err and "Warning" not in err
+    assert err.endswith("truepull: interrupted\n") and "Traceback" not in err and "Warning" not in err, err

@@ -354,3 +354,18 @@ def test_test_and_source_groups_are_chosen_by_options(plain, tmp_path):
     results = _load(out)["sections"]["compare"]["results"]
     assert {p["source"] for p in results[0]["pairs"]} == {"table"}
     assert all(r["source"] == "stand" for r in results)
+
+
+def test_report_names_no_folder_of_this_machine_and_follows_the_umask(full_report, spheres):
+    import stat
+
+    code, out = full_report
+    info = _load(out)
+    assert info["scene"]["path"] == os.path.relpath(spheres, out).replace(os.sep, "/")
+    text = (out / "report.md").read_text() + (out / "report.json").read_text()
+    assert str(spheres.parent) not in text and str(out) not in text
+    mask = os.umask(0)
+    os.umask(mask)
+    assert stat.S_IMODE(out.stat().st_mode) == 0o777 & ~mask  # POSIX mkdir(2): 0777 & ~umask
+    for p in out.iterdir():
+        assert stat.S_IMODE(p.stat().st_mode) == 0o666 & ~mask, p.name  # open(2): 0666 & ~umask
