@@ -262,6 +262,8 @@ def test_other_groups_are_not_in_the_interaction(full_report):
 
 
 def test_no_scene_runs_the_built_in_demo(plain, tmp_path, monkeypatch):
+    import os
+
     import truepull.shapes
 
     scene = plain
@@ -269,7 +271,7 @@ def test_no_scene_runs_the_built_in_demo(plain, tmp_path, monkeypatch):
     out = tmp_path / "r"
     assert main(["report", "--out", str(out), "--no-bias", "--no-view", "--workers", "1", "--turn=-50:50:50"]) == 0
     info = _load(out)
-    assert info["scene"]["path"] == str(scene)
+    assert info["scene"]["path"] == os.path.relpath(scene, out).replace(os.sep, "/")  # relative to the report
     assert "reduce" in {m["section"] for m in info["not_included"]}
     assert "reduce" not in info["sections"]
 
@@ -357,6 +359,7 @@ def test_test_and_source_groups_are_chosen_by_options(plain, tmp_path):
 
 
 def test_report_names_no_folder_of_this_machine_and_follows_the_umask(full_report, spheres):
+    import os
     import stat
 
     code, out = full_report
