@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from truepull.cli.output import fmt, format_table, print_json
+from truepull.cli.output import fmt, format_table, not_reached_exit, print_json
 from truepull.geometry.scene import load_scene
 from truepull.integrate.interaction import compare_positions
 
@@ -80,7 +80,7 @@ def run(args) -> int:
         if moments is not None:
             out["moments"] = moments
         print_json(out)
-        return 0
+        return not_reached_exit("compare", all(r.reached for r in results))
     title = f" - {scene.title}" if scene.title else ""
     print(f"scene {scene.path}{title}")
     for r in results:
@@ -89,4 +89,4 @@ def run(args) -> int:
     if moments is not None:
         print()
         print(moments)
-    return 0
+    return not_reached_exit("compare", all(r.reached for r in results))

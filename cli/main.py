@@ -3,6 +3,7 @@
 Each verb module defines HELP (one line), add_arguments(parser) and run(args) -> exit code.
 Bad input raises InputError, printed here as one line on stderr with exit code 2; any other
 failure is an internal error, one line and exit code 1 (set TRUEPULL_DEBUG=1 for the traceback).
+Exit codes are listed in EXIT_CODES (shown in --help).
 """
 
 from __future__ import annotations
@@ -43,6 +44,15 @@ VERB_HELP = {
 }
 
 
+EXIT_CODES = """exit codes:
+  0    done
+  1    internal error (one line; TRUEPULL_DEBUG=1 shows the traceback)
+  2    bad input or an unusable output place (one line on stderr: file, key, reason)
+  3    done and printed, but an engine did not reach the asked tolerance (compare, scan, bias, reduce,
+       report, view's field); the result carries the error estimates reached
+  130  interrupted (Ctrl-C)"""
+
+
 class _OneLineParser(argparse.ArgumentParser):
     """argparse that reports usage errors in one line with exit code 2."""
 
@@ -64,6 +74,7 @@ def build_parser(load_verbs: list[str] | None = None) -> argparse.ArgumentParser
     parser = _OneLineParser(
         prog="truepull",
         description="Exact gravitational pull between extended bodies, beside the point-mass model.",
+        epilog=EXIT_CODES, formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     parser.add_argument("--version", action="version", version=f"truepull {_version()}")
     sub = parser.add_subparsers(dest="verb", metavar="VERB", parser_class=_OneLineParser)
@@ -98,6 +109,15 @@ def join_range_values(argv: list[str]) -> list[str]:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Run one verb; returns the exit code (see EXIT_CODES)."""
+    try:
+        return _main(argv)
+    except KeyboardInterrupt:  # Ctrl-C while starting up or parsing
+        _quiet_interrupt()
+        return 130
+
+
+def _main(argv: list[str] | None) -> int:
     argv = join_range_values(list(sys.argv[1:] if argv is None else argv))
     verb = next((a for a in argv if not a.startswith("-")), None)
     parser = build_parser([verb] if verb in VERBS else [])
@@ -117,15 +137,29 @@ def main(argv: list[str] | None = None) -> int:
         except OSError:
             pass
         return 0
-    except KeyboardInterrupt:
-        sys.stderr.write("truepull: interrupted\n")
-        return 1
+    except KeyboardInterrupt:  # Ctrl-C: quietly, with the shell's usual code (128 + SIGINT)
+        _quiet_interrupt()
+        return 130
     except Exception as exc:  # internal failure: one line, traceback only on request
         if os.environ.get("TRUEPULL_DEBUG"):
             raise
         msg = " ".join(str(exc).split()) or type(exc).__name__
         sys.stderr.write(f"truepull {args.verb}: internal error: {type(exc).__name__}: {msg}\n")
         return 1
+
+
+def _quiet_interrupt() -> None:
+    """After Ctrl-C: one line, and no second traceback from a repeated Ctrl-C or from exit handlers."""
+    import signal
+
+    try:
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+    except (ValueError, OSError):  # not the main thread
+        pass
+    try:
+        sys.stderr.write("truepull: interrupted\n")
+    except OSError:
+        pass
 
 
 if __name__ == "__main__":

@@ -1,6 +1,6 @@
 """`truepull mesh FILE`: inspect a part file (STL, OBJ, PLY, ... via trimesh) before using it in a scene.
 
-Bounding box (file units and m), watertightness, winding, volume, centre of mass and inertia about
+Bounding box (file units, metres unless --units says otherwise, as in scenes, and m), watertightness, winding, volume, centre of mass and inertia about
 it (for the given density or material; otherwise per unit density, said so), a warning when the
 size suggests the units are wrong, and a ready `[[body]]` block. A file that is missing, empty,
 not a mesh, open (not watertight) or inconsistently wound is refused (exit 2, one line): such a
@@ -30,8 +30,10 @@ UNIT_CHOICES = ("mm", "in", "cm", "m", "um")
 
 def add_arguments(parser) -> None:
     parser.add_argument("file", metavar="FILE", help="part file: STL, OBJ, PLY, OFF, ... (anything trimesh reads)")
-    parser.add_argument("--units", default="m", metavar="UNIT", help="length unit of the file's coordinates "
-                                                                    "(default m; e.g. mm, in)")
+    parser.add_argument("--units", default=None, metavar="UNIT", help="length unit of the file's coordinates "
+                        "(default m, as in scenes: a file's numbers are metres unless said otherwise; e.g. mm, in)")
+    parser.add_argument("--scene", metavar="SCENE", help="the scene file the [[body]] block is for: its `file` is "
+                        "then written relative to that scene's folder (default: relative to the current folder)")
     matter = parser.add_mutually_exclusive_group()
     matter.add_argument("--density", metavar="X", help="density, kg/m^3 or with a unit, e.g. '8.5 g/cm^3'")
     matter.add_argument("--material", metavar="NAME", help="a named material (e.g. brass, tungsten, aluminium)")
@@ -78,10 +80,24 @@ def _toml_str(s: str) -> str:
     return json.dumps(s, ensure_ascii=False)  # a JSON string is a valid TOML basic string
 
 
+def block_path(file: str, scene: str | None) -> str:
+    """The mesh's path as a scene reads it: relative to the scene's folder (or to the current folder when
+    no scene is named), POSIX separators, so the block names no folder of this machine. A path with no
+    relative form (another drive) is kept as given."""
+    start = os.path.dirname(os.path.abspath(scene)) if scene else os.getcwd()
+    try:
+        rel = os.path.relpath(os.path.abspath(file), start)
+    except ValueError:
+        return file
+    return rel.replace(os.sep, "/")
+
+
 def body_block(file: str, units: str, name: str, group: str, args) -> str:
-    """A [[body]] block for a scene (mesh path as given: write it relative to the scene file)."""
+    """A [[body]] block for a scene; `file` as block_path made it."""
+    where = ("relative to the scene file's folder" if getattr(args, "scene", None) else
+             "relative to the current folder; a scene reads it relative to its own folder (mesh --scene SCENE)")
     lines = ["[[body]]", f"name = {_toml_str(name)}", f"group = {_toml_str(group)}", 'shape = "mesh"',
-             f"file = {_toml_str(file)}   # as given here; in a scene, relative to the scene file", f"file_units = {_toml_str(units)}"]
+             f"file = {_toml_str(file)}   # {where}", f"file_units = {_toml_str(units)}"]
     if args.material is not None:
         lines.append(f"material = {_toml_str(material_key(args.material))}")
     elif args.density is not None:
@@ -96,6 +112,9 @@ def body_block(file: str, units: str, name: str, group: str, args) -> str:
 def inspect(args) -> dict:
     """The facts as a dict (SI, plus the file-unit bounding box); raises InputError for a bad part."""
     path = args.file
+    units_stated = args.units is not None
+    if not units_stated:
+        args.units = "m"
     factor = si_factor(args.units, "length", None, "--units")
     density, density_source = _density(args)
     rep = mesh_report(path, args.units)
@@ -123,7 +142,9 @@ def inspect(args) -> dict:
         "per_unit_density": density is None, "inertia_com": inertia,
         "principal_moments": np.linalg.eigvalsh(0.5 * (inertia + inertia.T)),
         "warnings": unit_warnings(rep["extent"], args.units), "notes": rep["notes"],
-        "body_block": body_block(path, args.units, body_name, args.group, args),
+        "units_stated": units_stated,
+        "body_block": body_block(block_path(path, getattr(args, "scene", None)), args.units, body_name,
+                                 args.group, args),
     }
     return facts
 
@@ -150,7 +171,10 @@ def render(f: dict) -> str:
         [f"mass kg{per}", fmt(f["mass"], 8)],
         [f"principal moments kg m^2{per}", " ".join(fmt(x, 6) for x in f["principal_moments"])],
     ]
-    lines = [format_table(["", "value"], rows, align="ll"), "", f"inertia about the centre of mass, kg m^2{per}:"]
+    unit_note = (f"file units: {u} (as given by --units)" if f.get("units_stated", True) else
+                 "file units: m (the default, as in scenes: the file's numbers are read as metres; "
+                 "give --units mm, in, ... if they are not)")
+    lines = [format_table(["", "value"], rows, align="ll"), unit_note, "", f"inertia about the centre of mass, kg m^2{per}:"]
     lines += ["  " + "  ".join(f"{x + 0.0: .6e}" for x in row) for row in np.asarray(f["inertia_com"])]
     if not f["per_unit_density"]:
         lines.append(f"density: {f['density_source']}")

@@ -38,19 +38,84 @@ def print_json(obj) -> None:
     sys.stdout.write(dumps(obj) + "\n")
 
 
-def write_atomic(path: str | os.PathLike, data: str | bytes) -> None:
-    """Write a whole file: to a temporary file beside it, then rename over the target."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    mode = "wb" if isinstance(data, bytes) else "w"
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
+EXIT_NOT_REACHED = 3
+"""Exit code when the result was printed but an engine did not reach the asked tolerance."""
+
+
+def not_reached_exit(verb: str, reached: bool | None, what: str = "") -> int:
+    """0, or (after a one-line warning on stderr) EXIT_NOT_REACHED when `reached` is False."""
+    if reached is False:
+        sys.stderr.write(f"truepull {verb}: warning: tolerance not reached{' ' + what if what else ''}; "
+                         f"the result above carries the error estimates that were reached (exit {EXIT_NOT_REACHED})\n")
+        return EXIT_NOT_REACHED
+    return 0
+
+
+def current_umask() -> int:
+    """The process umask, read without changing it where the platform allows (/proc), else set and reset."""
     try:
+        with open("/proc/self/status", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("Umask:"):
+                    return int(line.split()[1], 8)
+    except (OSError, ValueError):
+        pass
+    mask = os.umask(0o022)  # no thread of ours creates files meanwhile (the read above is the usual path)
+    os.umask(mask)
+    return mask
+
+
+def file_mode() -> int:
+    """Mode a newly created file gets under the umask (0o666 & ~umask); mkstemp alone gives 0600."""
+    return 0o666 & ~current_umask()
+
+
+def folder_mode() -> int:
+    """Mode a newly created folder gets under the umask (0o777 & ~umask); mkdtemp alone gives 0700."""
+    return 0o777 & ~current_umask()
+
+
+def _input_error_for(path, exc: OSError):
+    from truepull.geometry.errors import InputError
+
+    why = exc.strerror or type(exc).__name__
+    return InputError(None, None, f"cannot write '{path}': {why}; choose a writable place with free space")
+
+
+def make_parents(path: Path) -> None:
+    """Create the folders above `path`, or raise InputError naming it (read-only, a file in the way...)."""
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise _input_error_for(path, exc) from None
+
+
+def write_atomic(path: str | os.PathLike, data: str | bytes) -> None:
+    """Write a whole file: to a temporary file beside it, then rename over the target.
+
+    The file gets the mode the umask gives new files. A place that cannot be written (read-only file
+    system, a file where a folder should be, a full disk) raises InputError naming the path and leaves
+    nothing behind."""
+    path = Path(path)
+    make_parents(path)
+    mode = "wb" if isinstance(data, bytes) else "w"
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
+    except OSError as exc:
+        raise _input_error_for(path, exc) from None
+    try:
+        try:
+            os.fchmod(fd, file_mode())
+        except (OSError, AttributeError):
+            pass
         with os.fdopen(fd, mode) as fh:
             fh.write(data)
         os.replace(tmp, path)
-    except BaseException:
+    except BaseException as exc:
         if os.path.exists(tmp):
             os.unlink(tmp)
+        if isinstance(exc, OSError):
+            raise _input_error_for(path, exc) from None
         raise
 
 

@@ -7,7 +7,7 @@ import math
 from pathlib import Path
 
 from truepull.cli import notation
-from truepull.cli.output import fmt, format_table, print_json
+from truepull.cli.output import fmt, not_reached_exit, format_table, print_json
 from truepull.geometry.errors import InputError
 from truepull.geometry.quantities import parse_scalar
 from truepull.geometry.scene import load_scene
@@ -252,4 +252,4 @@ def run(args) -> int:
         print_json(data)
     else:
         print(render(data))
-    return 0
+    return not_reached_exit("reduce", bool(data["reached"]))

@@ -20,6 +20,7 @@ import io
 import json
 import math
 import os
+import re
 import shutil
 import sys
 import tempfile
@@ -30,7 +31,8 @@ from pathlib import Path
 
 import numpy as np
 
-from truepull.cli.output import dumps, fmt, print_json, save_figure_atomic, to_jsonable, write_atomic
+from truepull.cli.output import (EXIT_NOT_REACHED, dumps, fmt, folder_mode, make_parents, not_reached_exit, print_json,
+                                 save_figure_atomic, to_jsonable, write_atomic)
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
 
@@ -135,6 +137,15 @@ def _need(module: str):
         raise
 
 
+def relative_path(path, start) -> str:
+    """`path` relative to the folder `start` (POSIX separators), or its bare name where none exists
+    (another drive)."""
+    try:
+        return Path(os.path.relpath(os.path.abspath(path), os.path.abspath(start))).as_posix()
+    except ValueError:
+        return Path(path).name
+
+
 @dataclass
 class Context:
     """What every section reads: the scene, where it came from, the options and the folder."""
@@ -147,6 +158,12 @@ class Context:
     comparisons: list = field(default_factory=list)
     fitted: tuple | None = None          # (scene, scene text, run fit) with the recorded run's [measurement]
     reduced: dict = field(default_factory=dict)   # section name -> reduce data
+
+    @property
+    def scene_shown(self) -> str:
+        """The scene's path as the report states it: relative to the report folder (so the report names
+        no folder of the machine it ran on), or the file name when no relative path exists."""
+        return relative_path(self.scene_path, Path(self.args.out))
 
     @property
     def lf(self) -> float:
@@ -297,7 +314,7 @@ def section_scan(ctx: Context) -> Section:
     result = scans.scan(scene, sweep, test=ctx.args.test, source=ctx.args.source, rtol=ctx.args.survey_rtol, workers=ctx.args.workers,
                         scene_path=ctx.scene_path, progress=False)
     png, caption = FIGURES["scan"]
-    write_png(str(ctx.folder / png), result, shown, "deg", f"{scene.title or scene.path}: turn of {group}")
+    write_png(str(ctx.folder / png), result, shown, "deg", f"{scene.title or Path(scene.path).name}: turn of {group}")
     write_atomic(ctx.folder / "scan.csv", csv_text(result, shown))
     s.figures = [png, "scan.csv"]
     s.reached = bool(result.reached)
@@ -513,7 +530,7 @@ def section_fit(ctx: Context) -> Section:
     png, caption = FIGURES["fit"]
     fit_cli.write_png(str(ctx.folder / png), fits, t, angle, fargs.time_unit, fargs.angle_unit, run)
     s.figures = [png]
-    s.data = {"data": str(ctx.args.data), "segments": [f.as_dict() for f in fits]}
+    s.data = {"data": relative_path(ctx.args.data, Path(ctx.args.out)), "segments": [f.as_dict() for f in fits]}
     if run is not None:
         s.data["run"] = run.as_dict()
     rows = [[k, f.position or "-", fmt(f.t_start), fmt(f.t_end), f.n_points, f"{fmt(f.period)} ± {fmt(f.u_period, 2)}",
@@ -575,12 +592,13 @@ def section_view(ctx: Context) -> Section:
     out, err = io.StringIO(), io.StringIO()
     with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
         code = view.run(vargs)
-    if code != 0 or not (ctx.folder / png).is_file():
+    if code not in (0, EXIT_NOT_REACHED) or not (ctx.folder / png).is_file():
         why = " ".join(err.getvalue().split()) or f"truepull view ended with code {code}"
         s.available, s.reason = False, f"the 3-D picture could not be drawn here: {why}"
         return s
     s.data = json.loads(out.getvalue())
     s.data["files"] = {"png": png}
+    s.data["scene"] = ctx.scene_shown
     s.figures = [png]
     where = f" at position {position}" if position else ""
     s.markdown = (f"The bodies{where} in their group colours, the field of `{ctx.args.source}` on a plane through "
@@ -619,6 +637,38 @@ def check_target(out: Path, force: bool, inputs) -> None:
         if not ok:
             raise InputError(str(out), "--out", "holds files that are not a truepull report; not replacing it, "
                                                 "even with --force")
+
+
+TMP_INFIX = ".tmp-"
+"""A report is built in `.NAME.tmp-XXXXXXXX` beside its target (mkdtemp's 8 random characters)."""
+
+STALE_AFTER = 15 * 60.0
+"""Seconds after which a leftover build folder of ours (a killed run's) is removed by the next report."""
+
+_STALE_NAME = re.compile(r"^\..+\.(tmp|old)-[A-Za-z0-9_]{8}$")
+
+
+def clean_stale_folders(parent: Path, older_than: float = STALE_AFTER) -> list[Path]:
+    """Remove hidden build folders `.NAME.tmp-XXXXXXXX` / `.NAME.old-XXXXXXXX` (our exact naming) in
+    `parent` untouched for more than `older_than` seconds: what a killed report leaves behind.
+    Folders of a run still going are younger and kept; anything else is never touched."""
+    removed = []
+    now = time.time()
+    try:
+        entries = list(os.scandir(parent))
+    except OSError:
+        return removed
+    for e in entries:
+        if not _STALE_NAME.match(e.name):
+            continue
+        try:
+            if not e.is_dir(follow_symlinks=False) or now - e.stat(follow_symlinks=False).st_mtime <= older_than:
+                continue
+        except OSError:
+            continue
+        shutil.rmtree(e.path, ignore_errors=True)
+        removed.append(Path(e.path))
+    return removed
 
 
 def replace_folder(tmp: Path, out: Path) -> None:
@@ -711,7 +761,7 @@ def summary(ctx: Context, sections: list[Section], started: float) -> dict:
     return {
         "tool": {"name": "truepull", "version": _version()},
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
-        "scene": {"path": ctx.scene_path, "title": ctx.scene.title,
+        "scene": {"path": ctx.scene_shown, "title": ctx.scene.title,
                   "sha256": hashlib.sha256(ctx.scene_text.encode("utf-8")).hexdigest()},
         "rtol": ctx.args.rtol, "survey_rtol": ctx.args.survey_rtol,
         "tolerance_reached": all(reached) if reached else None,
@@ -726,7 +776,7 @@ def markdown(ctx: Context, sections: list[Section], info: dict) -> str:
     scene = ctx.scene
     reached = info["tolerance_reached"]
     lines = [f"# truepull report: {scene.title or Path(ctx.scene_path).name}", "",
-             f"- scene: `{ctx.scene_path}` (sha256 {info['scene']['sha256'][:16]}...)",
+             f"- scene: `{ctx.scene_shown}` (sha256 {info['scene']['sha256'][:16]}...)",
              f"- tool: truepull {info['tool']['version']}; written {info['created']} in {info['seconds']:.1f} s",
              f"- engine tolerance: {ctx.args.rtol:g} for compare and the reduction, {ctx.args.survey_rtol:g} for the "
              f"scan, the bias ranking and the 3-D field; reached: "
@@ -771,9 +821,15 @@ def run(args) -> int:
     scene_text = Path(scene_path).read_text(encoding="utf-8")
     out = Path(args.out)
     check_target(out, args.force, [scene_path, args.data])
-    out.parent.mkdir(parents=True, exist_ok=True)
+    make_parents(out)
+    clean_stale_folders(out.parent)
     started = time.perf_counter()
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.tmp-", dir=out.parent))
+    try:
+        tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}{TMP_INFIX}", dir=out.parent))
+        os.chmod(tmp, folder_mode())
+    except OSError as exc:
+        raise InputError(None, None, f"cannot write the report folder '{out}': {exc.strerror or exc}; "
+                         "choose a writable place with free space") from None
     try:
         ctx = Context(scene, scene_path, scene_text, args, tmp)
         sections = build(ctx)
@@ -784,8 +840,11 @@ def run(args) -> int:
         write_atomic(tmp / MARKER, dumps(info))
         check_target(out, args.force, [])  # nothing new appeared there meanwhile
         replace_folder(tmp, out)
-    except BaseException:
+    except BaseException as exc:
         shutil.rmtree(tmp, ignore_errors=True)
+        if isinstance(exc, OSError):
+            raise InputError(None, None, f"cannot write the report folder '{out}': {exc.strerror or exc}; "
+                             "choose a writable place with free space") from None
         raise
     if args.json:
         print_json(dict(info, out=str(out)))
@@ -794,4 +853,4 @@ def run(args) -> int:
         print(f"tolerance reached: {'yes' if info['tolerance_reached'] else 'no' if info['tolerance_reached'] is False else '-'}")
         for m in info["not_included"]:
             print(f"not included: {m['section']}: {m['reason']}")
-    return 0
+    return not_reached_exit("report", info["tolerance_reached"])

@@ -14,7 +14,7 @@ import sys
 
 import numpy as np
 
-from truepull.cli.output import print_json, save_figure_atomic, write_atomic
+from truepull.cli.output import not_reached_exit, print_json, save_figure_atomic, write_atomic
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
 from truepull.integrate.scans import DEFAULT_CHECKS, Sweep, parse_range, scan
@@ -75,14 +75,40 @@ def csv_text(result, shown) -> str:
     return buf.getvalue()
 
 
+def meeting_spans(x, met) -> list[tuple[float, float]]:
+    """(lo, hi) ranges of the sweep where bodies meet: each run of meeting values, widened halfway to
+    the clear neighbours on either side (where exactly the bodies first meet is between them)."""
+    x = np.asarray(x, float)
+    met = np.asarray(met, bool)
+    spans = []
+    k = 0
+    while k < len(x):
+        if not met[k]:
+            k += 1
+            continue
+        j = k
+        while j + 1 < len(x) and met[j + 1]:
+            j += 1
+        lo = 0.5 * (x[k - 1] + x[k]) if k > 0 else x[k]
+        hi = 0.5 * (x[j] + x[j + 1]) if j + 1 < len(x) else x[j]
+        spans.append((min(lo, hi), max(lo, hi)))
+        k = j + 1
+    return spans
+
+
 def write_png(path: str, result, shown, unit: str, title: str) -> None:
+    """Torque, stiffness and their ratio to the point model across the sweep. Where bodies meet (an
+    overlap row) no curve is drawn, the point model's included (a gap, not a line through the
+    impossible region), and the region is shaded."""
     from matplotlib.figure import Figure
 
     x = np.asarray(shown, float)
+    met = np.array([bool(r.overlap) for r in result.rows])
     exact = np.array([r.exact_torque_axis for r in result.rows])
-    point = np.array([r.point_torque_axis for r in result.rows])
+    point = np.where(met, np.nan, np.array([r.point_torque_axis for r in result.rows]))
     stiff = np.array([r.exact_stiffness_axis for r in result.rows])
-    point_stiff = np.array([r.point_stiffness_axis for r in result.rows])
+    point_stiff = np.where(met, np.nan, np.array([r.point_stiffness_axis for r in result.rows]))
+    exact, stiff = np.where(met, np.nan, exact), np.where(met, np.nan, stiff)
     big = np.nanmax(np.abs(point)) if np.any(np.isfinite(point)) else 0.0
     with np.errstate(divide="ignore", invalid="ignore"):
         # near the point model's zeros the ratio says nothing; leave those values out
@@ -103,8 +129,13 @@ def write_png(path: str, result, shown, unit: str, title: str) -> None:
     ax[2].set_title("ratio where the point torque exceeds 5% of its largest value", fontsize=9)
     what = "turn" if result.sweep.kind == "turn" else f"shift along {result.sweep.direction}"
     ax[2].set_xlabel(f"{what} of {result.sweep.group} ({unit})")
+    spans = meeting_spans(x, met)
     for a in ax:
         a.grid(True, alpha=0.3)
+        for k, (lo, hi) in enumerate(spans):
+            a.axvspan(lo, hi, color="0.6", alpha=0.35, lw=0, label="bodies meet" if k == 0 and a is ax[0] else None)
+    if spans:
+        ax[0].legend()
     save_figure_atomic(fig, path, dpi=110)
 
 
@@ -139,4 +170,4 @@ def run(args) -> int:
         sys.stderr.write(f"truepull scan: {note}\n")
     if args.png and not args.json:
         sys.stderr.write(f"truepull scan: wrote {args.png}\n")
-    return 0
+    return not_reached_exit("scan", result.reached)

@@ -20,7 +20,7 @@ import numpy as np
 
 from truepull.cli.field_plane import PLANES, default_plane, field_polydata, sample_field
 from truepull.cli.offscreen import RenderingUnavailable, have_display, prepare_offscreen
-from truepull.cli.output import fmt, print_json, write_atomic
+from truepull.cli.output import fmt, not_reached_exit, print_json, write_atomic
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
 
@@ -140,7 +140,7 @@ def run(args) -> int:
               f"{fmt(comparison.exact.torque_axis, 6)} N m")
         for kind, path in files.items():
             print(f"wrote {path}")
-    return 0
+    return not_reached_exit("view", bool(comparison.reached))
 
 
 def _render(args, scene, placed, surfaces, fp, comparison, centre, window: bool) -> dict:

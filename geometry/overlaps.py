@@ -149,15 +149,60 @@ def bodies_overlap(a, b, touch_rtol: float = TOUCH_RTOL) -> str | None:
     return None
 
 
-def find_overlaps(bodies, touch_rtol: float = TOUCH_RTOL) -> list[tuple[str, str, str]]:
-    """Every pair (name_a, name_b, kind) with kind 'overlap' or 'touch', in body order."""
+def candidate_pairs(bodies, touch_rtol: float = TOUCH_RTOL, between=None) -> list[tuple[int, int]]:
+    """Index pairs (i < j, in body order) whose bounding spheres meet (within the touch tolerance): the
+    only pairs that can overlap or touch. A k-d tree (scipy.spatial.cKDTree) over the centres finds
+    them in about N log N rather than N^2; bodies much larger than the typical one are compared with
+    all others directly, so one big body does not widen the tree's search for every small one.
+    `between` (a boolean mask) keeps only pairs with one body inside it and one outside."""
+    from scipy.spatial import cKDTree
+
+    bodies = list(bodies)
+    n = len(bodies)
+    if n < 2:
+        return []
+    spheres = [b.bounding_sphere() for b in bodies]
+    c = np.array([s[0] for s in spheres], float)
+    r = np.array([s[1] for s in spheres], float)
+    tol = touch_rtol * np.maximum(r, 1e-300)
+    big = r > 4.0 * max(float(np.median(r)), 1e-300)
+    found = []
+    small, large = np.nonzero(~big)[0], np.nonzero(big)[0]
+    grow = 1 + 4 * touch_rtol
+    for idx in (small, large):  # pairs within each class
+        if len(idx) > 1:
+            reach = 2.0 * float(r[idx].max()) * grow
+            ij = cKDTree(c[idx]).query_pairs(reach, output_type="ndarray")
+            if len(ij):
+                found.append(idx[ij])
+    if len(small) and len(large):  # a large body against the small ones near it
+        tree = cKDTree(c[small])
+        hits = tree.query_ball_point(c[large], (r[large] + float(r[small].max())) * grow)
+        for i, js in zip(large, hits):
+            if js:
+                found.append(np.column_stack([np.full(len(js), i), small[np.asarray(js, int)]]))
+    if not found:
+        return []
+    p = np.vstack(found)
+    p = np.unique(np.column_stack([p.min(axis=1), p.max(axis=1)]), axis=0)
+    d = np.linalg.norm(c[p[:, 0]] - c[p[:, 1]], axis=1)
+    keep = d <= r[p[:, 0]] + r[p[:, 1]] + np.maximum(tol[p[:, 0]], tol[p[:, 1]])
+    if between is not None:
+        m = np.asarray(between, bool)
+        keep &= m[p[:, 0]] != m[p[:, 1]]
+    return [tuple(x) for x in p[keep].tolist()]
+
+
+def find_overlaps(bodies, touch_rtol: float = TOUCH_RTOL, between=None) -> list[tuple[str, str, str]]:
+    """Every pair (name_a, name_b, kind) with kind 'overlap' or 'touch', in body order. Only pairs whose
+    bounding spheres meet are examined (candidate_pairs); `between` as there."""
     bodies = list(bodies)
     out = []
-    for i, a in enumerate(bodies):
-        for b in bodies[i + 1:]:
-            kind = bodies_overlap(a, b, touch_rtol)
-            if kind is not None:
-                out.append((a.name, b.name, kind))
+    for i, j in candidate_pairs(bodies, touch_rtol, between):
+        a, b = bodies[i], bodies[j]
+        kind = bodies_overlap(a, b, touch_rtol)
+        if kind is not None:
+            out.append((a.name, b.name, kind))
     return out
 
 
@@ -197,7 +242,9 @@ def stray_holes(bodies, samples: int = 4096) -> list[tuple[str, float]]:
     for h in bodies:
         if not h.is_hole or isinstance(h.shape, Point):
             continue
-        hosts = [b for b in bodies if b.group == h.group and not b.is_hole]
+        ch, rh = h.bounding_sphere()
+        hosts = [b for b in bodies if b.group == h.group and not b.is_hole
+                 and np.linalg.norm(b.bounding_sphere()[0] - ch) <= b.bounding_sphere()[1] + rh]
         frac = hole_outside_fraction(h, hosts, samples)
         if frac > 0:
             out.append((h.name, frac))

@@ -101,7 +101,17 @@ class Measured:
 def si_factor(unit: str, kind: str, file=None, key=None) -> float:
     """Factor that takes a number in `unit` to SI for quantity `kind`; checks the dimension.
     An angle unit must be a true angle unit (rad, deg, arcmin, arcsec, mrad, urad, turn/revolution,
-    grad), not just any dimensionless ratio such as "mm/m" or "deg**2"."""
+    grad), not just any dimensionless ratio such as "mm/m" or "deg**2".
+    Factors are remembered per (unit, kind): a scene of thousands of bodies parses each unit once."""
+    try:
+        return _known_factor(unit, kind)
+    except InputError as exc:
+        raise InputError(file, key, exc.reason) from None
+
+
+@lru_cache(maxsize=1024)
+def _known_factor(unit: str, kind: str) -> float:
+    file = key = None
     si_unit, dim = KINDS[kind]
     text = unit.strip()
     if text in ("", "1") and kind in ("dimensionless",):

@@ -11,6 +11,11 @@ elsewhere), never by plain fork: a process that has run a numba kernel on the GN
 layer cannot safely fork. As always with these start methods, a script that calls map_parallel must
 keep its top-level work under `if __name__ == "__main__":`. The pool is started once per worker count and kept for later calls, so its
 start-up cost is paid once per run. Each worker limits numba to its share of the cores.
+
+Workers ignore SIGINT (Ctrl-C reaches the whole process group; only the parent reports it, and it
+stops the workers), and end within about WATCHDOG_SECONDS when the parent process dies, even by
+SIGKILL: on Linux the kernel sends them SIGKILL when the process that forked them goes
+(prctl PR_SET_PDEATHSIG), and everywhere a watchdog thread in each worker polls the parent's pid.
 """
 
 from __future__ import annotations
@@ -37,6 +42,9 @@ CHUNKS_PER_WORKER = 4
 
 # modules the forkserver imports once, so that each worker starts with them already loaded
 _PRELOAD = ["numpy", "scipy", "numba", "truepull.geometry.errors", "truepull.integrate.executor"]
+
+# seconds between a worker's checks that the process that started the pool is still alive
+WATCHDOG_SECONDS = 0.5
 
 _pools: dict[int, ProcessPoolExecutor] = {}
 _pools_lock = threading.Lock()
@@ -115,6 +123,34 @@ def _run_chunk(func, chunk: list):
         return [func(item) for item in chunk]
     except InputError as exc:
         return _RaisedInputError(exc.file, exc.key, exc.reason)
+    finally:
+        _forget_numba_lock()
+
+
+_forgotten: set = set()
+
+
+def _forget_numba_lock() -> None:
+    """Worker side: numba's thread start-up makes a named multiprocessing lock that only this process
+    uses; unlink it now and take it off the resource tracker's list, so a worker killed with its parent
+    leaves nothing for the tracker to warn about ("leaked semaphore objects")."""
+    mod = sys.modules.get("numba.np.ufunc.parallel")
+    lock = getattr(mod, "_backend_init_process_lock", None) if mod is not None else None
+    name = getattr(getattr(lock, "_semlock", None), "name", None)
+    if not name or name in _forgotten:
+        return
+    _forgotten.add(name)
+    try:
+        from multiprocessing import resource_tracker, util
+        from _multiprocessing import sem_unlink
+
+        for f in list(getattr(util, "_finalizer_registry", {}).values()):
+            if getattr(f, "_args", None) == (name,):
+                f.cancel()
+        sem_unlink(name)
+        resource_tracker.unregister(name, "semaphore")
+    except Exception:  # an unusual setup: at worst the tracker warns at exit
+        pass
 
 
 def _unpack(result):
@@ -147,8 +183,62 @@ def _map_serial(func, items, progress, desc):
 # local process pool
 
 
+def _set_parent_death_signal() -> None:
+    """Linux: ask the kernel to SIGKILL this process when its parent (the forkserver, which itself ends
+    when the main process goes) dies. Elsewhere, or if it fails, the watchdog thread does the job."""
+    if not sys.platform.startswith("linux"):
+        return
+    try:
+        import ctypes
+        import signal
+
+        libc = ctypes.CDLL(None, use_errno=True)
+        PR_SET_PDEATHSIG = 1
+        libc.prctl(PR_SET_PDEATHSIG, int(signal.SIGKILL), 0, 0, 0)
+    except Exception:  # no libc prctl: the watchdog remains
+        pass
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # exists (owned by someone else: our parent's pid was reused)
+        return False
+    return True
+
+
+def _watch_parent(main_pid: int, parent_pid: int) -> None:
+    """Watchdog thread: end this worker at once when the main process or our parent is gone."""
+    import time
+
+    while True:
+        time.sleep(WATCHDOG_SECONDS)
+        if os.getppid() != parent_pid or not _alive(main_pid):
+            os._exit(1)
+
+
+def _start_worker(threads: int, main_pid: int) -> None:
+    """Pool initializer: ignore SIGINT, die with the parent, give numba this worker's share of the cores."""
+    import signal
+
+    try:
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+    except (ValueError, OSError):
+        pass
+    _set_parent_death_signal()
+    parent = os.getppid()
+    if parent == 1 or not _alive(main_pid):  # the parent went before we could watch it
+        os._exit(1)
+    threading.Thread(target=_watch_parent, args=(main_pid, parent), name="truepull-parent-watchdog",
+                     daemon=True).start()
+    _limit_worker_threads(threads)
+    _forget_numba_lock()
+
+
 def _limit_worker_threads(threads: int) -> None:
-    """Pool initializer: give numba in this worker its share of the cores."""
+    """Give numba in this worker its share of the cores."""
     os.environ.setdefault("NUMBA_NUM_THREADS", str(threads))
     if "numba" in sys.modules:
         try:
@@ -168,13 +258,30 @@ def _context():
     return multiprocessing.get_context("spawn")
 
 
+def _start_helpers(ctx) -> None:
+    """Start the forkserver (and the resource tracker) with SIGINT ignored, which they inherit: a
+    Ctrl-C while the forkserver imports its preload modules would otherwise print its traceback."""
+    if ctx.get_start_method() != "forkserver" or threading.current_thread() is not threading.main_thread():
+        return
+    import signal
+    from multiprocessing import forkserver, resource_tracker
+
+    old = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        resource_tracker.ensure_running()
+        forkserver.ensure_running()
+    finally:
+        signal.signal(signal.SIGINT, old)
+
+
 def _pool(n_workers: int) -> ProcessPoolExecutor:
     with _pools_lock:
         pool = _pools.get(n_workers)
         if pool is None or getattr(pool, "_broken", False):
+            _start_helpers(_context())
             threads = max(1, (os.cpu_count() or 1) // n_workers)
             pool = ProcessPoolExecutor(max_workers=n_workers, mp_context=_context(),
-                                       initializer=_limit_worker_threads, initargs=(threads,))
+                                       initializer=_start_worker, initargs=(threads, os.getpid()))
             _pools[n_workers] = pool
         return pool
 
@@ -184,6 +291,50 @@ def _drop_pool(n_workers: int, pool: ProcessPoolExecutor) -> None:
         if _pools.get(n_workers) is pool:
             del _pools[n_workers]
     pool.shutdown(wait=False, cancel_futures=True)
+
+
+def _stop_pool(n_workers: int, pool: ProcessPoolExecutor) -> None:
+    """Interrupted: end this pool's workers now (they ignore SIGINT) rather than let them finish."""
+    with _pools_lock:
+        if _pools.get(n_workers) is pool:
+            del _pools[n_workers]
+    for proc in list((getattr(pool, "_processes", None) or {}).values()):
+        try:
+            proc.kill()
+        except Exception:
+            pass
+    # no cancel_futures here: the pool's own thread fails the pending futures as it finds the workers
+    # gone, and a future cancelled meanwhile makes that thread print an error (Python 3.11)
+    pool.shutdown(wait=True)
+    # release the pool's queues now, so their semaphores are unregistered before exit (else the resource
+    # tracker warns of "leaked semaphore objects" on the way out)
+    for name in ("_call_queue", "_result_queue", "_executor_manager_thread_wakeup"):
+        if hasattr(pool, name):
+            setattr(pool, name, None)
+    import gc
+
+    gc.collect()
+
+
+class _sigint_held:
+    """Hold SIGINT back (delivered on leaving) while worker processes are being started, so every
+    started worker is known to the pool when the KeyboardInterrupt arrives. Main thread, POSIX only."""
+
+    def __enter__(self):
+        import signal
+
+        self._held = False
+        if hasattr(signal, "pthread_sigmask") and threading.current_thread() is threading.main_thread():
+            signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+            self._held = True
+        return self
+
+    def __exit__(self, *exc):
+        if self._held:
+            import signal
+
+            signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT})
+        return False
 
 
 def _check_picklable(func) -> None:
@@ -202,7 +353,8 @@ def _map_pool(func, items, n_workers, progress, desc):
     pool = _pool(n_workers)
     futures = {}
     try:
-        futures = {pool.submit(_run_chunk, func, chunk): k for k, chunk in enumerate(chunks)}
+        with _sigint_held():  # a Ctrl-C while workers start would leave one we cannot stop
+            futures = {pool.submit(_run_chunk, func, chunk): k for k, chunk in enumerate(chunks)}
         results: list = [None] * len(chunks)
         pending = set(futures)
         with _bar(len(items), progress, desc) as bar:
@@ -216,9 +368,12 @@ def _map_pool(func, items, n_workers, progress, desc):
         _drop_pool(n_workers, pool)
         raise RuntimeError("a worker process stopped abruptly: it ran out of memory or was killed, "
                            "or the main script lacks an `if __name__ == '__main__':` guard") from None
-    except BaseException:
-        for fut in futures:
-            fut.cancel()
+    except BaseException as exc:
+        if isinstance(exc, KeyboardInterrupt):
+            _stop_pool(n_workers, pool)
+        else:
+            for fut in futures:
+                fut.cancel()
         raise
     return [value for chunk_result in results for value in chunk_result]
 

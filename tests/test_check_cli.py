@@ -169,3 +169,17 @@ def test_subprocess_exit_codes(tmp_path):
     r = subprocess.run([sys.executable, "-m", "truepull.cli.main", "check", str(tmp_path / "none.toml")],
                        capture_output=True, text=True, timeout=300)
     assert r.returncode == 2 and r.stderr.count("\n") == 1
+
+
+def test_density_in_another_unit_is_named(tmp_path, capsys):
+    from scene_fixtures import DENSITY_IN_WRONG_UNIT
+
+    code, out, err = run_check(tmp_path, DENSITY_IN_WRONG_UNIT, capsys=capsys)
+    assert code == 0
+    assert "copper: density 8.96e+06 kg/m^3 is not a solid's" in out and "fits kg/m^3, not g/cm^3" in out
+
+
+def test_no_false_plausibility_warnings_on_a_plain_scene(tmp_path, capsys):
+    code, out, err = run_check(tmp_path, TWO_BOBS, "--json", capsys=capsys)
+    warnings = json.loads(out)["warnings"]
+    assert not [w for w in warnings if "not a solid's" in w or "file_units" in w or "on the way" in w]

@@ -190,3 +190,98 @@ def test_kept_pools_can_be_stopped_and_restarted():
     assert map_parallel(cube, range(9), workers=2) == [x ** 3 for x in range(9)]
     executor.shutdown_pools()
     assert map_parallel(cube, range(9), workers=2) == [x ** 3 for x in range(9)]
+
+
+# ---------------------------------------------------------------------------------------------
+# workers end with their parent and leave Ctrl-C to it
+
+_PARENT_SCRIPT = r"""
+import os, sys, time
+from truepull.integrate.executor import map_parallel
+
+def slow(x):
+    print("worker", os.getpid(), flush=True)
+    time.sleep(60)
+    return x
+
+def run():
+    try:
+        map_parallel(slow, [1, 2, 3, 4], workers=2)
+    except KeyboardInterrupt:  # as cli/main.py does
+        sys.stderr.write("interrupted\n")
+        return 130
+
+
+if __name__ == "__main__":
+    raise SystemExit(run())
+"""
+
+
+def _run_parent(tmp_path):
+    import subprocess
+
+    script = tmp_path / "parent.py"
+    script.write_text(_PARENT_SCRIPT)
+    proc = subprocess.Popen([sys.executable, str(script)], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                            text=True, start_new_session=True, cwd=tmp_path)
+    line = proc.stdout.readline()  # the first task has started in a worker
+    assert line.startswith("worker"), proc.stderr.read()
+    time.sleep(0.5)
+    pids = _session(proc.pid) - {proc.pid}  # the forkserver, the workers, the resource tracker
+    assert int(line.split()[1]) in pids
+    return proc, pids
+
+
+def _session(sid: int) -> set[int]:
+    """Live processes of session `sid` (from /proc)."""
+    out = set()
+    for entry in os.listdir("/proc"):
+        if entry.isdigit():
+            try:
+                with open(f"/proc/{entry}/stat") as fh:
+                    fields = fh.read().rsplit(")", 1)[1].split()
+            except OSError:
+                continue
+            if fields[0] != "Z" and int(fields[3]) == sid:
+                out.add(int(entry))
+    return out
+
+
+def _gone_within(pids, seconds: float) -> bool:
+    deadline = time.monotonic() + seconds
+    while time.monotonic() < deadline:
+        if not any(_exists(p) for p in pids):
+            return True
+        time.sleep(0.1)
+    return False
+
+
+def _exists(pid: int) -> bool:
+    try:
+        with open(f"/proc/{pid}/stat") as fh:
+            return fh.read().split(")")[-1].split()[0] != "Z"  # a zombie has ended
+    except FileNotFoundError:
+        return False
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="reads /proc")
+def test_workers_end_promptly_when_the_parent_is_killed(tmp_path):
+    import signal
+
+    proc, pids = _run_parent(tmp_path)
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait(timeout=10)
+    # the tasks sleep 60 s: without the parent-death signal and the watchdog they would live that long
+    assert _gone_within(pids, 5.0)
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="reads /proc")
+def test_sigint_to_the_group_reaches_only_the_parent(tmp_path):
+    import signal
+
+    proc, pids = _run_parent(tmp_path)
+    os.killpg(proc.pid, signal.SIGINT)
+    _, err = proc.communicate(timeout=30)
+    assert proc.returncode == 130
+    assert err == "interrupted\n"  # no worker's traceback, no thread's, no resource-tracker warning
+    assert _gone_within(pids, 5.0)  # the parent stopped its workers (they ignore SIGINT)

@@ -115,12 +115,12 @@ def test_body_block_loads_into_a_scene(tmp_path, capsys):
     parts = tmp_path / "parts"
     parts.mkdir()
     trimesh.creation.box(extents=(10.0, 20.0, 30.0)).export(parts / "weight.stl")
+    scene = tmp_path / "scene.toml"
     code, out, err = run(["mesh", str(parts / "weight.stl"), "--units", "mm", "--density", "19.3 g/cm^3",
-                          "--name", "weight", "--group", "attractor"], capsys)
+                          "--name", "weight", "--group", "attractor", "--scene", str(scene)], capsys)
     assert code == 0, err
     block = out[out.index("[[body]]"):]
-    block = block.replace(json.dumps(str(parts / "weight.stl")), '"parts/weight.stl"')
-    scene = tmp_path / "scene.toml"
+    assert 'file = "parts/weight.stl"' in block and str(tmp_path) not in block  # relative, no machine folder
     scene.write_text('[units]\nlength = "mm"\n' + block)
     body = load_scene(scene).body("weight")
     assert body.group == "attractor" and body.shape.kind == "mesh"
@@ -177,3 +177,22 @@ def test_bad_options_exit_2(tmp_path, capsys, extra, key):
     trimesh.creation.box(extents=(0.1, 0.1, 0.1)).export(path)
     code, out, err = run(["mesh", str(path), *extra], capsys)
     assert code == 2 and out == "" and key in err and len(err.strip().splitlines()) == 1
+
+
+def test_body_block_path_is_relative_to_the_current_folder_without_scene(tmp_path, capsys, monkeypatch):
+    parts = tmp_path / "parts"
+    parts.mkdir()
+    trimesh.creation.box(extents=(0.01, 0.02, 0.03)).export(parts / "w.stl")
+    monkeypatch.chdir(tmp_path)
+    code, out, err = run(["mesh", str(parts / "w.stl")], capsys)
+    assert code == 0, err
+    block = out[out.index("[[body]]"):]
+    assert 'file = "parts/w.stl"' in block and str(tmp_path) not in block
+
+
+def test_default_unit_is_stated(tmp_path, capsys):
+    trimesh.creation.box(extents=(0.01, 0.02, 0.03)).export(tmp_path / "w.stl")
+    code, out, err = run(["mesh", str(tmp_path / "w.stl")], capsys)
+    assert code == 0 and "file units: m (the default" in out
+    code, out, err = run(["mesh", str(tmp_path / "w.stl"), "--units", "mm"], capsys)
+    assert "file units: mm (as given by --units)" in out

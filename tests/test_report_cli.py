@@ -283,6 +283,8 @@ def test_other_groups_are_not_in_the_interaction(full_report):
 
 
 def test_no_scene_runs_the_built_in_demo(plain, tmp_path, monkeypatch):
+    import os
+
     import truepull.shapes
 
     scene = plain
@@ -290,7 +292,7 @@ def test_no_scene_runs_the_built_in_demo(plain, tmp_path, monkeypatch):
     out = tmp_path / "r"
     assert main(["report", "--out", str(out), "--no-bias", "--no-view", "--workers", "1", "--turn=-50:50:50"]) == 0
     info = _load(out)
-    assert info["scene"]["path"] == str(scene)
+    assert info["scene"]["path"] == os.path.relpath(scene, out).replace(os.sep, "/")  # relative to the report
     assert "reduce" in {m["section"] for m in info["not_included"]}
     assert "reduce" not in info["sections"]
 
@@ -387,3 +389,19 @@ def test_report_reduces_the_run_beside_the_stated_measurement(full_report):
     # the difference in combined standard uncertainties, sqrt(u1^2 + u2^2) (JCGM 100 for independent values)
     assert math.isclose(cmp["in_combined_u"], (run["G"] - stated["G"]) / math.hypot(run["u_G"], stated["u_G"]))
     assert "G from the recorded run" in (out / "report.md").read_text()
+
+
+def test_report_names_no_folder_of_this_machine_and_follows_the_umask(full_report, spheres):
+    import os
+    import stat
+
+    code, out = full_report
+    info = _load(out)
+    assert info["scene"]["path"] == os.path.relpath(spheres, out).replace(os.sep, "/")
+    text = (out / "report.md").read_text() + (out / "report.json").read_text()
+    assert str(spheres.parent) not in text and str(out) not in text
+    mask = os.umask(0)
+    os.umask(mask)
+    assert stat.S_IMODE(out.stat().st_mode) == 0o777 & ~mask  # POSIX mkdir(2): 0777 & ~umask
+    for p in out.iterdir():
+        assert stat.S_IMODE(p.stat().st_mode) == 0o666 & ~mask, p.name  # open(2): 0666 & ~umask

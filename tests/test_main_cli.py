@@ -1,0 +1,66 @@
+"""cli/main.py: exit codes (documented in --help): 3 for a tolerance not reached, 130 on Ctrl-C."""
+
+import os
+import signal
+import subprocess
+import sys
+import time
+
+from truepull.cli.main import EXIT_CODES, main
+
+from scene_fixtures import PATH_THROUGH_BOB
+
+CURVED_PAIR = """
+[units]
+length = "mm"
+[[body]]
+name = "bob"
+group = "pendulum"
+shape = "sphere"
+radius = 10
+material = "tungsten"
+at = [50, 0, 0]
+[[body]]
+name = "big"
+group = "attractor"
+shape = "cylinder"
+radius = 40
+length = 80
+density = 8000
+at = [0, 120, 0]
+"""
+
+
+def test_codes_are_in_the_help(capsys):
+    for code in ("0 ", "1 ", "2 ", "3 ", "130"):
+        assert f"  {code}" in EXIT_CODES
+    try:
+        main(["--help"])
+    except SystemExit:
+        pass
+    assert "130  interrupted" in capsys.readouterr().out
+
+
+def test_unreached_tolerance_exits_3_and_still_prints(tmp_path, capsys):
+    scene = tmp_path / "s.toml"
+    scene.write_text(CURVED_PAIR)
+    # 1e-15 is below what double precision quadrature of a cylinder can reach (rounding ~1e-16 per term)
+    code = main(["compare", str(scene), "--rtol", "1e-15"])
+    out, err = capsys.readouterr()
+    assert code == 3
+    assert "torque about axis" in out and "NOT reached" in out
+    assert err.count("\n") == 1 and "tolerance not reached" in err
+    assert main(["compare", str(scene), "--rtol", "1e-6"]) == 0
+
+
+def test_ctrl_c_exits_130_quietly(tmp_path):
+    scene = tmp_path / "s.toml"
+    scene.write_text(PATH_THROUGH_BOB)
+    proc = subprocess.Popen([sys.executable, "-m", "truepull.cli.main", "scan", str(scene), "--turn=-180:180:1",
+                             "--workers", "2"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            start_new_session=True)
+    time.sleep(4.0)
+    os.killpg(proc.pid, signal.SIGINT)  # as a terminal's Ctrl-C does: the whole group
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130, err
+    assert err.endswith("truepull: interrupted\n") and "Traceback" not in err and "Warning" not in err, err
