@@ -53,13 +53,33 @@ def test_unreached_tolerance_exits_3_and_still_prints(tmp_path, capsys):
     assert main(["compare", str(scene), "--rtol", "1e-6"]) == 0
 
 
+def _children(pid: int) -> list[int]:
+    """Process ids whose parent is `pid` (Linux /proc; empty elsewhere)."""
+    out = []
+    for entry in os.listdir("/proc") if os.path.isdir("/proc") else []:
+        if entry.isdigit():
+            try:
+                with open(f"/proc/{entry}/stat") as fh:
+                    fields = fh.read().rsplit(")", 1)[1].split()
+            except OSError:
+                continue
+            if int(fields[1]) == pid:
+                out.append(int(entry))
+    return out
+
+
 def test_ctrl_c_exits_130_quietly(tmp_path):
     scene = tmp_path / "s.toml"
     scene.write_text(PATH_THROUGH_BOB)
-    proc = subprocess.Popen([sys.executable, "-m", "truepull.cli.main", "scan", str(scene), "--turn=-180:180:1",
+    # a scan far too long to finish (7,201 directly integrated turns), interrupted once its workers run
+    proc = subprocess.Popen([sys.executable, "-m", "truepull.cli.main", "scan", str(scene), "--turn=-180:180:0.05",
                              "--workers", "2"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
                             start_new_session=True)
-    time.sleep(4.0)
+    deadline = time.monotonic() + 60.0
+    while time.monotonic() < deadline and proc.poll() is None and not _children(proc.pid):
+        time.sleep(0.2)
+    time.sleep(2.0)
+    assert proc.poll() is None, "the scan ended before it could be interrupted"
     os.killpg(proc.pid, signal.SIGINT)  # as a terminal's Ctrl-C does: the whole group
     _, err = proc.communicate(timeout=60)
     assert proc.returncode == 130, err
