@@ -125,20 +125,23 @@ class SourceField:
         """A closed-form result: no refinement difference, rounding `rtol` (scalar or per point) of the size."""
         return (U, g, np.zeros_like(U), np.zeros_like(g), rtol * np.abs(U), rtol * np.linalg.norm(g, axis=1))
 
-    def rounding_bounds(self, points):
+    def rounding_bounds(self, points, U=None, g=None, T=None):
         """Absolute error bounds (eU (N,) J/kg, eg (N,) m/s^2, eT (N,) 1/s^2, the last two as vector
         and Frobenius norms) of `field` and `gradient` of a closed-form source with a gradient (point,
         sphere, shell, box, mesh) at world points (N, 3). They bound the error where the closed form's
         terms cancel (far away, where the field vanishes by symmetry, next to edges), unlike the
-        relative estimates of `field`; meant for a few points (the one-point pairs)."""
+        relative estimates of `field`; meant for a few points (the one-point pairs). U, g, T: the
+        values at `points` if already computed (else they are computed here)."""
         points = np.ascontiguousarray(points, float).reshape(-1, 3)
         b = self.body
         eps = np.finfo(float).eps
         # the change to the body's frame rounds the point by a few ulps of the larger of the two
         shift = 4.0 * eps * (np.abs(points).max(axis=1) + np.abs(b.placement.translation).max())
-        if self.kind in POINTLIKE_KINDS:
+        if U is None or g is None:
             U, g, _, _ = self.field(points)
+        if T is None:
             T = self.gradient(points)
+        if self.kind in POINTLIKE_KINDS:
             nT = np.linalg.norm(T, axis=(1, 2))
             gn = np.linalg.norm(g, axis=1)
             r = np.maximum(np.linalg.norm(points - b.com, axis=1), 1e-300)
@@ -160,8 +163,6 @@ class SourceField:
         else:
             raise ValueError(f"no closed-form gradient for a {self.kind}")
         # the rotation back to world axes: a few ulps of the rotated vector and tensor
-        U, g, _, _ = self.field(points)
-        T = self.gradient(points)
         eg = eg + 4.0 * eps * np.linalg.norm(g, axis=1)
         eT = eT + 8.0 * eps * np.linalg.norm(T, axis=(1, 2))
         return eU, eg, eT

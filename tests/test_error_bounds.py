@@ -112,7 +112,7 @@ def component_errors(computed, ref):
         return np.array([float(abs(mp.mpf(float(x)) - y)) for x, y in zip(c, rv)])
 
 
-def sample_points(half, rng, n_face=16, n_edge=16, n_corner=8, n_on=4, n_far=12):
+def sample_points(half, rng, n_face=12, n_edge=14, n_corner=6, n_on=3, n_far=9):
     """Local points near faces, edges and corners, exactly on faces, and far away."""
     h = np.asarray(half, float)
     hm = h.max()
