@@ -115,7 +115,8 @@ def deepest_common_point(a, b, samples: int = 1024, starts: int = 6, seed: int =
 
 def bodies_overlap(a, b, touch_rtol: float = TOUCH_RTOL) -> str | None:
     """'overlap' if the two bodies' volumes intersect, 'touch' if they meet within touch_rtol of their
-    size without intersecting, else None. Point bodies overlap a body they lie inside and never touch."""
+    size without intersecting, else None. Point bodies overlap a body they lie inside (deeper than
+    touch_rtol of the size), touch one on whose surface they lie, and never touch an ellipsoid."""
     ca, ra = a.bounding_sphere()
     cb, rb = b.bounding_sphere()
     scale = max(ra, rb)
@@ -126,7 +127,14 @@ def bodies_overlap(a, b, touch_rtol: float = TOUCH_RTOL) -> str | None:
         if isinstance(a.shape, Point) and isinstance(b.shape, Point):
             return None
         point, other = (a, b) if isinstance(a.shape, Point) else (b, a)
-        return "overlap" if other.contains_world(point.com.reshape(1, 3))[0] else None
+        if not other.contains_world(point.com.reshape(1, 3))[0]:
+            return None
+        if isinstance(other.shape, Ellipsoid):
+            return "overlap"
+        # a point mass on the surface of a uniform body feels a finite field (potential and field are
+        # continuous there): it touches; only a point inside the material overlaps
+        d = float(signed_distance(other.shape, other.to_local(point.com.reshape(1, 3)))[0])
+        return "overlap" if d < -tol else "touch"
     lo_a, hi_a = world_bounds(a)
     lo_b, hi_b = world_bounds(b)
     if np.any(np.maximum(lo_a, lo_b) > np.minimum(hi_a, hi_b) + tol):

@@ -378,3 +378,127 @@ def prism_error_estimate(half_sizes):
     _, h = _check(np.zeros((1, 3)), half_sizes)
     aspect = h.max() / h.min()
     return float(np.finfo(float).eps * (1000.0 + 2.0 * aspect * aspect))
+
+
+def _log_step_bounds(a, w1, w2, r1, r2):
+    """|ln(w2 + r2) - ln(w1 + r1)| pieces for the error bound: the value (by the stable formula of
+    `_log_step`, in numpy) and the size of its gradient in the field point,
+    sum_k |grad ln(w_k + r_k)| = sum_k sqrt(2 / (r_k (w_k + r_k))), with w + r = a / (r - w) for w < 0."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s1 = np.where(w1 >= 0.0, w1 + r1, a / (r1 - w1))
+        s2 = np.where(w2 >= 0.0, w2 + r2, a / (r2 - w2))
+        d = np.log(s2) - np.log(s1)
+        grad = np.sqrt(2.0 / (r1 * s1)) + np.sqrt(2.0 / (r2 * s2))
+    return np.abs(d), grad
+
+
+def _rectangle_angle_size(u, A, B):
+    """(|solid angle|, its sensitivity to rounding) (N,) of the rectangle {u} x [A0, A1] x [B0, B1]
+    seen from the origin, as two Van Oosterom-Strackee triangles (see
+    field_polyhedron._solid_angle_sizes)."""
+    corners = [np.stack([u, A[:, i], B[:, j]], axis=1) for i, j in ((0, 0), (1, 0), (1, 1), (0, 1))]
+    total = np.zeros(u.shape)
+    sens = np.zeros(u.shape)
+    for ia, ib, ic in ((0, 1, 2), (0, 2, 3)):
+        ra, rb, rc = corners[ia], corners[ib], corners[ic]
+        a, b, c = (np.linalg.norm(x, axis=1) for x in (ra, rb, rc))
+        ab, ac, bc = (np.einsum("ij,ij->i", x, y) for x, y in ((ra, rb), (ra, rc), (rb, rc)))
+        triple = np.einsum("ij,ij->i", ra, np.cross(rb, rc))
+        den = a * b * c + ab * c + ac * b + bc * a
+        dsum = a * b * c + np.abs(ab) * c + np.abs(ac) * b + np.abs(bc) * a
+        with np.errstate(divide="ignore", invalid="ignore"):
+            cond = np.where(triple != 0.0, np.abs(triple) * dsum / (triple ** 2 + den ** 2), 0.0)
+        total += np.abs(2.0 * np.arctan2(triple, den))
+        sens += 2.0 * cond
+    return total, sens
+
+
+def prism_rounding_bounds(points, half_sizes, rho, G, position_error=0.0):
+    """Absolute error bounds (eU (N,) J/kg, eg (N,) m/s^2 as a vector norm, eT (N,) 1/s^2 as a
+    Frobenius norm) of `prism_field` and `prism_gradient` at `points` (N,3) in the prism's frame.
+
+    Condition-number bounds, so that cancellation between the corner terms is covered: each sum is
+    bounded by C eps times the sum of the absolute values of its terms (every log step and solid
+    angle is itself good to a few ulps), plus the effect of rounding the point's coordinates
+    (delta = eps (|p| + h) per axis) through the size of each term's gradient: near an edge the
+    log steps and solid angles change like 1/distance, which is where the gradient loses digits.
+    Where the far-field quadrature is used, the same sums are taken over its nodes' sizes
+    (G|rho|V/d^k with d the distance to the box) and the rule's own 10^-17 relative error added.
+    Within 2 delta of a face's plane the gradient's jump there (4 pi G rho) is added: the point may be
+    on either side of it. Infinite on an edge or vertex for eT (the gradient is not finite there). `position_error` (m):
+    how far the point itself may be off by rounding before it got here (the frame change)."""
+    p, h = _check(points, half_sizes)
+    eps = np.finfo(float).eps
+    C = 64.0
+    s = abs(float(G) * float(rho))
+    hx, hy, hz = h
+    n = p.shape[0]
+    X = np.stack([-hx - p[:, 0], hx - p[:, 0]], axis=1)
+    Y = np.stack([-hy - p[:, 1], hy - p[:, 1]], axis=1)
+    Z = np.stack([-hz - p[:, 2], hz - p[:, 2]], axis=1)
+    # rounding of the corner offsets, plus that of the point itself (m, e.g. from the frame change)
+    delta = eps * (np.abs(p).max(axis=1) + h.max()) + position_error
+    sU = np.zeros(n)        # sum of |terms| of the potential's corner sum
+    sg = np.zeros(n)        # of the field's
+    sT = np.zeros(n)        # of the gradient's
+    sg0 = np.zeros(n)       # the same without the solid angles' rounding: sizes of |g| and |T|
+    sT0 = np.zeros(n)
+    dT = np.zeros(n)        # sum of |grad| of the gradient's terms (log steps and solid angles)
+    coords = (X, Y, Z)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for ax in range(3):
+            A, B = coords[(ax + 1) % 3], coords[(ax + 2) % 3]     # the two transverse axes
+            W = coords[ax]
+            for i in range(2):
+                for j in range(2):
+                    a = A[:, i] ** 2 + B[:, j] ** 2
+                    r1 = np.sqrt(a + W[:, 0] ** 2)
+                    r2 = np.sqrt(a + W[:, 1] ** 2)
+                    d, grad = _log_step_bounds(a, W[:, 0], W[:, 1], r1, r2)
+                    d = np.where(a == 0.0, np.where((W[:, 0] <= 0) & (W[:, 1] >= 0), np.inf, d), d)
+                    ab = np.abs(A[:, i] * B[:, j])
+                    sU += np.where(ab > 0, ab * d, 0.0)
+                    sg += np.where(np.abs(B[:, j]) > 0, np.abs(B[:, j]) * d, 0.0)
+                    sg += np.where(np.abs(A[:, i]) > 0, np.abs(A[:, i]) * d, 0.0)
+                    sT += d
+                    sT0 += d
+                    sg0 += np.where(np.abs(B[:, j]) > 0, np.abs(B[:, j]) * d, 0.0)
+                    sg0 += np.where(np.abs(A[:, i]) > 0, np.abs(A[:, i]) * d, 0.0)
+                    dT += grad
+            # the two faces normal to this axis: solid angle at most 2 pi, its gradient bounded by
+            # the four edges' line integrals, each at most 2 / (distance to the edge's line)
+            for k in range(2):
+                u = W[:, k]
+                om, cond = _rectangle_angle_size(u, A, B)
+                om_r = (om + cond) * (u != 0.0)         # with the atan2's rounding, for the C eps sums
+                om = om * (u != 0.0)
+                sU += 0.5 * u * u * om_r
+                sg += np.abs(u) * om_r
+                sT += om_r
+                sg0 += np.abs(u) * om
+                sT0 += om
+                for i in range(2):
+                    rho_a = np.sqrt(u * u + A[:, i] ** 2)
+                    rho_b = np.sqrt(u * u + B[:, i] ** 2)
+                    dT += 2.0 / rho_a + 2.0 / rho_b
+        grad_norm = s * sT0          # |T| bound, for the field's sensitivity to the point
+        field_norm = s * sg0
+        eU = C * eps * s * sU + 2.0 * delta * field_norm
+        eg = C * eps * s * sg + 2.0 * delta * grad_norm
+        eT = C * eps * s * sT + 2.0 * delta * s * dT
+        # within 2 delta of a face's plane the gradient may be on either side of its jump 4 pi G rho
+        near_face = np.any(np.abs(np.concatenate([X, Y, Z], axis=1)) <= 2.0 * delta[:, None], axis=1)
+        eT += 2.0 * np.pi * s * near_face
+    # far-field quadrature points: sums of |integrand| over the nodes
+    ex = np.maximum(np.abs(p) - h, 0.0)
+    dist = np.linalg.norm(ex, axis=1)
+    far = np.array([_choose_rule(q[0], q[1], q[2], hx, hy, hz)[0] > 0 for q in p], dtype=bool)
+    if np.any(far):
+        vol8 = 8.0 * hx * hy * hz
+        m = s * vol8
+        dq = dist[far]
+        quad_rel = C * eps + 10.0 ** -_DIGITS
+        eU[far] = quad_rel * m / dq + 2.0 * delta[far] * m / dq ** 2
+        eg[far] = quad_rel * m / dq ** 2 + 4.0 * delta[far] * m / dq ** 3
+        eT[far] = 3.0 * quad_rel * m / dq ** 3 + 12.0 * delta[far] * m / dq ** 4
+    return eU, eg, eT

@@ -21,6 +21,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from truepull.geometry.errors import InputError
 from truepull.integrate.patches import body_patches
 from truepull.integrate.sources import GRADIENT_KINDS, POINTLIKE_KINDS, SourceField
 from truepull.integrate.surface_quadrature import field_tolerances, integrate_surface
@@ -66,6 +67,29 @@ def point_response(mass, centre, U, g, T, pivot, axis):
     exr = np.cross(axis, r)
     dtau = mass * (np.dot(axis, np.cross(exr, g)) + np.dot(axis, np.cross(r, T @ exr)))
     return F, tau, -dtau, mass * U
+
+
+def _point_response_errors(mass, centre, pivot, axis, g, T, U, eU, eg, eT):
+    """Absolute error bounds (8,) of `point_response` given absolute bounds on U, on g (vector norm)
+    and on T (Frobenius norm). Each quantity is bounded term by term, with absolute values, so that
+    cancellation is covered: K = -m (e.((e x r) x g) + e.(r x T (e x r))) gets
+    m (|e x r| eg + |r| |e x r| eT) from the field's errors, plus 16 eps times the sum of the two
+    terms' sizes and the rounding of r = centre - pivot (delta) through dK/dr."""
+    m = abs(float(mass))
+    r = np.asarray(centre, float) - pivot
+    nr = np.linalg.norm(r)
+    ng = np.linalg.norm(g)
+    nT = np.linalg.norm(T)
+    exr = np.linalg.norm(np.cross(axis, r))
+    delta = 4.0 * EPS * (np.abs(centre).max() + np.abs(pivot).max())
+    eF = m * eg + 4.0 * EPS * m * ng
+    etau = nr * eF + m * ng * (8.0 * EPS * nr + 2.0 * delta)
+    k1 = m * exr * ng
+    k2 = m * nr * exr * nT
+    eK = m * (exr * eg + nr * exr * eT) + 16.0 * EPS * (k1 + k2) + \
+        delta * m * (2.0 * ng + 3.0 * (nr + exr) * nT)
+    eE = m * eU + 4.0 * EPS * m * abs(U)
+    return np.array([eF] * 3 + [etau] * 3 + [eK, eE])
 
 
 def _inside_cavity(pointlike, other) -> bool:
@@ -135,15 +159,17 @@ def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:
                           "shell theorem (source inside the test shell's cavity)", True)
     field = SourceField(source_body, G)
     c = test_body.com[None, :]
-    U, g, eU, eg = field.field(c)
+    U, g, _, _ = field.field(c)
     T = field.gradient(c)[0]
+    if not np.all(np.isfinite(T)):
+        raise InputError(None, f"body[{test_body.name}] / body[{source_body.name}]",
+                         f"the centre of '{test_body.name}' lies on an edge or corner of "
+                         f"'{source_body.name}', where the gradient of its field (and so the stiffness) "
+                         "is infinite; move it off the edge (a point on a face is fine)")
     F, tau, K, E = point_response(test_body.mass, test_body.com, U[0], g[0], T, pivot, axis)
     vals = np.concatenate([F, tau, [K, E]])
-    # the closed form's own bound (relative, from the field) carried to every quantity, plus rounding
-    rel = max(eg[0] / max(np.linalg.norm(g[0]), 1e-300), eU[0] / max(abs(U[0]), 1e-300))
-    m, lever = abs(test_body.mass), np.linalg.norm(test_body.com - pivot)
-    scale = np.concatenate([[m * eg[0]] * 3, [m * eg[0] * lever] * 3, [0.0, m * eU[0]]])
-    errs = scale + (rel + 64 * EPS) * np.abs(vals)
+    eU, eg, eT = (x[0] for x in field.rounding_bounds(c, U, g, T[None]))
+    errs = _point_response_errors(test_body.mass, test_body.com, pivot, axis, g[0], T, U[0], eU, eg, eT)
     how = ("Newton with the shell theorem (exact)" if source_body.shape.kind in POINTLIKE_KINDS else
            f"{field.method} of {source_body.shape.kind} '{source_body.name}' at the centre of "
            f"{test_body.shape.kind} '{test_body.name}' (mean-value property, exact)")

@@ -125,6 +125,48 @@ class SourceField:
         """A closed-form result: no refinement difference, rounding `rtol` (scalar or per point) of the size."""
         return (U, g, np.zeros_like(U), np.zeros_like(g), rtol * np.abs(U), rtol * np.linalg.norm(g, axis=1))
 
+    def rounding_bounds(self, points, U=None, g=None, T=None):
+        """Absolute error bounds (eU (N,) J/kg, eg (N,) m/s^2, eT (N,) 1/s^2, the last two as vector
+        and Frobenius norms) of `field` and `gradient` of a closed-form source with a gradient (point,
+        sphere, shell, box, mesh) at world points (N, 3). They bound the error where the closed form's
+        terms cancel (far away, where the field vanishes by symmetry, next to edges), unlike the
+        relative estimates of `field`; meant for a few points (the one-point pairs). U, g, T: the
+        values at `points` if already computed (else they are computed here)."""
+        points = np.ascontiguousarray(points, float).reshape(-1, 3)
+        b = self.body
+        eps = np.finfo(float).eps
+        # the change to the body's frame rounds the point by a few ulps of the larger of the two
+        shift = 4.0 * eps * (np.abs(points).max(axis=1) + np.abs(b.placement.translation).max())
+        if U is None or g is None:
+            U, g, _, _ = self.field(points)
+        if T is None:
+            T = self.gradient(points)
+        if self.kind in POINTLIKE_KINDS:
+            nT = np.linalg.norm(T, axis=(1, 2))
+            gn = np.linalg.norm(g, axis=1)
+            r = np.maximum(np.linalg.norm(points - b.com, axis=1), 1e-300)
+            # a single term each: relative rounding, plus the point's own rounding (|grad| <= 3|.|/r)
+            return (CLOSED_FORM_RTOL * np.abs(U) + shift * gn, CLOSED_FORM_RTOL * gn + shift * nT,
+                    CLOSED_FORM_RTOL * nT + shift * 3.0 * nT / r)
+        local = self._local(points)
+        if self.kind == "box":
+            from truepull.integrate.field_prism import prism_rounding_bounds
+
+            eU, eg, eT = prism_rounding_bounds(local, 0.5 * np.asarray(b.shape.size, float),
+                                               b.density, self.G, shift)
+        elif self.kind == "mesh":
+            from truepull.integrate.field_polyhedron import PolyhedronData, polyhedron_rounding_bounds
+
+            if self._poly is None:
+                self._poly = PolyhedronData(np.asarray(b.shape.vertices, float), np.asarray(b.shape.faces))
+            eU, eg, eT = polyhedron_rounding_bounds(local, self._poly, b.density, self.G, shift)
+        else:
+            raise ValueError(f"no closed-form gradient for a {self.kind}")
+        # the rotation back to world axes: a few ulps of the rotated vector and tensor
+        eg = eg + 4.0 * eps * np.linalg.norm(g, axis=1)
+        eT = eT + 8.0 * eps * np.linalg.norm(T, axis=(1, 2))
+        return eU, eg, eT
+
     def distance(self, points) -> np.ndarray:
         """Distance (m) from world points (N, 3) to the source's surface (signed: negative inside)."""
         from truepull.geometry.distance import signed_distance

@@ -32,6 +32,7 @@ integral of e . ((e x r) x g + r x (T (e x r))) dm.
 
 from __future__ import annotations
 
+import mpmath as mp
 import numpy as np
 from scipy.integrate import cubature, quad
 from scipy.special import ellipe, ellipk, elliprd
@@ -403,3 +404,66 @@ def plate_on_axis(hx, hy, t, rho_m, z, G=G):
         return -4.0 * G * rho_m * np.arctan(hx * hy / (d * np.sqrt(hx * hx + hy * hy + d * d)))
 
     return quad(plate, -0.5 * t, 0.5 * t, epsabs=0.0, epsrel=2e-14, limit=200)
+
+
+# ------------------------------------------------------------------------------------------
+# the prism closed form at 40 digits (mpmath), independent of integrate/field_prism.py
+# ------------------------------------------------------------------------------------------
+
+def _xlog(c, v):
+    """c ln(v), zero when c == 0 (the x ln x limits of the corner sums)."""
+    return mp.mpf(0) if c == 0 else c * mp.log(v)
+
+
+def _xatan(c, num, den):
+    """c atan(num / den), zero when c == 0 or num == 0."""
+    if c == 0 or num == 0:
+        return mp.mpf(0)
+    return c * mp.atan(num / den)
+
+
+def prism_mp(point, half, rho, G=G, dps=40):
+    """(U, g (3,), T (3,3)) as mpmath numbers at `dps` digits for a uniform prism of half-sizes
+    `half` centred at the origin, at `point` (its frame), by the corner sums of Nagy, Papp and
+    Benedek (2000, J. Geodesy 74:552, eqs. 3-5 and their second derivatives): with x, y, z the corner
+    minus the point and r their length, integral dV/r = sum_corners s F,
+    F = xy ln(z+r) + yz ln(x+r) + zx ln(y+r) - x^2/2 atan(yz/(xr)) - y^2/2 atan(zx/(yr))
+    - z^2/2 atan(xy/(zr)), s = +1 / -1 for the upper / lower end of each axis; integral x/r^3 dV =
+    -sum s dF/dx with dF/dx = y ln(z+r) + z ln(y+r) - x atan(yz/(xr)); d2F/dxdy = ln(z+r),
+    d2F/dx2 = -atan(yz/(xr)). U = -G rho I, g = G rho J, T_ij = -G rho sum s d2F/dx_i dx_j.
+    The point's coordinates are taken exactly as given (doubles or mpf)."""
+    with mp.workdps(dps):
+        p = [mp.mpf(c) for c in point]
+        h = [mp.mpf(c) for c in half]
+        I = mp.mpf(0)
+        J = [mp.mpf(0)] * 3
+        T = [[mp.mpf(0)] * 3 for _ in range(3)]
+        for i in (0, 1):
+            for j in (0, 1):
+                for k in (0, 1):
+                    s = (1 if i else -1) * (1 if j else -1) * (1 if k else -1)
+                    c = [(h[0] if i else -h[0]) - p[0], (h[1] if j else -h[1]) - p[1],
+                         (h[2] if k else -h[2]) - p[2]]
+                    r = mp.sqrt(c[0] ** 2 + c[1] ** 2 + c[2] ** 2)
+                    F = mp.mpf(0)
+                    for a in range(3):
+                        x, y, z = c[a], c[(a + 1) % 3], c[(a + 2) % 3]
+                        F += _xlog(x * y, z + r) - _xatan(x * x / 2, y * z, x * r)
+                    I += s * F
+                    for a in range(3):
+                        x, y, z = c[a], c[(a + 1) % 3], c[(a + 2) % 3]
+                        dF = _xlog(y, z + r) + _xlog(z, y + r) - _xatan(x, y * z, x * r)
+                        J[a] -= s * dF
+                        if y * z != 0:
+                            T[a][a] += s * mp.atan(y * z / (x * r)) if x != 0 else 0
+                        b = (a + 1) % 3
+                        T[a][b] -= s * mp.log(z + r) if (x != 0 or y != 0 or z > 0) else 0
+        k = mp.mpf(float(G)) * mp.mpf(float(rho))
+        U = -k * I
+        g = [k * v for v in J]
+        Tm = [[mp.mpf(0)] * 3 for _ in range(3)]
+        for a in range(3):
+            Tm[a][a] = -k * T[a][a]
+            b = (a + 1) % 3
+            Tm[a][b] = Tm[b][a] = -k * T[a][b]
+        return U, g, Tm
