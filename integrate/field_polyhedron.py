@@ -472,6 +472,8 @@ def polyhedron_rounding_bounds(points, data: PolyhedronData, rho, G, position_er
         om = om * (hn > 0)
         om_r = om + om_cond * (hn > 0)          # with the atan2's own rounding, for the C eps sums
         grad_om = np.zeros(hn.shape)
+        edge_side_min = np.full(hn.shape, np.inf)     # signed in-plane distances of the point's projection
+        edge_side_max = np.full(hn.shape, -np.inf)    # from the face's three edge lines
         for k in range(3):
             rA = v[f[:, k]][None, :, :] - p[:, None, :]
             rB = v[f[:, (k + 1) % 3]][None, :, :] - p[:, None, :]
@@ -479,6 +481,9 @@ def polyhedron_rounding_bounds(points, data: PolyhedronData, rho, G, position_er
             c = np.cross(rA, rB)
             dist = np.sqrt(np.einsum("nfk,nfk->nf", c, c)) / ln
             grad_om += 2.0 / dist
+            side = np.einsum("nfk,fk->nf", c, data.face_normals) / ln
+            edge_side_min = np.minimum(edge_side_min, side)
+            edge_side_max = np.maximum(edge_side_max, side)
         grad_om = np.where(hn > 0, grad_om, np.where(np.isfinite(grad_om), grad_om, np.inf))
         sU += (hn * hn * om_r).sum(axis=1)
         sg += (hn * om_r).sum(axis=1)
@@ -502,5 +507,8 @@ def polyhedron_rounding_bounds(points, data: PolyhedronData, rho, G, position_er
         eU = s * (C * eps * 0.5 * sU + 2.0 * delta * dU)
         eg = s * (C * eps * sg + 2.0 * delta * dg)
         eT = s * (C * eps * sT + 2.0 * delta * dT)
-        eT += s * 2.0 * np.pi * np.any(hn <= 2.0 * delta[:, None], axis=1)
+        # within 2 delta of a face (on the triangle, not elsewhere in its plane) T may be on either side
+        tol = 2.0 * delta[:, None]
+        on_triangle = (edge_side_min >= -tol) | (edge_side_max <= tol)
+        eT += s * 2.0 * np.pi * np.any((hn <= tol) & on_triangle, axis=1)
     return eU, eg, eT

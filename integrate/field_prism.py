@@ -487,7 +487,12 @@ def prism_rounding_bounds(points, half_sizes, rho, G, position_error=0.0):
         eg = C * eps * s * sg + 2.0 * delta * grad_norm
         eT = C * eps * s * sT + 2.0 * delta * s * dT
         # within 2 delta of a face's plane the gradient may be on either side of its jump 4 pi G rho
-        near_face = np.any(np.abs(np.concatenate([X, Y, Z], axis=1)) <= 2.0 * delta[:, None], axis=1)
+        # (on the face itself, not elsewhere in its plane, where the gradient is continuous)
+        tol = 2.0 * delta
+        inside = [(c[:, 0] <= tol) & (c[:, 1] >= -tol) for c in coords]       # within each axis' extent
+        on_plane = [np.abs(c).min(axis=1) <= tol for c in coords]
+        near_face = ((on_plane[0] & inside[1] & inside[2]) | (on_plane[1] & inside[0] & inside[2])
+                     | (on_plane[2] & inside[0] & inside[1]))
         eT += 2.0 * np.pi * s * near_face
     # far-field quadrature points: sums of |integrand| over the nodes
     ex = np.maximum(np.abs(p) - h, 0.0)

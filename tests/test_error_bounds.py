@@ -282,3 +282,31 @@ def test_a_point_on_a_face_is_accepted_and_on_an_edge_refused(kind):
     assert check_separated([edge], [src]) is not None
     with pytest.raises(InputError, match="'ball'.*'slab'"):
         pair_interaction(edge, src, pivot, axis, G)
+
+
+@pytest.mark.parametrize("as_mesh", [False, True])
+def test_a_point_in_a_face_plane_but_off_the_face_gets_no_jump_allowance(as_mesh):
+    # The gradient jumps by 4 pi G rho only across the face itself (Poisson's equation); elsewhere in
+    # the face's plane it is continuous, so the stated gradient error there must stay near rounding.
+    # reference: the prism corner sums at 40 digits (Nagy, Papp and Benedek 2000), prism_mp; a mesh
+    # whose vertices are the box's corners is that box exactly
+    from truepull.integrate.field_polyhedron import (PolyhedronData, polyhedron_gradient,
+                                                     polyhedron_rounding_bounds)
+    from truepull.integrate.field_prism import prism_gradient, prism_rounding_bounds
+
+    half = np.array([0.02, 0.02, 0.025])
+    rho = 11000.0
+    point = np.array([[-0.02, -0.07, 0.0]])          # in the plane x = -h_x, 50 mm beside the face
+    if as_mesh:
+        mesh = box_mesh(half)
+        data = PolyhedronData(mesh.vertices, mesh.faces)
+        _, _, eT = polyhedron_rounding_bounds(point, data, rho, G)
+        T = polyhedron_gradient(point, data, rho, G)[0]
+    else:
+        _, _, eT = prism_rounding_bounds(point, half, rho, G)
+        T = prism_gradient(point, half, rho, G)[0]
+    jump = 4.0 * np.pi * G * rho
+    assert eT[0] < 1e-9 * jump
+    _, _, T_ref = prism_mp(point[0], half, rho)
+    ref = np.array([[float(T_ref[i][j]) for j in range(3)] for i in range(3)])
+    assert float(np.linalg.norm(np.asarray(T, dtype=float) - ref)) <= eT[0]
