@@ -12,7 +12,7 @@ the fiber axis, from the pose the scene draws):
   attractor at position p, the Hermite curve through engine samples (torque and slope, rtol 1e-9) at
   NODES, 5 turns over +-8 mrad around the pose as drawn (torque_curve.sample_curve). The curve is a
   polynomial of degree 9 and the torque changes over tenths of a radian, so over the few mrad the
-  pendulum moves (-1.7 to +3.4 mrad) it differs from the curve through 7 nodes by < 1e-14 of the torque
+  pendulum moves (-1.7 to +4.2 mrad) it differs from the curve through 7 nodes by < 1e-14 of the torque
   and from fresh engine samples between the nodes by less than the engine's error estimate (about
   4e-13 of the torque; tests/test_make_demo_run.py checks it);
 - theta_zero(t) = ZERO + DRIFT_RATE t + DRIFT_CURVE t^2: the fiber's zero drifts slowly and not
