@@ -548,11 +548,13 @@ def _read_correlation(r: _Reader, raw, n: int) -> tuple[tuple[float, ...], ...]:
         r.fail(key, "needs angles at two or more positions")
     if not (isinstance(raw, list) and len(raw) == n and all(isinstance(row, list) and len(row) == n for row in raw)):
         r.fail(key, f"must be a {n} x {n} matrix of numbers (one row per angle, in the order of angle's keys)")
-    if not all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) for row in raw for v in row):
+    # whole numbers first (a huge TOML integer does not convert to a float), then the range
+    if not all(isinstance(v, (int, float)) and not isinstance(v, bool) and (isinstance(v, int) or math.isfinite(v))
+               for row in raw for v in row):
         r.fail(key, "every entry must be a finite number")
-    m = np.array(raw, dtype=float)
-    if np.any(np.abs(m) > 1):
+    if any(abs(v) > 1 for row in raw for v in row):
         r.fail(key, "correlation coefficients must lie between -1 and 1")
+    m = np.array(raw, dtype=float)
     if not np.allclose(np.diag(m), 1.0, rtol=0, atol=1e-12):
         r.fail(key, "the diagonal must be 1")
     if not np.allclose(m, m.T, rtol=0, atol=1e-12):

@@ -1,80 +1,146 @@
 """Make shapes/demo_run.csv: an invented recorded run of the demo balance (shapes/demo.toml).
 
-The run is synthetic: the pendulum is a linear damped oscillator, I theta'' + c theta' + kappa theta
-= tau(position), solved exactly segment by segment (state carried across each switch of the
-attractor), plus a small linear drift of the fiber's zero, plus Gaussian read-out noise from a fixed
-seed. The attractor switches A -> B -> A -> B every 1800 s; it is at A from t = 0 with the pendulum at
-rest before.
+The run is synthetic, made from the full equation of motion of the pendulum's turn theta (rad, about
+the fiber axis, from the pose the scene draws):
 
-It is consistent with the demo's physics only roughly: the torques are rounded from a point-mass-ish
-estimate (about 5.85e-11 N m at A and minus that at B), the moment of inertia from `truepull check`
-(about 1.385e-4 kg m^2), and the period (300 s) and decrement (0.05) are simply chosen. It is
-invented data for trying `truepull fit` and the report, not a measurement.
+    I theta'' = -kappa (theta - theta_zero(t)) - c theta' + G Gamma_p(theta)
 
-Columns: time (s), angle (rad, right-handed about the fiber axis, arbitrary zero), position (A | B).
+- I (kg m^2): the pendulum's exact moment of inertia from the scene (reduction.pendulum_inertia);
+- kappa (N m/rad): the fiber the demo was made for (the scene's [measurement] comments);
+- c (N m s/rad): from a logarithmic decrement DECREMENT of the fiber-only oscillator (kappa / I);
+- G: the scene's (CODATA 2018); Gamma_p(theta) (N m per unit G): the scene's exact axial torque of the
+  attractor at position p, the Hermite curve through engine samples (torque and slope, rtol 1e-9) at
+  NODES, 5 turns over +-8 mrad around the pose as drawn (torque_curve.sample_curve). The curve is a
+  polynomial of degree 9 and the torque changes over tenths of a radian, so over the few mrad the
+  pendulum moves (-1.7 to +4.2 mrad) it differs from the curve through 7 nodes by < 1e-14 of the torque
+  and from fresh engine samples between the nodes by less than the engine's error estimate (about
+  4e-13 of the torque; tests/test_make_demo_run.py checks it);
+- theta_zero(t) = ZERO + DRIFT_RATE t + DRIFT_CURVE t^2: the fiber's zero drifts slowly and not
+  linearly (the rate goes from 2e-9 to about 6e-9 rad/s over the run).
 
-Run from anywhere:  python shapes/make_demo_run.py   (rewrites shapes/demo_run.csv)
+The attractor follows SEQUENCE, SEGMENT s at each position; the pendulum is released from rest at
+ZERO + RELEASE at t = 0 with the attractor at A, and the state (theta, theta') is carried across each
+switch, so the swings after the switches (about 2 mrad) arise by themselves. Each segment is solved by
+scipy.integrate.solve_ivp (DOP853, rtol 1e-11, atol 1e-17 rad). The read-out is theta (its zero is the
+pose as drawn) plus Gaussian noise NOISE from a fixed seed, sampled every STEP s.
+
+Invented data for trying `truepull fit` and the reduction with the anharmonic terms of the exact
+torque, not a measurement. Columns: time (s), angle (rad, right-handed about the fiber axis), position.
+
+Run from anywhere:  python shapes/make_demo_run.py   (rewrites shapes/demo_run.csv; a few seconds,
+more on the engine's first use when it compiles)
 """
 
 from __future__ import annotations
 
 import sys
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+from scipy.integrate import solve_ivp
 
 SEED = 20240611
-PERIOD = 300.0            # s, damped period (invented)
-DECREMENT = 0.05          # logarithmic decrement per period (invented)
-INERTIA = 1.385e-4        # kg m^2, roughly the demo pendulum's moment of inertia about the fiber
-TORQUE = {"A": 5.85e-11, "B": -5.85e-11}   # N m, rough torque of the attractor on the pendulum
-ZERO = 3.5e-4             # rad, arbitrary zero of the angle read-out
-DRIFT = 2.0e-9            # rad/s, slow drift of the fiber's zero
+KAPPA = 6.0731e-8         # N m/rad, the fiber's torsion constant (the demo scene's [measurement] comments)
+DECREMENT = 0.05          # logarithmic decrement of the fiber-only oscillator (invented)
+ZERO = 3.5e-4             # rad, the fiber's zero at t = 0, from the pose as drawn
+DRIFT_RATE = 2.0e-9       # rad/s, the zero's drift rate at t = 0
+DRIFT_CURVE = 2.0e-13     # rad/s^2: theta_zero = ZERO + DRIFT_RATE t + DRIFT_CURVE t^2
+RELEASE = -2.0e-3         # rad, the pendulum's start (at rest) from the fiber's zero
 NOISE = 2.0e-6            # rad, standard deviation of the read-out noise
 STEP = 4.0                # s, sampling interval
 SEGMENT = 1800.0          # s, time at each position
-SEQUENCE = ("A", "B", "A", "B")
+SEQUENCE = ("A", "B", "A", "B", "A", "B")
+NODES = tuple(np.linspace(-8e-3, 8e-3, 5))   # rad, where the torque curve is sampled
+ENGINE_RTOL = 1e-9
+RTOL, ATOL = 1e-11, 1e-17                    # solve_ivp tolerances (atol in rad and rad/s)
 
 
-def oscillator_constants():
-    """(kappa N m/rad, gamma 1/s, omega_d rad/s) from the chosen damped period and decrement."""
-    omega_d = 2.0 * np.pi / PERIOD
-    gamma = DECREMENT / PERIOD                          # amplitude decays as exp(-gamma t)
-    omega0_sq = omega_d**2 + gamma**2                   # omega0^2 = omega_d^2 (1 + (delta / 2 pi)^2)
-    return INERTIA * omega0_sq, gamma, omega_d
+@dataclass(frozen=True)
+class Balance:
+    """The constants of the equation of motion: I (kg m^2), kappa (N m/rad), c (N m s/rad), G (SI) and
+    per position the torque per unit G as a polynomial in theta (rad; coefficients, lowest first)."""
+
+    inertia: float
+    kappa: float
+    damping: float
+    G: float
+    torque: dict
+    curves: dict
 
 
-def simulate(rng: np.random.Generator, noise: float = NOISE):
+def fiber_damping(inertia: float, kappa: float, decrement: float) -> float:
+    """c (N m s/rad) giving the oscillator I x'' + c x' + kappa x = 0 the logarithmic decrement
+    `decrement` = gamma T_d, gamma = c / (2 I), T_d = 2 pi / sqrt(kappa / I - gamma^2)."""
+    omega0 = np.sqrt(kappa / inertia)
+    gamma = decrement * omega0 / np.sqrt(4.0 * np.pi**2 + decrement**2)
+    return 2.0 * inertia * gamma
+
+
+def drift(time):
+    """The fiber's zero theta_zero(t) (rad) at times t (s)."""
+    t = np.asarray(time, dtype=float)
+    return ZERO + DRIFT_RATE * t + DRIFT_CURVE * t * t
+
+
+def demo_balance(scene=None) -> Balance:
+    """The demo scene's constants and torque curves (engine samples at NODES for each position)."""
+    from truepull.geometry.scene import load_scene
+    from truepull.integrate.reduction import pendulum_inertia, per_unit_g
+    from truepull.integrate.torque_curve import sample_curve
+    from truepull.shapes import demo_path
+
+    scene = load_scene(demo_path()) if scene is None else scene
+    inertia, _ = pendulum_inertia(scene)
+    per_g = per_unit_g(scene)
+    curves = {p: sample_curve(per_g, p, NODES, rtol=ENGINE_RTOL) for p in dict.fromkeys(SEQUENCE)}
+    torque = {p: tuple(float(c) for c in curve.about(0.0).coef) for p, curve in curves.items()}
+    return Balance(inertia, KAPPA, fiber_damping(inertia, KAPPA, DECREMENT), float(scene.G.value),
+                   torque, curves)
+
+
+def _horner(coef, x: float) -> float:
+    out = 0.0
+    for c in reversed(coef):
+        out = out * x + c
+    return out
+
+
+def simulate(rng: np.random.Generator, noise: float = NOISE, balance: Balance | None = None):
     """Times (s), angles (rad) and position labels of the whole run; `noise` is the read-out noise's
     standard deviation (rad)."""
-    kappa, gamma, omega_d = oscillator_constants()
-    x, v = 0.0, 0.0          # angle from the fiber's rest angle (rad) and its rate (rad/s)
+    b = demo_balance() if balance is None else balance
+    inv_i = 1.0 / b.inertia
+    state = np.array([ZERO + RELEASE, 0.0])
     times, angles, labels = [], [], []
-    t0 = 0.0
-    for name in SEQUENCE:
-        eq = TORQUE[name] / kappa
-        t = np.arange(0.0, SEGMENT, STEP)
-        a0, b0 = x - eq, (v + gamma * (x - eq)) / omega_d   # exact solution about the new equilibrium
-        decay = np.exp(-gamma * t)
-        cos, sin = np.cos(omega_d * t), np.sin(omega_d * t)
-        xs = eq + decay * (a0 * cos + b0 * sin)
-        times.append(t0 + t)
-        angles.append(xs)
+    for k, name in enumerate(SEQUENCE):
+        coef = b.torque[name]
+        g = b.G
+
+        def rhs(t, y, coef=coef):
+            zero = ZERO + DRIFT_RATE * t + DRIFT_CURVE * t * t
+            return (y[1], (-b.kappa * (y[0] - zero) - b.damping * y[1] + g * _horner(coef, y[0])) * inv_i)
+
+        t0 = k * SEGMENT
+        t = t0 + np.arange(0.0, SEGMENT, STEP)
+        sol = solve_ivp(rhs, (t0, t0 + SEGMENT), state, method="DOP853", rtol=RTOL, atol=ATOL,
+                        t_eval=np.append(t, t0 + SEGMENT))
+        if sol.status != 0:
+            raise RuntimeError(f"solve_ivp failed in segment {k}: {sol.message}")
+        times.append(t)
+        angles.append(sol.y[0, :-1])
         labels += [name] * len(t)
-        # state at the end of the segment (t = SEGMENT), carried into the next
-        d, c, s = np.exp(-gamma * SEGMENT), np.cos(omega_d * SEGMENT), np.sin(omega_d * SEGMENT)
-        x = eq + d * (a0 * c + b0 * s)
-        v = d * (-gamma * (a0 * c + b0 * s) + omega_d * (-a0 * s + b0 * c))
-        t0 += SEGMENT
+        state = sol.y[:, -1]
     time = np.concatenate(times)
-    angle = np.concatenate(angles) + ZERO + DRIFT * time + rng.normal(0.0, noise, len(time))
+    angle = np.concatenate(angles) + rng.normal(0.0, noise, len(time))
     return time, angle, labels
 
 
 def csv_text(time, angle, labels) -> str:
     lines = [
         "# invented run of the truepull demo balance (shapes/demo.toml); made by shapes/make_demo_run.py",
-        f"# seed {SEED}; damped period {PERIOD:g} s, decrement {DECREMENT:g}, noise {NOISE:g} rad; not a measurement",
+        f"# seed {SEED}; full equation of motion with the scene's exact torque, fiber {KAPPA:g} N m/rad, "
+        f"decrement {DECREMENT:g}, quadratic drift of the zero, noise {NOISE:g} rad; not a measurement",
         "time,angle,position",
     ]
     lines += [f"{t:.1f},{a:.9e},{p}" for t, a, p in zip(time, angle, labels)]

@@ -1,38 +1,78 @@
 """The invented recorded run of the demo (shapes/make_demo_run.py -> shapes/demo_run.csv)."""
 
 import numpy as np
+import pytest
 from scipy.integrate import solve_ivp
+from scipy.interpolate import KroghInterpolator
 
 from truepull.shapes import demo_run_path
 from truepull.shapes import make_demo_run as mr
 
 
-def test_segments_follow_the_damped_oscillator_ode():
-    # reference: scipy.integrate.solve_ivp of I x'' + c x' + kappa x = tau(position), one segment at a time
-    time, angle, labels = mr.simulate(np.random.default_rng(0), noise=0.0)
-    clean = angle - mr.ZERO - mr.DRIFT * time
-    kappa, gamma, _ = mr.oscillator_constants()
-    state = [0.0, 0.0]
+@pytest.fixture(scope="module")
+def balance():
+    return mr.demo_balance()   # engine samples of the demo scene's torque curves (a few seconds)
+
+
+def test_segments_follow_the_full_equation_of_motion(balance):
+    # reference: scipy.integrate.solve_ivp (Radau, an implicit method, not the generator's DOP853) of
+    # I x'' = -kappa (x - zero(t)) - c x' + G Gamma(x), Gamma the Hermite interpolant through the same
+    # engine samples built by scipy.interpolate.KroghInterpolator (repeated nodes: value and slope)
+    time, angle, labels = mr.simulate(np.random.default_rng(0), noise=0.0, balance=balance)
+    state = [mr.ZERO + mr.RELEASE, 0.0]
+    b = balance
     for k, name in enumerate(mr.SEQUENCE):
+        s = b.curves[name].samples
+        xs = np.repeat([p.theta for p in s], 2)
+        ys = np.ravel([[p.torque, -p.stiffness] for p in s])
+        gamma = KroghInterpolator(xs, ys)
+
+        def rhs(t, y, gamma=gamma):
+            zero = mr.ZERO + mr.DRIFT_RATE * t + mr.DRIFT_CURVE * t**2
+            return [y[1], (-b.kappa * (y[0] - zero) - b.damping * y[1] + b.G * float(gamma(y[0]))) / b.inertia]
+
         t0 = k * mr.SEGMENT
         rows = (time >= t0) & (time < t0 + mr.SEGMENT)
-        tau = mr.TORQUE[name]
-        sol = solve_ivp(lambda t, y: [y[1], (tau - kappa * y[0]) / mr.INERTIA - 2 * gamma * y[1]],
-                        (t0, t0 + mr.SEGMENT), state, t_eval=time[rows], rtol=1e-11, atol=1e-16,
-                        method="DOP853", dense_output=True)
-        assert np.allclose(clean[rows], sol.y[0], rtol=0, atol=1e-10)
+        sol = solve_ivp(rhs, (t0, t0 + mr.SEGMENT), state, t_eval=time[rows], rtol=1e-10, atol=1e-15,
+                        method="Radau", dense_output=True)
+        assert np.allclose(angle[rows], sol.y[0], rtol=0, atol=3e-10)   # 1e-4 of the read-out noise
         assert set(np.array(labels)[rows]) == {name}
         state = sol.sol(t0 + mr.SEGMENT)
+    # the swings are a few mrad, well inside the sampled +-8 mrad
+    assert 1e-3 < np.ptp(angle) < 7e-3 and np.all(np.abs(angle) < 0.6 * max(mr.NODES))
 
 
-def test_decrement_and_period_relation():
-    # omega0^2 = omega_d^2 (1 + (delta / 2 pi)^2) (damped oscillator, textbook mechanics, from memory)
-    kappa, gamma, omega_d = mr.oscillator_constants()
-    omega0_sq = kappa / mr.INERTIA
-    assert np.isclose(omega0_sq, omega_d**2 * (1 + (mr.DECREMENT / (2 * np.pi)) ** 2), rtol=1e-14)
-    assert np.isclose(2 * np.pi / omega_d, mr.PERIOD, rtol=1e-14)
+def test_torque_curve_between_nodes_matches_the_engine(balance):
+    # reference: fresh engine samples between the nodes, where the pendulum goes; the curve's error must
+    # be within the engine's own error estimate
+    from truepull.geometry.scene import load_scene
+    from truepull.integrate.reduction import per_unit_g
+    from truepull.integrate.torque_curve import sample_pose
+    from truepull.shapes import demo_path
+
+    per_g = per_unit_g(load_scene(demo_path()))
+    for name, theta in (("A", 4.1e-3), ("B", -1.3e-3)):
+        fresh = sample_pose(per_g, name, theta)
+        assert abs(float(balance.curves[name].torque(theta)) - fresh.torque) <= 3 * fresh.torque_error
+        assert fresh.torque_error < 1e-11 * abs(fresh.torque)
 
 
-def test_shipped_csv_is_what_the_script_makes():
-    time, angle, labels = mr.simulate(np.random.default_rng(mr.SEED))
+def test_damping_gives_the_decrement():
+    # I x'' + c x' + kappa x = 0 has x = exp(-gamma t) cos(omega_d t), gamma = c / 2I, omega_d^2 =
+    # kappa / I - gamma^2, decrement = gamma T_d (damped oscillator, textbook mechanics, from memory);
+    # checked against scipy.integrate.solve_ivp of the free oscillator over one damped period
+    inertia, kappa = 1.3845e-4, mr.KAPPA
+    c = mr.fiber_damping(inertia, kappa, mr.DECREMENT)
+    gamma = c / (2 * inertia)
+    t_d = 2 * np.pi / np.sqrt(kappa / inertia - gamma**2)
+    assert np.isclose(gamma * t_d, mr.DECREMENT, rtol=1e-13)
+    sol = solve_ivp(lambda t, y: [y[1], (-kappa * y[0] - c * y[1]) / inertia], (0, t_d), [1.0, -gamma],
+                    method="DOP853", rtol=1e-12, atol=1e-15)
+    # start x = 1, x' = -gamma is the closed form at t = 0; after T_d it is exp(-decrement)
+    assert np.isclose(sol.y[0, -1], np.exp(-mr.DECREMENT), rtol=0, atol=1e-9)
+    assert np.isclose(sol.y[1, -1], -gamma * np.exp(-mr.DECREMENT), rtol=0, atol=1e-12)
+
+
+def test_shipped_csv_is_what_the_script_makes(balance):
+    time, angle, labels = mr.simulate(np.random.default_rng(mr.SEED), balance=balance)
     assert demo_run_path().read_text() == mr.csv_text(time, angle, labels)

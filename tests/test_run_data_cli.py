@@ -98,6 +98,11 @@ def test_angle_correlation_is_validated(tmp_path, capsys):
     path.write_text(sb.scene_text({"A": sb.PSI_A, "B": sb.PSI_B}, meas))
     assert main(["reduce", str(path), "--no-budget"]) == 2
     assert "angle_correlation" in capsys.readouterr().err
+    # a whole number too large for a float (found by the fuzz test) is refused the same way
+    path.write_text(sb.scene_text({"A": sb.PSI_A, "B": sb.PSI_B}, meas.replace("[[1, 1.5], [1.5, 1]]",
+                                                                           f"[[1, 0.5], [{10**400}, 1]]")))
+    assert main(["reduce", str(path), "--no-budget"]) == 2
+    assert "between -1 and 1" in capsys.readouterr().err
 
 
 def test_mesh_paths_are_rebased_to_the_new_folder(tmp_path):
