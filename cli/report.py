@@ -47,6 +47,9 @@ CAUTIONS = (
     "afterwards, and use sealed or painted masses.",
     "Heavy masses crush and tip: move them with rated lifting gear and fix them on secured mounts.",
     "Laser optical levers: use low-power lasers only; never let the beam or its reflection reach an eye.",
+    "Machining lead or tungsten alloys makes toxic dust and chips: extraction, wet methods and the lab's "
+    "rules for them.",
+    "Turntables pinch and vacuum cans can implode: guards, and never a hand in a moving mount.",
     "A loaded fiber can snap: keep the case closed and stand clear.",
     "Local codes, your laboratory's safety rules and licensed practice come first.",
 )

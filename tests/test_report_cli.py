@@ -413,3 +413,14 @@ def test_report_names_no_folder_of_this_machine_and_follows_the_umask(full_repor
     assert stat.S_IMODE(out.stat().st_mode) == 0o777 & ~mask  # POSIX mkdir(2): 0777 & ~umask
     for p in out.iterdir():
         assert stat.S_IMODE(p.stat().st_mode) == 0o666 & ~mask, p.name  # open(2): 0666 & ~umask
+
+
+def test_cautions_name_the_same_hazards_in_readme_and_report():
+    # the hazards named in the lab-safety notes (common practice): each in both places
+    from truepull.cli.report import CAUTIONS
+
+    readme = (Path(__file__).resolve().parent.parent / "README.md").read_text().lower()
+    report = " ".join(CAUTIONS).lower()
+    for hazard in ("lead is toxic", "crush", "laser", "fiber can snap", "dust and chips", "pinch", "implode",
+                   "local codes"):
+        assert hazard in readme and hazard in report, hazard
