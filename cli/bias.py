@@ -2,7 +2,7 @@
 
 A ranked table of d(torque about the axis)/d(parameter) per SI unit of the parameter, the stated
 uncertainty u in the scene, ppm of torque per u, and, when the scene has a [measurement], the
-change of G (first-order model, see truepull.integrate.sensitivity). What-if options:
+change of G (first-order model, see truepull.integrate.balance.sensitivity). What-if options:
   --offset BODY:dx,dy,dz           move a body (scene length unit, world axes)
   --flatten BODY:f[:ax,ay,az]      replace a sphere by an ellipsoid of equal mass, flattening f, its
                                    polar axis along (ax, ay, az) (default: the frame axis)
@@ -20,7 +20,7 @@ import numpy as np
 from truepull.cli.output import fmt, format_table, print_json, save_figure_atomic
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
-from truepull.integrate.sensitivity import (default_position, flatten_what_if, offset_what_if,
+from truepull.integrate.balance.sensitivity import (default_position, flatten_what_if, offset_what_if,
                                             sensitivities, void_what_if)
 
 HELP = "sensitivity of torque and G to each body's placement, size and density"

@@ -1,7 +1,7 @@
 """`truepull fit DATA.csv`: fit a recorded angle-time run per position segment.
 
 Reads a CSV file with a header row, converts time, angle (or light-spot position on an optical-lever
-scale) to SI, fits each contiguous run of one position label (see truepull.integrate.fitting), and
+scale) to SI, fits each contiguous run of one position label (see truepull.integrate.balance.fitting), and
 prints a table, JSON, a picture, or a copy of a scene with its [measurement] table filled in.
 """
 
@@ -19,8 +19,8 @@ from truepull.cli.output import fmt, format_table, print_json, save_figure_atomi
 from truepull.cli.scene_text import replace_table, toml_key, toml_string
 from truepull.geometry.errors import InputError
 from truepull.geometry.quantities import parse_scalar, si_factor, units
-from truepull.integrate.fitting import SegmentFit, fit_record, spot_to_angle
-from truepull.integrate.run_fit import MAX_DRIFT_ORDER, RunFit, fit_run
+from truepull.integrate.balance.fitting import SegmentFit, fit_record, spot_to_angle
+from truepull.integrate.balance.run_fit import MAX_DRIFT_ORDER, RunFit, fit_run
 
 TERMS_RTOL = 1e-6          # engine tolerance for the second-order terms of the equation of motion
 HELP = "fit a recorded angle-time run: period, decrement, equilibrium per position"
@@ -396,8 +396,8 @@ def fit_with_scene(args, scene_path: str, time, angle, labels, line_numbers, val
     terms come from the scene's torque curves (the equilibria located by a first, linear fit and its
     reduction)."""
     from truepull.geometry.scene import load_scene_text
-    from truepull.integrate.reduction import reduce_measurement
-    from truepull.integrate.swing_terms import anharmonic_terms_from_scene
+    from truepull.integrate.balance.reduction import reduce_measurement
+    from truepull.integrate.balance.swing_terms import anharmonic_terms_from_scene
 
     fits, linear = fit_data(time, angle, labels, line_numbers, value_column, args)
     if linear is None:

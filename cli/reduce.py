@@ -78,8 +78,8 @@ def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, sam
     """The reduction of the scene file at `scene_path` and its budget as plain values: the
     `reduce --json` object (also for other verbs, such as the report). `text` replaces the file's
     text (e.g. the scene with a fitted [measurement]), relative paths still from the file's folder."""
-    from truepull.integrate.reduction import reduce_measurement
-    from truepull.integrate.reduction_budget import reduction_budget
+    from truepull.integrate.balance.reduction import reduce_measurement
+    from truepull.integrate.balance.reduction_budget import reduction_budget
 
     if text is None:
         scene = load_scene(scene_path)

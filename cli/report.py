@@ -371,7 +371,7 @@ REPORT_SPHERES = 4
 
 
 def section_bias(ctx: Context) -> Section:
-    sens = _need("truepull.integrate.sensitivity")
+    sens = _need("truepull.integrate.balance.sensitivity")
     s = Section("bias", "What moves the result")
     result = sens.sensitivities(ctx.scene, ctx.args.test, ctx.args.source, rtol=ctx.args.survey_rtol, workers=ctx.args.workers,
                                 scene_path=ctx.scene_path, progress=False)
@@ -420,8 +420,8 @@ def section_bias(ctx: Context) -> Section:
 def section_reduce(ctx: Context, scene=None, scene_text: str | None = None, name: str = "reduce",
                    title: str = "G from the measurement") -> Section:
     """The reduction of `scene` (default: the report's scene) whose TOML text is `scene_text`."""
-    red = _need("truepull.integrate.reduction")
-    bud = _need("truepull.integrate.reduction_budget")
+    red = _need("truepull.integrate.balance.reduction")
+    bud = _need("truepull.integrate.balance.reduction_budget")
     s = Section(name, title)
     scene = scene if scene is not None else ctx.scene
     scene_text = scene_text if scene_text is not None else ctx.scene_text
@@ -520,7 +520,7 @@ def section_fit(ctx: Context) -> Section:
         text, run, notes = fit_cli.fitted_scene_text(fargs, ctx.scene_path, test=ctx.args.test,
                                                      source=ctx.args.source, rtol=ctx.args.rtol)
         from truepull.geometry.scene import load_scene_text
-        from truepull.integrate.fitting import fit_record
+        from truepull.integrate.balance.fitting import fit_record
 
         fits = fit_record(t, angle, labels, file=fargs.data, time_key=fargs.time_column, angle_key=column,
                           line_numbers=lines)

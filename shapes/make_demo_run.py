@@ -86,8 +86,8 @@ def drift(time):
 def demo_balance(scene=None) -> Balance:
     """The demo scene's constants and torque curves (engine samples at NODES for each position)."""
     from truepull.geometry.scene import load_scene
-    from truepull.integrate.reduction import pendulum_inertia, per_unit_g
-    from truepull.integrate.torque_curve import sample_curve
+    from truepull.integrate.balance.reduction import pendulum_inertia, per_unit_g
+    from truepull.integrate.balance.torque_curve import sample_curve
     from truepull.shapes import demo_path
 
     scene = load_scene(demo_path()) if scene is None else scene

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from truepull.integrate import coverage as cov
+from truepull.integrate.balance import coverage as cov
 
 
 def test_covered_count_rule():

@@ -11,7 +11,7 @@ from scipy.integrate import solve_ivp
 from scipy.stats import binom, norm
 
 from truepull.geometry.errors import InputError
-from truepull.integrate.fitting import (
+from truepull.integrate.balance.fitting import (
     SegmentFit,
     fit_record,
     fit_segment,

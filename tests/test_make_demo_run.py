@@ -46,8 +46,8 @@ def test_torque_curve_between_nodes_matches_the_engine(balance):
     # reference: fresh engine samples between the nodes, where the pendulum goes; the curve's error must
     # be within the engine's own error estimate
     from truepull.geometry.scene import load_scene
-    from truepull.integrate.reduction import per_unit_g
-    from truepull.integrate.torque_curve import sample_pose
+    from truepull.integrate.balance.reduction import per_unit_g
+    from truepull.integrate.balance.torque_curve import sample_pose
     from truepull.shapes import demo_path
 
     per_g = per_unit_g(load_scene(demo_path()))

@@ -13,7 +13,7 @@ from scipy.integrate import solve_ivp
 from scipy.special import ellipk
 
 from truepull.geometry.errors import InputError
-from truepull.integrate.oscillator import (fiber_constant_factor, lindstedt_ratio, period_ratio,
+from truepull.integrate.balance.oscillator import (fiber_constant_factor, lindstedt_ratio, period_ratio,
                                            undamped_omega_squared)
 
 

@@ -12,7 +12,7 @@ import pytest
 import synthetic_balance as sb
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene_text
-from truepull.integrate.reduction import reduce_measurement
+from truepull.integrate.balance.reduction import reduce_measurement
 
 # the reference's own rounding: angles and periods are written with 17 digits and the equilibria are
 # solved to ~1e-16 relative; G depends on differences of angles (deflection) or of 1/T^2 (swing), which

@@ -10,8 +10,8 @@ import pytest
 
 import synthetic_balance as sb
 from truepull.geometry.scene import load_scene_text
-from truepull.integrate.reduction import reduce_measurement
-from truepull.integrate.reduction_budget import apply_inputs, reduction_budget, uncertain_inputs
+from truepull.integrate.balance.reduction import reduce_measurement
+from truepull.integrate.balance.reduction_budget import apply_inputs, reduction_budget, uncertain_inputs
 
 
 @pytest.fixture(autouse=True, scope="module")

@@ -1,4 +1,4 @@
-"""One fit of a whole run (integrate/run_fit.py) against runs made by scipy.integrate.solve_ivp of the
+"""One fit of a whole run (integrate/balance/run_fit.py) against runs made by scipy.integrate.solve_ivp of the
 pendulum's full equation of motion I theta'' = -kappa theta - c theta' + torque(theta) with the
 closed-form torque of tests/synthetic_balance.py (point masses by the shell theorem), a slow quadratic
 drift of the read-out's zero and Gaussian read-out noise. The true equilibria come from brentq on
@@ -16,8 +16,8 @@ from scipy.integrate import solve_ivp
 from scipy.stats import binom
 
 import synthetic_balance as sb
-from truepull.integrate.fitting import fit_record
-from truepull.integrate.run_fit import Anharmonic, fit_run
+from truepull.integrate.balance.fitting import fit_record
+from truepull.integrate.balance.run_fit import Anharmonic, fit_run
 
 STEP, SEGMENT = 4.0, 1800.0
 SEQUENCE = ("A", "B", "A", "B", "A", "B")

@@ -20,7 +20,7 @@ from truepull.geometry.bodies import build_body, spec_with
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene_text
 from truepull.integrate.interaction import compare_groups
-from truepull.integrate.sensitivity import (flatten_what_if, offset_what_if, sensitivities, step_factor,
+from truepull.integrate.balance.sensitivity import (flatten_what_if, offset_what_if, sensitivities, step_factor,
                                             void_what_if)
 
 G = 6.6743e-11

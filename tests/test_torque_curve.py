@@ -11,7 +11,7 @@ import pytest
 import synthetic_balance as sb
 from truepull.geometry.quantities import Measured
 from truepull.geometry.scene import load_scene_text
-from truepull.integrate.torque_curve import PoseSample, TorqueCurve, plan_nodes, sample_curve, sample_pose
+from truepull.integrate.balance.torque_curve import PoseSample, TorqueCurve, plan_nodes, sample_curve, sample_pose
 
 
 @pytest.fixture(autouse=True, scope="module")

@@ -14,7 +14,7 @@ import pytest
 
 from truepull.geometry.errors import InputError
 from truepull.geometry.quantities import Measured
-from truepull.integrate.uncertainty import (GumResult, Input, block_size, budget_table, check_surrogate,
+from truepull.integrate.balance.uncertainty import (GumResult, Input, block_size, budget_table, check_surrogate,
                                             gum_linear, monte_carlo, quadratic_surrogate,
                                             surrogate_monte_carlo, validate_gum)
 

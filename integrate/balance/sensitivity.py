@@ -583,7 +583,7 @@ def what_if(scene, kind: str, body: str, new_scene, description: str, test="pend
     ppm = 1e6 * (t1 - t0) / t0 if t0 != 0 else float("nan")
     G_ppm, how = None, None
     if model is not None and full_reduction:
-        from truepull.integrate.reduction import reduce_measurement
+        from truepull.integrate.balance.reduction import reduce_measurement
 
         g0 = reduce_measurement(scene, test=test, source=source, rtol=rtol).G
         g1 = reduce_measurement(new_scene, test=test, source=source, rtol=rtol).G

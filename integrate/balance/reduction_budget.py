@@ -41,10 +41,10 @@ import numpy as np
 from truepull.geometry.bodies import body_parameters, build_body, spec_with
 from truepull.geometry.errors import InputError
 from truepull.geometry.quantities import Measured
-from truepull.integrate.reduction import (NODE_GAP, Reduction, StepUndefined, final_G, measurement_values,
+from truepull.integrate.balance.reduction import (NODE_GAP, Reduction, StepUndefined, final_G, measurement_values,
                                           observations, pendulum_inertia, per_unit_g)
-from truepull.integrate.torque_curve import sample_curve
-from truepull.integrate.uncertainty import (INTERVAL_KIND, SHORTEST_KIND, Input, block_size, budget_table,
+from truepull.integrate.balance.torque_curve import sample_curve
+from truepull.integrate.balance.uncertainty import (INTERVAL_KIND, SHORTEST_KIND, Input, block_size, budget_table,
                                            gum_linear, monte_carlo, surrogate_monte_carlo)
 
 MC_RTOL = 1e-6

@@ -26,7 +26,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 from truepull.geometry.errors import InputError
-from truepull.integrate import coverage as cov
+from truepull.integrate.balance import coverage as cov
 from truepull.integrate import differences
 from truepull.integrate.executor import chunk_evenly, map_parallel, resolve_workers
 

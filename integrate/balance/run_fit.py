@@ -39,7 +39,7 @@ from numpy.polynomial import legendre
 from scipy.optimize import least_squares
 
 from truepull.geometry.errors import InputError
-from truepull.integrate.fitting import _residual_diagnostics, fit_record, split_segments
+from truepull.integrate.balance.fitting import _residual_diagnostics, fit_record, split_segments
 
 MAX_DRIFT_ORDER = 6
 TWO_PI = 2.0 * math.pi

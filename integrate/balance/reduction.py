@@ -61,10 +61,10 @@ from numpy.polynomial import Polynomial
 from truepull.geometry.errors import InputError
 from truepull.geometry.quantities import Measured
 from truepull.integrate.interaction import check_separated
-from truepull.integrate.oscillator import (damped_omega_squared, fiber_constant_factor, period_ratio,
+from truepull.integrate.balance.oscillator import (damped_omega_squared, fiber_constant_factor, period_ratio,
                                            undamped_omega_squared)
 from truepull.integrate.point_model import point_pair_values
-from truepull.integrate.torque_curve import (PoseSample, TorqueCurve, plan_nodes, sample_curve, sample_pose,
+from truepull.integrate.balance.torque_curve import (PoseSample, TorqueCurve, plan_nodes, sample_curve, sample_pose,
                                              turned_scene)
 
 # samples of the torque curve closer than this (rad) are merged (no amplitude given)

@@ -10,9 +10,9 @@ for the largest swing A (see torque_curve.py); G is the reduction's.
 
 from __future__ import annotations
 
-from truepull.integrate.reduction import pendulum_inertia, per_unit_g
-from truepull.integrate.run_fit import Anharmonic
-from truepull.integrate.torque_curve import sample_curve
+from truepull.integrate.balance.reduction import pendulum_inertia, per_unit_g
+from truepull.integrate.balance.run_fit import Anharmonic
+from truepull.integrate.balance.torque_curve import sample_curve
 
 MIN_HALF_SPAN = 1e-3     # rad: the curve's samples at least this far either side of the equilibrium
 
