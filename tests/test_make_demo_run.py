@@ -74,5 +74,19 @@ def test_damping_gives_the_decrement():
 
 
 def test_shipped_csv_is_what_the_script_makes(balance):
+    # the shipped file against a fresh run of its own script: header, times and labels identical; the
+    # angles agree to 1e-12 rad, a millionth of the read-out noise NOISE (2e-6 rad). Not to the last
+    # printed digit (1e-13 rad): the engine's torque samples differ in their last bits between machines
+    # (SIMD width, summation order), and the ODE carries that into the tenth significant digit.
     time, angle, labels = mr.simulate(np.random.default_rng(mr.SEED), balance=balance)
-    assert demo_run_path().read_text() == mr.csv_text(time, angle, labels)
+    shipped = demo_run_path().read_text().splitlines()
+    fresh = mr.csv_text(time, angle, labels).splitlines()
+    assert len(shipped) == len(fresh)
+    head = [i for i, line in enumerate(fresh) if not line[:1].isdigit() and not line.startswith("-")]
+    assert [shipped[i] for i in head] == [fresh[i] for i in head]
+    rows = [i for i in range(len(fresh)) if i not in set(head)]
+    cells_s = [shipped[i].split(",") for i in rows]
+    cells_f = [fresh[i].split(",") for i in rows]
+    assert [(c[0], c[2]) for c in cells_s] == [(c[0], c[2]) for c in cells_f]
+    diff = np.abs(np.array([float(c[1]) for c in cells_s]) - np.array([float(c[1]) for c in cells_f]))
+    assert diff.max() <= 1e-12
