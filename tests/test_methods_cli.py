@@ -1,0 +1,107 @@
+"""`truepull reduce` with the acceleration and servo methods from the command line: several
+[[measurement]] tables side by side, --method, and the one-line refusals (exit 2) of bad tables."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import pytest
+
+import synthetic_methods as sm
+from truepull.cli.main import main
+from truepull.integrate.balance.method_comparison import compare
+
+QUICK = ["--samples", "0", "--workers", "1", "--no-progress"]
+PSI = {"A": 0.0, "B": -2 * sm.ANGLE}
+
+
+def _alpha():
+    return sm.G_TRUE * sm.fft_amplitudes(lambda p: sm.sphere_torque(p, G=1.0))[2] / sm.INERTIA_SPHERES
+
+
+def two_methods_text():
+    alpha = _alpha()
+    tau = {p: 1e-13 - sm.sphere_torque(psi) for p, psi in PSI.items()}
+    acc = f'[[measurement]]\nmethod = "acceleration"\nharmonic = 2\nacceleration = "{alpha!r} +- {1e-5 * alpha!r}"\n'
+    servo = ('[[measurement]]\nmethod = "servo"\ntorque = { '
+             + ", ".join(f'{p} = "{t!r} +- {abs(t) * 2e-5!r} N m"' for p, t in tau.items()) + " }\n")
+    return sm.scene_text(acc + "\n" + servo, positions=PSI)
+
+
+def test_two_methods_side_by_side(tmp_path, capsys):
+    path = tmp_path / "two.toml"
+    path.write_text(two_methods_text())
+    assert main(["reduce", str(path), "--json", *QUICK]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert [r["method"] for r in data["methods"]] == ["acceleration", "servo"]
+    assert data["G"] == data["methods"][0]["G"]
+    for r in data["methods"]:
+        assert abs(r["G"] / sm.G_TRUE - 1) < 1e-8  # both recover the true G (closed forms)
+    c = data["comparison"][0]
+    a, s = data["methods"]
+    assert c["difference"] == pytest.approx(s["G"] - a["G"], rel=1e-12, abs=1e-30)
+    # no shared inputs with stated uncertainties: u of the difference is sqrt(u_a^2 + u_b^2)
+    assert c["shared_inputs"] == []
+    assert c["u_difference"] == pytest.approx(math.hypot(a["u_G"], s["u_G"]), rel=1e-12)
+    assert main(["reduce", str(path), *QUICK]) == 0
+    text = capsys.readouterr().out
+    assert "methods side by side" in text and "servo - acceleration" in text
+    assert main(["reduce", str(path), "--json", "--method", "servo", *QUICK]) == 0
+    one = json.loads(capsys.readouterr().out)
+    assert one["method"] == "servo" and "methods" not in one
+
+
+def test_difference_with_shared_inputs_follows_jcgm_100_eq_13():
+    # JCGM 100:2008 eq. 13 for y = G_a - G_b with independent inputs: u^2(y) = sum (c_a,i - c_b,i)^2 u_i^2
+    rows_a = [{"input": "body[x].radius", "sensitivity": 2.0, "u": 0.1}, {"input": "measurement.torque.A",
+              "sensitivity": 1.0, "u": 0.3}]
+    rows_b = [{"input": "body[x].radius", "sensitivity": 0.5, "u": 0.1}, {"input": "measurement.acceleration",
+              "sensitivity": 3.0, "u": 0.2}]
+    u_a, u_b = math.hypot(0.2, 0.3), math.hypot(0.05, 0.6)
+    c = compare({"method": "servo", "G": 10.0, "u_G": u_a, "budget": rows_a},
+                {"method": "acceleration", "G": 9.0, "u_G": u_b, "budget": rows_b})
+    direct = math.sqrt(((2.0 - 0.5) * 0.1) ** 2 + 0.3**2 + 0.6**2)
+    assert c["u_difference"] == pytest.approx(direct, rel=1e-12)
+    assert c["in_combined_u"] == pytest.approx(1.0 / direct, rel=1e-12)
+
+
+BAD = [
+    ('method = "acceleration"\nacceleration = "1e-9"\n', "measurement.harmonic"),
+    ('method = "acceleration"\nharmonic = 2\n', "measurement.acceleration"),
+    ('method = "acceleration"\nharmonic = 0\nacceleration = "1e-9"\n', "measurement.harmonic"),
+    ('method = "acceleration"\nharmonic = 2.0\nacceleration = "1e-9"\n', "measurement.harmonic"),
+    ('method = "acceleration"\nharmonic = 2\nacceleration = "1e-9 m"\n', "measurement.acceleration"),
+    ('method = "acceleration"\nharmonic = 2\nacceleration = "1e-9"\ngroup = "nobody"\n', "measurement.group"),
+    ('method = "acceleration"\nharmonic = 2\nacceleration = "1e-9"\nperiod = "300 s"\n', "measurement.period"),
+    ('method = "acceleration"\nharmonic = 3\nacceleration = "1e-9"\n', "measurement.harmonic"),
+    ('method = "servo"\n', "measurement.torque"),
+    ('method = "servo"\ntorque = { A = "1e-14 N m", B = "2e-14 N m" }\nvoltage = { A = 1, B = 2 }\n',
+     "measurement.voltage"),
+    ('method = "servo"\nvoltage = { A = 1, B = 2 }\n', "measurement.torque_per_volt2"),
+    ('method = "servo"\ntorque = { A = "1e-14 N m" }\n', "measurement.torque"),
+    ('method = "servo"\ntorque = { A = "1e-14 N m", B = "1e-14 s" }\n', "measurement.torque.B"),
+    ('method = "servo"\ntorque = { A = "1e-14 N m", C = "2e-14 N m" }\n', "measurement.torque.C"),
+    ('method = "servo"\ntorque = { A = "1e-14 N m", B = "2e-14 N m" }\nharmonic = 2\n', "measurement.harmonic"),
+    ('method = "servo"\ntorque = { A = "1e-14 N m", B = "2e-14 N m" }\nperiod = "100 s"\n', "measurement.period"),
+]
+
+
+@pytest.mark.parametrize("table, key", BAD)
+def test_bad_measurement_tables_exit_2(tmp_path, capsys, table, key):
+    path = tmp_path / "bad.toml"
+    path.write_text(sm.scene_text("[measurement]\n" + table, positions=PSI))
+    assert main(["reduce", str(path), *QUICK]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and key in err[0] and "Traceback" not in err[0]
+
+
+def test_two_tables_of_one_method_and_an_unknown_method_option_exit_2(tmp_path, capsys):
+    t = '[[measurement]]\nmethod = "acceleration"\nharmonic = 2\nacceleration = "1e-9"\n'
+    path = tmp_path / "twice.toml"
+    path.write_text(sm.scene_text(t + t, positions=PSI))
+    assert main(["reduce", str(path), *QUICK]) == 2
+    assert "measurement[#2].method" in capsys.readouterr().err
+    path.write_text(two_methods_text())
+    assert main(["reduce", str(path), "--method", "swing", *QUICK]) == 2
+    assert "--method" in capsys.readouterr().err
