@@ -789,6 +789,8 @@ def _chain(steps) -> tuple[tuple[Correction, ...], float | None]:
             corrections.append(Correction(name, math.nan, False, "undefined for this pendulum"))
             continue
         factor = value / previous if previous is not None else math.nan
+        if previous is None and not note:
+            note = "the first defined step: nothing before it to compare with"
         corrections.append(Correction(name, float(factor), bool(applied), note))
         previous = value
     return tuple(corrections), G_point
