@@ -105,3 +105,28 @@ def test_two_tables_of_one_method_and_an_unknown_method_option_exit_2(tmp_path, 
     path.write_text(two_methods_text())
     assert main(["reduce", str(path), "--method", "swing", *QUICK]) == 2
     assert "--method" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("method", ["acceleration", "servo"])
+def test_the_demos_reduce(method, capsys):
+    # the demos' numbers were made with an invented true G of 6.6790e-11 and small invented noise
+    # (shapes/make_demo_methods.py): the reduction must land within a few of the stated u
+    import truepull.shapes as shapes
+
+    assert main(["reduce", str(shapes.method_demo_path(method)), "--json", "--no-budget", "--no-progress"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["method"] == method
+    assert abs(data["G"] / 6.6790e-11 - 1) < 2e-5
+
+
+def test_report_shows_every_method(tmp_path, capsys):
+    path = tmp_path / "two.toml"
+    path.write_text(two_methods_text())
+    out = tmp_path / "rep"
+    code = main(["report", str(path), "--out", str(out), "--no-view", "--no-bias", "--samples", "0", "--workers", "1"])
+    assert code in (0, 3)
+    md = (out / "report.md").read_text()
+    assert "G by acceleration" in md and "G by servo" in md and "servo - acceleration" in md
+    assert (out / "budget-acceleration.png").is_file() and (out / "budget-servo.png").is_file()
+    info = json.loads((out / "report.json").read_text())
+    assert [r["method"] for r in info["sections"]["reduce"]["methods"]] == ["acceleration", "servo"]
