@@ -48,6 +48,9 @@ real shapes, exact moment of inertia, damping, gravitational stiffness at the pe
 (deflection), exact (not linearised) equilibrium, finite amplitude (swing), fiber anelasticity (swing).
 The first factor is the textbook far-mass correction; the value with every pair as points (what
 `truepull compare` calls the point model) is also reported, as G_point_all_pairs.
+
+The acceleration-feedback and servo methods have their own modules (acceleration_method.py,
+servo_method.py); reduce_measurement hands them the scene and they return the same Reduction.
 """
 
 from __future__ import annotations
