@@ -400,7 +400,7 @@ def section_bias(ctx: Context) -> Section:
         s.data["what_if"] = [w.to_json() for w in what_ifs]
         parts.append(f"What if a sphere is not round: each {ctx.args.source} sphere as an ellipsoid of equal mass and "
                      f"density, flattened by {REPORT_FLATTENING:g} along the fiber axis (semi-axes a, a, a (1 - f)), "
-                     f"the others unchanged (torque at {where}; G by {what_ifs[0].G_method or 'no model: no measurement'}).")
+                     f"the others unchanged (torque at {where}; G by {what_ifs[0].G_method or NO_G_MODEL}).")
         parts.append(_md_table(["change", "torque before (N m)", "after (N m)", "torque ppm", "G ppm"],
                                what_if_rows(what_ifs), "lrrrr")
                      + "\n\nColumns: the change made; the torque before and after it; the torque's change in ppm; "
@@ -414,6 +414,8 @@ def section_bias(ctx: Context) -> Section:
     s.markdown = "\n\n".join(parts)
     return s
 
+
+NO_G_MODEL = "no first-order model: no measurement, or the acceleration or servo method"
 
 # --- reduce --------------------------------------------------------------------------------------
 
