@@ -72,3 +72,18 @@ def test_servo_pushing_with_the_pull_is_refused():
     bad = {p: -t for p, t in servo_torques().items()}
     with pytest.raises(InputError, match="negative G"):
         reduce_measurement(load_scene_text(torque_scene(bad)))
+
+
+def test_monte_carlo_agrees_with_the_gum_for_the_servo():
+    # G = -(tau_A - tau_B) / (Gamma_A - Gamma_B) is linear in the torques: with normal inputs the
+    # Monte Carlo's u equals the GUM's (JCGM 101:2008, 9.2: a linear model of normal inputs)
+    from truepull.integrate.balance.reduction_budget import reduction_budget
+
+    tau = servo_torques(2e-13)
+    body = ", ".join(f'{p} = "{t!r} +- {abs(t) * 1e-3!r} N m"' for p, t in tau.items())
+    text = sb.scene_text({p: PSI[p] for p in tau}, f'method = "servo"\ntorque = {{ {body} }}\n')
+    scene = load_scene_text(text)
+    red = reduce_measurement(scene)
+    bud = reduction_budget(scene, red, text, samples=20000, check_draws=5, workers=1)
+    assert bud.monte_carlo.u == pytest.approx(bud.u_G, rel=0.03)
+    assert bud.monte_carlo.value == pytest.approx(red.G, rel=1e-4)
