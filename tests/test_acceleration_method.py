@@ -9,37 +9,12 @@ import pytest
 
 import synthetic_methods as sm
 from truepull.geometry.scene import load_scene_text
-from truepull.integrate.balance.reduction import per_unit_g, reduce_measurement
-from truepull.integrate.balance.turn_harmonics import exact_harmonics
+from truepull.integrate.balance.reduction import reduce_measurement
 
 
 def acceleration_table(alpha, harmonic=2, u=None):
     value = f'"{alpha!r} +- {u!r} rad/s^2"' if u else f'"{alpha!r} rad/s^2"'
     return f'[measurement]\nmethod = "acceleration"\nharmonic = {harmonic}\nacceleration = {value}\n'
-
-
-def test_torque_harmonics_against_numpy_fft_of_newtons_torque():
-    # reference: numpy.fft of Newton's point-pair torque (shell theorem for the spheres)
-    ref = sm.fft_amplitudes(lambda p: sm.sphere_torque(p, G=1.0))
-    scene = per_unit_g(load_scene_text(sm.scene_text(acceleration_table(1e-9))))
-    h = exact_harmonics(scene, 2, "pendulum", "attractor", 1e-11, "series")
-    for n in (2, 4, 6):
-        assert abs(h.amplitude(n) - ref[n]) <= max(h.error, 1e-14 * ref[2]), n
-    assert abs(h.amplitude(2) - ref[2]) <= h.error  # the stated error bounds the true one
-    assert h.amplitude(1) < 1e-12 * ref[2] and h.amplitude(3) < 1e-12 * ref[2]  # two-fold symmetry
-
-
-def test_grid_route_where_the_series_is_refused():
-    # the attractor comes nearer the pivot than the pendulum reaches, at another height: the multipole
-    # series is refused and the engine's torque on a uniform turn grid goes through an FFT
-    # reference: numpy.fft of Newton's torque for this layout
-    r, z, d = 0.035, 0.035, 0.06
-    ref = sm.fft_amplitudes(lambda p: sm.sphere_torque(p, G=1.0, r=r, z=z, d=d))
-    text = sm.scene_text(acceleration_table(1e-9), r=r, z=z, d=d)
-    h = exact_harmonics(per_unit_g(load_scene_text(text)), 2, "pendulum", "attractor", 1e-10)
-    assert "refused" in h.how and h.turns > 0
-    assert abs(h.amplitude(2) - ref[2]) <= h.error
-    assert abs(h.amplitude(2) / ref[2] - 1) < 1e-8
 
 
 @pytest.mark.parametrize("layout", ["series", "grid"])
@@ -86,28 +61,6 @@ def test_budget_sensitivity_to_the_measured_amplitude_is_G_over_alpha():
     assert abs(row["sensitivity"] / (red.G / alpha) - 1) < 1e-6
     assert abs(bud.u_G / (1e-5 * red.G) - 1) < 1e-6
 
-
-def test_leakage_bound_against_a_wobbling_turn():
-    # reference: Newton's torque sampled along a turn phi(t) = Omega t + e sin(k Omega t) and numpy's
-    # FFT in time; the change of the measured harmonic per radian of e must stay within the stated bound
-    import numpy as np
-
-    from truepull.integrate.balance.turn_harmonics import leakage_per_radian
-
-    scene = per_unit_g(load_scene_text(sm.scene_text(acceleration_table(1e-9))))
-    h = exact_harmonics(scene, 2, "pendulum", "attractor", 1e-11, "series")
-    e, n = 1e-5, 256
-    t = 2 * np.pi * np.arange(n) / n
-    plain = np.fft.rfft([sm.sphere_torque(x, G=1.0) for x in t])[2]
-    for k in (1, 2, 3):
-        wobbled = np.fft.rfft([sm.sphere_torque(x + e * np.sin(k * x), G=1.0) for x in t])[2]
-        change = abs(wobbled - plain) / (e * abs(plain))
-        bound = leakage_per_radian(h, 2, k)
-        # the harmonic itself shrinks by J0(m e) ~ 1 - (m e)^2 / 4: second order, m^2 e / 4 = e per radian
-        assert change <= bound + 2 * e, k
-        if k == 2:  # the two-ball layout's harmonics share their phase: the bound is attained
-            assert abs(change - bound) < 1e-4
-    assert leakage_per_radian(h, 2, 2) > 0.1  # the 4th harmonic leaks into the 2nd with a wobble at 2 Omega
 
 
 def test_a_named_group_makes_the_signal():
