@@ -83,6 +83,9 @@ def reduce_acceleration(scene, *, test: str = "pendulum", source: str = "attract
     if src != source:
         notes.append(f"the signal is the pull of group '{src}' (the measurement's group) turning relative to the "
                      f"pendulum")
+    if scene.positions:
+        notes.append("the [[position]] tables are not used by the acceleration method: the signal is the turn of the "
+                     "scene as drawn")
     inertia, inertia_point = pendulum_inertia(scene, test)
     exact = exact_harmonics(s1, harmonic, test, src, rtol, route)
     point = point_harmonics(s1, harmonic, test, src)

@@ -575,14 +575,16 @@ def reduce_measurement(scene, *, test: str = "pendulum", source: str = "attracto
     if not rtol > 0:
         raise InputError(scene.path, "--rtol", "the tolerance must be greater than zero")
     method = _measurement(scene).method
-    if method == "acceleration":
-        from truepull.integrate.balance.acceleration_method import reduce_acceleration
-
-        return reduce_acceleration(scene, test=test, source=source, rtol=rtol)
-    if method == "servo":
-        from truepull.integrate.balance.servo_method import reduce_servo
-
-        return reduce_servo(scene, test=test, source=source, rtol=rtol)
+    if method in ("acceleration", "servo"):
+        if method == "acceleration":
+            from truepull.integrate.balance.acceleration_method import reduce_acceleration as reduce_own
+        else:
+            from truepull.integrate.balance.servo_method import reduce_servo as reduce_own
+        result = reduce_own(scene, test=test, source=source, rtol=rtol)
+        if fiber_q is not None:
+            result = replace(result, notes=result.notes + (f"fiber_q is used by time-of-swing only; the {method} "
+                                                           "reduction does not use it",))
+        return result
     obs = observations(scene, fiber_q, test=test)
     notes: list[str] = []
     m = scene.measurement
