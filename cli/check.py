@@ -62,9 +62,8 @@ def render(scene, data: dict) -> str:
         lines.append(format_table(["position", "group", "turn", "unit", f"shift {u}"], prow, align="llrll"))
     if scene.measurement is not None:
         lines.append("")
-        m = scene.measurement
-        named = m.angle if m.method == "deflection" else m.period
-        lines.append(f"measurement: {m.method} at positions {', '.join(named) or '-'}")
+        for m in scene.measurements or (scene.measurement,):
+            lines.append(f"measurement: {m.method} at positions {', '.join(m.positions) or '-'}")
     lines.append("")
     if data["warnings"]:
         lines.append(f"warnings ({len(data['warnings'])}):")

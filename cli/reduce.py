@@ -1,5 +1,8 @@
 """`truepull reduce SCENE`: G from the scene's [measurement], every correction itemised, with the
-uncertainty budget (GUM linear propagation and Monte Carlo)."""
+uncertainty budget (GUM linear propagation and Monte Carlo). A scene with several [[measurement]]
+tables is reduced by each method, side by side with their differences (method_comparison.py);
+`--method NAME` reduces one. With several, the JSON's top-level keys are the first method's, and
+"methods" holds every method's object, "comparison" each against the first."""
 
 from __future__ import annotations
 
@@ -38,6 +41,9 @@ def add_arguments(parser) -> None:
     parser.add_argument("--fiber-q", metavar="Q",
                         help="fiber quality factor for the anelasticity correction of time-of-swing, "
                              "e.g. 2500 or '2500 +- 300' (replaces the scene's fiber_q)")
+    parser.add_argument("--method", default=None,
+                        help="reduce only the measurement by this method (deflection, swing, acceleration, servo) "
+                             "when the scene has several [[measurement]] tables")
     parser.add_argument("--test", default="pendulum", help="the suspended group (default pendulum)")
     parser.add_argument("--source", default="attractor", help="the source group (default attractor)")
     parser.add_argument("--no-budget", action="store_true", help="skip the uncertainty budget")
@@ -64,7 +70,9 @@ def reduce_data(args) -> dict:
         fit = {"data": args.data, "run": run.as_dict(), "notes": notes}
     data = reduction_data(args.scene, rtol=args.rtol, mc_rtol=args.mc_rtol, samples=args.samples, seed=args.seed,
                           check_draws=args.check_draws, full_model=args.full_model, workers=args.workers,
-                          scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test, source=args.source, budget=not args.no_budget, progress=not args.no_progress, text=text)
+                          scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test, source=args.source,
+                          budget=not args.no_budget, progress=not args.no_progress, text=text,
+                          method=getattr(args, "method", None))
     if fit is not None:
         data["fit"] = fit
     return data
@@ -74,19 +82,40 @@ def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, sam
                    seed: int = 0, check_draws: int = 50, full_model: bool = False, workers: int | None = None,
                    scheduler=None, fiber_q: str | None = None, test: str = "pendulum",
                    source: str = "attractor", budget: bool = True, progress: bool = False,
-                   text: str | None = None) -> dict:
+                   text: str | None = None, method: str | None = None) -> dict:
     """The reduction of the scene file at `scene_path` and its budget as plain values: the
     `reduce --json` object (also for other verbs, such as the report). `text` replaces the file's
-    text (e.g. the scene with a fitted [measurement]), relative paths still from the file's folder."""
+    text (e.g. the scene with a fitted [measurement]), relative paths still from the file's folder.
+    `method` picks one of several [[measurement]] tables; without it, every one is reduced (the first
+    method's keys at the top, "methods" and "comparison" beside them)."""
+    from truepull.integrate.balance.method_comparison import comparisons
+
+    kw = dict(rtol=rtol, mc_rtol=mc_rtol, samples=samples, seed=seed, check_draws=check_draws, full_model=full_model,
+              workers=workers, scheduler=scheduler, fiber_q=fiber_q, test=test, source=source, budget=budget,
+              progress=progress, text=text)
+    scene = _load(scene_path, text)
+    if method is not None:
+        return _one_method(scene_path, scene.with_measurement(method.strip().lower()), **kw)
+    if len(scene.measurements) <= 1:
+        return _one_method(scene_path, scene, **kw)
+    results = [_one_method(scene_path, scene.with_measurement(m.method), **kw) for m in scene.measurements]
+    return {**results[0], "methods": results, "comparison": comparisons(results)}
+
+
+def _load(scene_path, text):
+    if text is None:
+        return load_scene(scene_path)
+    from truepull.geometry.scene import load_scene_text
+
+    return load_scene_text(text, str(scene_path), str(Path(scene_path).resolve().parent))
+
+
+def _one_method(scene_path, scene, *, rtol, mc_rtol, samples, seed, check_draws, full_model, workers, scheduler,
+                fiber_q, test, source, budget, progress, text) -> dict:
+    """The `reduce --json` object of the scene's (chosen) measurement."""
     from truepull.integrate.balance.reduction import reduce_measurement
     from truepull.integrate.balance.reduction_budget import reduction_budget
 
-    if text is None:
-        scene = load_scene(scene_path)
-    else:
-        from truepull.geometry.scene import load_scene_text
-
-        scene = load_scene_text(text, str(scene_path), str(Path(scene_path).resolve().parent))
     q = _fiber_q(fiber_q)
     if samples is not None and (isinstance(samples, bool) or not isinstance(samples, int) or samples < 0):
         raise InputError(None, "--samples", f"must be 0 or more, got {samples}")
@@ -166,6 +195,24 @@ def point_formula_lines(data: dict) -> list[str]:
     if not t or data["G_point"] is None:
         return []
     ip, T, pos = t["inertia_point"], t["periods"], t["positions"]
+    if t["method"] == "acceleration":
+        m = t["harmonic"]
+        return [f"G_point = alpha_{m} I_p / |T_{m},point|",
+                f"        = {t['acceleration']:.9g} rad/s^2 x {ip:.9g} kg m^2 / {t['amplitude_point']:.9g} kg^2 m^-1",
+                f"        = {data['G_point']:.9g} {G_UNIT}",
+                f"  (alpha_{m}: the measured amplitude of harmonic {m} of the angular acceleration; I_p: the pendulum's "
+                f"bodies as points; T_{m},point: harmonic {m} of the torque per unit G in the relative turn, every "
+                "body a point, every pair)"]
+    if t["method"] == "servo":
+        tau, gam = t["servo_torque"], t["torques_per_G"]
+        if len(pos) == 2:
+            return [f"G_point = -(tau_{pos[0]} - tau_{pos[1]}) / (Gamma_{pos[0]} - Gamma_{pos[1]})",
+                    f"        = -({tau[0]:.9g} - ({tau[1]:.9g})) N m / ({gam[0]:.9g} - ({gam[1]:.9g})) kg^2 m^-1",
+                    f"        = {data['G_point']:.9g} {G_UNIT}",
+                    "  (tau: the servo torques; Gamma: torque per unit G of each attractor body on its nearest "
+                    "pendulum body, as points, at the held angle)"]
+        return [f"G_point = -s, s the weighted least-squares slope of the servo torques against Gamma = "
+                f"{data['G_point']:.9g} {G_UNIT}"]
     if t["method"] == "deflection":
         phi, gam = t["angles"], t["torques_per_G"]
         if len(pos) == 2:
@@ -196,14 +243,77 @@ def point_formula_lines(data: dict) -> list[str]:
             + f", I_p {ip:.9g} kg m^2 = {data['G_point']:.9g}"]
 
 
+def _method_line(data: dict) -> str:
+    positions = [p["position"] for p in data["positions"]]
+    if data["method"] == "deflection":
+        where = f"angles at {', '.join(positions)}; period at {positions[0]}"
+    elif data["method"] == "swing":
+        where = f"periods at {', '.join(positions)}"
+    elif data["method"] == "servo":
+        where = f"servo torques at {', '.join(positions)}, pendulum held as drawn"
+    else:
+        t = data["method_terms"]
+        where = f"harmonic {t['harmonic']} of the angular acceleration in the turn of '{t['signal_group']}'"
+    return f"method: {data['method']} ({where})"
+
+
+def method_lines(data: dict) -> list[str]:
+    """What a method measures at its positions (or in its harmonics), as table lines."""
+    t = data.get("method_terms")
+    if data["method"] == "acceleration":
+        rows = [[str(h["harmonic"]), fmt(h["amplitude"], 9), fmt(h["amplitude_point"], 9),
+                 f"{math.degrees(h['phase']):.4f}"] for h in t["harmonics"]]
+        return [format_table(["harmonic", "|T_n| per unit G", "point model", "phase deg"], rows, align="rrrr"),
+                f"|T_{t['harmonic']}| = {t['amplitude']:.12g} +- {t['amplitude_error']:.2g} kg^2 m^-1 ({t['route']})"]
+    prow = [[p["position"], fmt(p["equilibrium"] * 1e3, 9), fmt(p["torque_axis"], 6), fmt(p["stiffness_axis"], 6),
+             "-" if p["period_ratio"] is None else fmt(p["period_ratio"], 12),
+             " ".join(fmt(x * 1e3, 6) for x in p["engine_turns"])] for p in data["positions"]]
+    if data["method"] == "servo":
+        rows = [[p["position"], fmt(tau, 9), fmt(g, 9), fmt(p["torque_axis"], 9)]
+                for p, tau, g in zip(data["positions"], t["servo_torque"], t["gamma_per_G"])]
+        return [format_table(["position", "servo torque N m", "Gamma per unit G", "G Gamma N m"], rows, align="lrrr"),
+                f"common torque offset {t['offset_torque']:.6g} N m (cancels)"]
+    return [format_table(["position", "equilibrium mrad", "torque N m", "stiffness N m/rad",
+                          "T(A)/T(0)", "engine turns mrad"], prow, align="lrrrrl")]
+
+
+def inertia_line(data: dict) -> str:
+    fiber = ("" if data["fiber_constant"] is None else f"; fiber constant {fmt(data['fiber_constant'], 9)} N m/rad")
+    return f"moment of inertia {fmt(data['inertia'], 9)} kg m^2 (points: {fmt(data['inertia_point'], 9)})" + fiber
+
+
+def comparison_lines(data: dict) -> list[str]:
+    """The methods side by side and each one's difference from the first."""
+    if not data.get("comparison"):
+        return []
+    rows = [[r["method"], f"{r['G']:.9g}", "-" if r["u_G"] is None else f"{r['u_G']:.3g}",
+             "-" if r["u_G"] is None else f"{r['u_G'] / r['G'] * 1e6:.3g}"] for r in data["methods"]]
+    out = ["methods side by side:", format_table(["method", f"G {G_UNIT}", "u(G)", "u ppm"], rows, align="lrrr")]
+    for c in data["comparison"]:
+        a, b = c["methods"]
+        line = f"{a} - {b}: {c['difference']:.3g} ({c['difference_ppm']:+.3g} ppm)"
+        if c["u_difference"] is not None:
+            z = c["in_combined_u"]
+            line += (f" = {z:+.2f} u_c, u_c(difference) = {c['u_difference']:.3g} with the shared inputs "
+                     f"correlated ({len(c['shared_inputs'])} shared); {c['in_combined_u_independent']:+.2f} u_c "
+                     "if the budgets were independent")
+        out.append(line)
+    return out
+
+
 def render(data: dict) -> str:
+    if data.get("methods"):
+        parts = ["\n".join(comparison_lines(data))]
+        parts += [render_one(r) for r in data["methods"]]
+        return ("\n\n" + "=" * 78 + "\n").join(parts)
+    return render_one(data)
+
+
+def render_one(data: dict) -> str:
     lines = []
     title = f" - {data['title']}" if data.get("title") else ""
     lines.append(f"scene {data['scene']}{title}")
-    positions = [p["position"] for p in data["positions"]]
-    where = (f"angles at {', '.join(positions)}; period at {positions[0]}" if data["method"] == "deflection"
-             else f"periods at {', '.join(positions)}")
-    lines.append(f"method: {data['method']} ({where})")
+    lines.append(_method_line(data))
     lines.append("")
     G, u = data["G"], data["u_G"]
     lines.append(g_line(data))
@@ -221,13 +331,8 @@ def render(data: dict) -> str:
     lines.append("corrections (their product takes G_point to G):")
     lines.append(format_table(["correction", "factor", "ppm", "", "note"], rows, align="lrrll"))
     lines.append("")
-    prow = [[p["position"], fmt(p["equilibrium"] * 1e3, 9), fmt(p["torque_axis"], 6), fmt(p["stiffness_axis"], 6),
-             "-" if p["period_ratio"] is None else fmt(p["period_ratio"], 12),
-             " ".join(fmt(t * 1e3, 6) for t in p["engine_turns"])] for p in data["positions"]]
-    lines.append(format_table(["position", "equilibrium mrad", "torque N m", "stiffness N m/rad",
-                               "T(A)/T(0)", "engine turns mrad"], prow, align="lrrrrl"))
-    lines.append(f"moment of inertia {fmt(data['inertia'], 9)} kg m^2 (points: {fmt(data['inertia_point'], 9)}); "
-                 f"fiber constant {fmt(data['fiber_constant'], 9)} N m/rad")
+    lines.extend(method_lines(data))
+    lines.append(inertia_line(data))
     if data["budget"]:
         lines.append("")
         lines.append("uncertainty budget (GUM):")
@@ -252,4 +357,5 @@ def run(args) -> int:
         print_json(data)
     else:
         print(render(data))
-    return not_reached_exit("reduce", bool(data["reached"]))
+    reached = all(r["reached"] for r in data.get("methods", [data]))
+    return not_reached_exit("reduce", bool(reached))

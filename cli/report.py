@@ -400,7 +400,7 @@ def section_bias(ctx: Context) -> Section:
         s.data["what_if"] = [w.to_json() for w in what_ifs]
         parts.append(f"What if a sphere is not round: each {ctx.args.source} sphere as an ellipsoid of equal mass and "
                      f"density, flattened by {REPORT_FLATTENING:g} along the fiber axis (semi-axes a, a, a (1 - f)), "
-                     f"the others unchanged (torque at {where}; G by {what_ifs[0].G_method or 'no model: no measurement'}).")
+                     f"the others unchanged (torque at {where}; G by {what_ifs[0].G_method or NO_G_MODEL}).")
         parts.append(_md_table(["change", "torque before (N m)", "after (N m)", "torque ppm", "G ppm"],
                                what_if_rows(what_ifs), "lrrrr")
                      + "\n\nColumns: the change made; the torque before and after it; the torque's change in ppm; "
@@ -414,6 +414,8 @@ def section_bias(ctx: Context) -> Section:
     s.markdown = "\n\n".join(parts)
     return s
 
+
+NO_G_MODEL = "no first-order model: no measurement, or the acceleration or servo method"
 
 # --- reduce --------------------------------------------------------------------------------------
 
@@ -455,14 +457,8 @@ def section_reduce(ctx: Context, scene=None, scene_text: str | None = None, name
     parts.append(_md_table(["correction", "factor", "ppm", "applied", "note"], crow, "lrrll")
                  + "\n\nColumns: the refinement switched on; the factor it multiplies G by; that factor - 1 in ppm; "
                  "whether its input is in the scene; how it was computed.")
-    prow = [[p["position"], fmt(p["equilibrium"] * 1e3, 9), fmt(p["torque_axis"], 6), fmt(p["stiffness_axis"], 6)]
-            for p in data["positions"]]
-    parts.append(_md_table(["position", "equilibrium (mrad)", "torque (N m)", "stiffness (N m/rad)"], prow, "lrrr")
-                 + "\n\nColumns: the measured position; the solved turn of the pendulum from the fiber's rest angle; "
-                 "the attractor's torque about the fiber axis there; its gravitational stiffness "
-                 "-d(torque)/d(turn) there.")
-    parts.append(f"Moment of inertia {fmt(data['inertia'], 9)} kg m^2 (as points: {fmt(data['inertia_point'], 9)}); "
-                 f"fiber constant {fmt(data['fiber_constant'], 9)} N m/rad.")
+    parts.extend(method_tables(data))
+    parts.append(reduce_cli.inertia_line(data)[0].upper() + reduce_cli.inertia_line(data)[1:] + ".")
     if data["budget"]:
         brow = [[b["input"], fmt(b["value"], 9), fmt(b["u"], 3), b["unit"], fmt(b["sensitivity"], 4),
                  f"{b['contribution_ppm']:.3g}", f"{b['share'] * 100:.1f} %"]
@@ -473,11 +469,63 @@ def section_reduce(ctx: Context, scene=None, scene_text: str | None = None, name
                      "the unit of both; the sensitivity dG/dx (m^3 kg^-1 s^-2 per unit of the input); the "
                      "contribution |dG/dx| u in ppm of G; its share of u(G)^2.")
         png, caption = FIGURES["budget"]
+        if name.startswith("reduce_") and name != "reduce_run":  # one of several methods: a figure each
+            png, caption = f"budget-{name.removeprefix('reduce_')}.png", f"{caption} ({data['method']})"
         budget_png(ctx.folder / png, data["budget"], G, u)
         s.figures.append(png)
         parts.append(f"![{caption}]({png})")
     parts += [f"Note: {n}" for n in list(data.get("notes", [])) + list(data.get("budget_notes", []))]
     s.markdown = "\n\n".join(parts)
+    return s
+
+
+def method_tables(data: dict) -> list[str]:
+    """Markdown of what the method measured: per position (deflection, swing, servo) or per harmonic
+    of the turn (acceleration)."""
+    t = data.get("method_terms")
+    if data["method"] == "acceleration":
+        rows = [[str(h["harmonic"]), fmt(h["amplitude"], 9), fmt(h["amplitude_point"], 9),
+                 f"{math.degrees(h['phase']):.4f}"] for h in t["harmonics"]]
+        return [_md_table(["harmonic n", "abs(T_n) per unit G (kg^2 m^-1)", "point model", "phase (deg)"], rows, "rrrr")
+                + f"\n\nColumns: the harmonic of the relative turn of '{t['signal_group']}'; the amplitude of that harmonic "
+                "of the axial torque per unit G; the same for every body a point; its phase. The measured harmonic "
+                f"{t['harmonic']}: abs(T) = {t['amplitude']:.12g} ± {t['amplitude_error']:.2g} ({t['route']})."]
+    if data["method"] == "servo":
+        rows = [[p["position"], fmt(tau, 9), fmt(g, 9), fmt(p["torque_axis"], 9)]
+                for p, tau, g in zip(data["positions"], t["servo_torque"], t["gamma_per_G"])]
+        return [_md_table(["position", "servo torque (N m)", "Gamma per unit G", "G Gamma (N m)"], rows, "lrrr")
+                + "\n\nColumns: the measured position; the servo's torque on the pendulum (given, or c V^2); the "
+                "attractor's exact axial torque per unit G at the held angle; the same times G. The common offset "
+                f"{t['offset_torque']:.6g} N m cancels."]
+    prow = [[p["position"], fmt(p["equilibrium"] * 1e3, 9), fmt(p["torque_axis"], 6), fmt(p["stiffness_axis"], 6)]
+            for p in data["positions"]]
+    return [_md_table(["position", "equilibrium (mrad)", "torque (N m)", "stiffness (N m/rad)"], prow, "lrrr")
+            + "\n\nColumns: the measured position; the solved turn of the pendulum from the fiber's rest angle; "
+            "the attractor's torque about the fiber axis there; its gravitational stiffness "
+            "-d(torque)/d(turn) there."]
+
+
+def section_methods(ctx: Context) -> Section:
+    """Every [[measurement]] of the scene reduced by its method, side by side (with their
+    differences in combined standard uncertainties), each one's reduction below."""
+    from truepull.cli import reduce as reduce_cli
+    from truepull.integrate.balance.method_comparison import comparisons
+
+    s = Section("reduce", "G by each method")
+    results, parts, reached = [], [], True
+    for m in ctx.scene.measurements:
+        one = section_reduce(ctx, ctx.scene.with_measurement(m.method), ctx.scene_text, f"reduce_{m.method}",
+                             f"G by {m.method}")
+        results.append(one.data)
+        reached = reached and bool(one.reached)
+        s.figures.extend(one.figures)
+        parts.append(f"### {one.title}\n\n" + one.markdown)
+    data = {**results[0], "methods": results, "comparison": comparisons(results)}
+    rows = [[r["method"], f"{r['G']:.9g}", "-" if r["u_G"] is None else f"{r['u_G']:.3g}"] for r in results]
+    head = [_md_table(["method", "G (m^3 kg^-1 s^-2)", "u(G)"], rows, "lrr")]
+    head += ["- " + line for line in reduce_cli.comparison_lines(data)[2:]]
+    s.data, s.reached = data, reached
+    s.markdown = "\n\n".join(head + parts)
     return s
 
 
@@ -724,7 +772,9 @@ def plan(scene, args) -> list:
         steps.append(section_bias)
     if args.data:
         steps.append(section_fit)
-    if scene.measurement is not None:
+    if len(scene.measurements) > 1:
+        steps.append(section_methods)
+    elif scene.measurement is not None:
         steps.append(section_reduce)
     if args.data:
         steps.append(section_reduce_run)

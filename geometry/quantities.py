@@ -26,6 +26,11 @@ KINDS = {
     "angular_rate": ("rad/s", "1 / [time]"),
     "dimensionless": ("", ""),
     "gravitational_constant": ("m^3/(kg s^2)", "[length] ** 3 / [mass] / [time] ** 2"),
+    # the measured quantities of the acceleration and servo methods
+    "angular_acceleration": ("rad/s^2", "1 / [time] ** 2"),
+    "torque": ("N*m", "[mass] * [length] ** 2 / [time] ** 2"),
+    "voltage": ("V", "[mass] * [length] ** 2 / [time] ** 3 / [current]"),
+    "torque_per_volt2": ("N*m/V^2", "[time] ** 4 * [current] ** 2 / [mass] / [length] ** 2"),
 }
 
 _MANTISSA = r"[-+]?(?:\d+\.?\d*|\.\d+)"
@@ -49,7 +54,9 @@ _PLUS_MINUS = ("+-", "+/-", "±")
 # - angle up to 1e6 rad (about 160 000 turns; beyond that a double's spacing exceeds 1e-10 rad, so the
 #   angle itself is no longer known to the precision torques need), smallest nonzero 1e-30 rad;
 # - time 1e-12 s .. 1e12 s; angular rate 1e-30 .. 1e6 rad/s; dimensionless 1e-30 .. 1e30;
-# - G 1e-30 .. 1e10 in SI (any value a scaled test may use, never a subnormal or an overflow).
+# - G 1e-30 .. 1e10 in SI (any value a scaled test may use, never a subnormal or an overflow);
+# - angular acceleration 1e-30 .. 1e6 rad/s^2, torque 1e-40 .. 1e10 N m, voltage 1e-12 .. 1e7 V,
+#   torque per volt squared 1e-40 .. 1e6 N m/V^2 (a servo's torques are 1e-15 N m and smaller).
 # Zero is always accepted where the key allows it; the smallest nonzero magnitude binds sizes and other
 # positive values, masses and densities, not coordinates or uncertainties (a computed 3e-18 m is zero).
 # An uncertainty has the same largest bound as its value.
@@ -62,9 +69,14 @@ LIMITS = {
     "angular_rate": (1e6, 1e-30),
     "dimensionless": (1e30, 1e-30),
     "gravitational_constant": (1e10, 1e-30),
+    "angular_acceleration": (1e6, 1e-30),
+    "torque": (1e10, 1e-40),
+    "voltage": (1e7, 1e-12),
+    "torque_per_volt2": (1e6, 1e-40),
 }
 _SI_NAMES = {"length": "m", "mass": "kg", "density": "kg/m^3", "angle": "rad", "time": "s",
-             "angular_rate": "rad/s", "dimensionless": "", "gravitational_constant": "m^3/(kg s^2)"}
+             "angular_rate": "rad/s", "dimensionless": "", "gravitational_constant": "m^3/(kg s^2)",
+             "angular_acceleration": "rad/s^2", "torque": "N m", "voltage": "V", "torque_per_volt2": "N m/V^2"}
 
 # pint's names of true angle units (after alias resolution); any prefixed radian (mrad, urad) too
 ANGLE_UNITS = ("radian", "degree", "arcminute", "arcsecond", "turn", "grade")

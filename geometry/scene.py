@@ -10,6 +10,14 @@ the ranges of `quantities.LIMITS` (lengths 1e-12 .. 1e12 m, angles up to 1e6 rad
 measured equilibrium angles, rows and columns in the order in which `angle`'s keys are written
 (symmetric, unit diagonal, |r| <= 1, positive semi-definite). `truepull fit --into` writes it from the
 one fit of the whole run; the uncertainty budget (GUM and Monte Carlo) uses it. Absent: independent.
+
+Four methods, each with its own keys (any other key is refused, naming the method it belongs to):
+deflection and swing (angle, period, decrement, fiber_q, amplitude, angle_correlation); acceleration
+(harmonic m >= 1, acceleration: the amplitude of that harmonic of the turntable's angular acceleration,
+optional group: the group whose relative turn makes the signal); servo (torque per position, or voltage
+per position with torque_per_volt2 = c, the torque being c V^2). Several methods on one apparatus:
+`[[measurement]]` tables (an array of tables), one method each; keys are then named
+`measurement[#2].harmonic` and so on.
 """
 
 from __future__ import annotations
@@ -31,7 +39,7 @@ from truepull.geometry.quantities import Measured, check_range, parse_direction,
 
 DEFAULT_UNITS = {"length": "m", "mass": "kg", "density": "kg/m^3", "angle": "deg", "time": "s"}
 SHAPE_NAMES = ("point", "sphere", "shell", "cylinder", "box", "cone", "ellipsoid", "mesh")
-METHODS = ("deflection", "swing")
+METHODS = ("deflection", "swing", "acceleration", "servo")
 # largest logarithmic decrement per period accepted: at 10 the amplitude falls by e**10 (22 000 times)
 # in one period, so no period or equilibrium could have been read from such a swing
 MAX_DECREMENT = 10.0
@@ -41,6 +49,12 @@ SCENE_KEYS = ("title", "G")
 FRAME_KEYS = ("pivot", "axis")
 POSITION_KEYS = ("name", "group", "turn", "shift")
 MEASUREMENT_KEYS = ("method", "angle", "period", "decrement", "fiber_q", "amplitude", "angle_correlation")
+# the keys each method accepts (deflection and swing share theirs; the reduction notes unused ones)
+METHOD_KEYS = {"deflection": MEASUREMENT_KEYS, "swing": MEASUREMENT_KEYS,
+               "acceleration": ("method", "harmonic", "acceleration", "group"),
+               "servo": ("method", "torque", "voltage", "torque_per_volt2")}
+# the largest harmonic of the turn an acceleration measurement may name
+MAX_HARMONIC = 64
 BODY_COMMON_KEYS = ("name", "group", "shape", "at", "axis", "rotate", "density", "material", "mass", "subtract")
 ROTATE_KEYS = ("axis", "angle")
 # shape -> {scene key: required?}; box `size` and ellipsoid `radii` are 3-vectors
@@ -119,9 +133,22 @@ class Measurement:
 
     method: str
     angle: dict[str, Measured]
-    period: Measured | dict[str, Measured]
+    period: Measured | dict[str, Measured] | None
     decrement: Measured | None = None
     extra: dict = field(default_factory=dict)
+    where: str = "measurement"
+
+    @property
+    def positions(self) -> tuple[str, ...]:
+        """The measured positions in the order written: deflection the angles', swing the periods',
+        servo the torques' (or voltages'); none for acceleration (the scene as drawn, turning)."""
+        if self.method == "deflection":
+            return tuple(self.angle)
+        if self.method == "swing":
+            return tuple(self.period)
+        if self.method == "servo":
+            return tuple(self.extra.get("torque") or self.extra.get("voltage") or ())
+        return ()
 
 
 @dataclass(frozen=True, eq=False)
@@ -135,6 +162,9 @@ class Scene:
     positions: tuple[Position, ...] = ()
     measurement: Measurement | None = None
     path: str | None = None
+    measurements: tuple[Measurement, ...] = ()
+    """Every measurement of the scene in file order (one [measurement] or several [[measurement]]);
+    `measurement` is the first (or the one chosen with `with_measurement`)."""
     length_unit: str = "m"
     length_factor: float = 1.0
     angle_unit: str = "deg"
@@ -166,6 +196,16 @@ class Scene:
     def with_bodies(self, bodies) -> "Scene":
         return replace(self, bodies=tuple(bodies))
 
+    def with_measurement(self, method: str) -> "Scene":
+        """The scene whose `measurement` is the one of this method (InputError naming the choices
+        when the scene has none)."""
+        for m in self.measurements or ((self.measurement,) if self.measurement is not None else ()):
+            if m.method == method:
+                return replace(self, measurement=m)
+        known = ", ".join(m.method for m in self.measurements) or "none"
+        raise InputError(self.path, "--method", f"the scene has no measurement by method '{method}' "
+                         f"(its measurements: {known})")
+
     def get_position(self, name: str) -> Position:
         for p in self.positions:
             if p.name == name:
@@ -196,7 +236,9 @@ class _Reader:
         self.file = file
         self.base_dir = base_dir
         self.units = dict(DEFAULT_UNITS)
-        self.fixed_units = {"gravitational_constant": "m^3/(kg*s^2)", "dimensionless": ""}
+        self.fixed_units = {"gravitational_constant": "m^3/(kg*s^2)", "dimensionless": "",
+                            "angular_acceleration": "rad/s^2", "torque": "N*m", "voltage": "V",
+                            "torque_per_volt2": "N*m/V^2"}
 
     def fail(self, key, reason):
         raise InputError(self.file, key, reason)
@@ -288,12 +330,11 @@ def load_scene_text(text: str, path_for_messages: str = "-", base_dir: str | Non
     groups = tuple(dict.fromkeys(b.group for b in bodies))
 
     positions = _read_positions(r, data.get("position", []), groups)
-    measurement = None
-    if "measurement" in data:
-        measurement = _read_measurement(r, data["measurement"], positions)
+    measurements = _read_measurements(r, data["measurement"], positions, groups) if "measurement" in data else ()
 
     return Scene(
-        title=title, G=G, frame=frame, bodies=tuple(bodies), positions=positions, measurement=measurement,
+        title=title, G=G, frame=frame, bodies=tuple(bodies), positions=positions,
+        measurement=measurements[0] if measurements else None, measurements=measurements,
         path=path_for_messages, length_unit=r.units["length"],
         length_factor=si_factor(r.units["length"], "length", r.file, "units.length"),
         angle_unit=r.units["angle"], angle_factor=si_factor(r.units["angle"], "angle", r.file, "units.angle"),
@@ -492,58 +533,135 @@ def _per_position(r: _Reader, raw, kind, key, names, positive=False) -> dict[str
     return out
 
 
-def _read_measurement(r: _Reader, raw, positions) -> Measurement:
-    t = r.table(raw, "measurement")
-    r.check_keys(t, MEASUREMENT_KEYS, "measurement", "[measurement]")
+def _read_measurements(r: _Reader, raw, positions, groups) -> tuple[Measurement, ...]:
+    """One [measurement] table, or several [[measurement]] tables with one method each."""
+    if isinstance(raw, list):
+        if not raw:
+            r.fail("measurement", "the [[measurement]] array is empty")
+        out = [_read_measurement(r, item, positions, groups, f"measurement[#{i + 1}]") for i, item in enumerate(raw)]
+        seen = {}
+        for m in out:
+            if m.method in seen:
+                r.fail(f"{m.where}.method", f"a second measurement by method '{m.method}' (the first is "
+                                            f"{seen[m.method]}): give each method once, so `reduce --method` can "
+                                            "name it")
+            seen[m.method] = m.where
+        return tuple(out)
+    return (_read_measurement(r, raw, positions, groups, "measurement"),)
+
+
+def _read_measurement(r: _Reader, raw, positions, groups=(), where: str = "measurement") -> Measurement:
+    t = r.table(raw, where)
     names = [p.name for p in positions]
     if "method" not in t:
-        r.fail("measurement.method", f"missing method (one of: {', '.join(METHODS)})")
-    method = r.string(t["method"], "measurement.method").strip().lower()
+        r.fail(f"{where}.method", f"missing method (one of: {', '.join(METHODS)})")
+    method = r.string(t["method"], f"{where}.method").strip().lower()
     if method not in METHODS:
-        r.fail("measurement.method", f"unknown method '{t['method']}' (one of: {', '.join(METHODS)})")
+        r.fail(f"{where}.method", f"unknown method '{t['method']}' (one of: {', '.join(METHODS)})")
+    allowed = METHOD_KEYS[method]
+    for k in t:
+        if k not in allowed:
+            owners = [m for m, keys in METHOD_KEYS.items() if k in keys]
+            hint = f"; '{k}' belongs to the {' and '.join(dict.fromkeys(owners))} method" if owners else ""
+            r.fail(f"{where}.{k}", f"unknown key '{k}' for a {method} measurement{hint} "
+                                   f"(allowed: {', '.join(allowed)})")
+    if method == "acceleration":
+        return _read_acceleration(r, t, groups, where)
     if not names:
-        r.fail("measurement", "a measurement needs [[position]] tables (the states it switches between)")
-    angle = _per_position(r, t["angle"], "angle", "measurement.angle", names) if "angle" in t else {}
+        r.fail(where, "a measurement needs [[position]] tables (the states it switches between)")
+    if method == "servo":
+        return _read_servo(r, t, names, where)
+    angle = _per_position(r, t["angle"], "angle", f"{where}.angle", names) if "angle" in t else {}
     if "period" not in t:
-        r.fail("measurement.period", "missing period")
+        r.fail(f"{where}.period", "missing period")
     if method == "deflection":
         if len(angle) < 2:
-            r.fail("measurement.angle", "a deflection measurement needs the angle at two or more positions")
+            r.fail(f"{where}.angle", "a deflection measurement needs the angle at two or more positions")
         if isinstance(t["period"], dict):
-            r.fail("measurement.period", "a deflection measurement takes one period (the free period), not a table")
-        period = r.scalar(t["period"], "time", "measurement.period", positive=True)
+            r.fail(f"{where}.period", "a deflection measurement takes one period (the free period), not a table")
+        period = r.scalar(t["period"], "time", f"{where}.period", positive=True)
     else:
         if not isinstance(t["period"], dict):
-            r.fail("measurement.period", "a swing measurement takes one period per position, "
-                                         "e.g. period = { near = ..., far = ... }")
-        period = _per_position(r, t["period"], "time", "measurement.period", names, positive=True)
+            r.fail(f"{where}.period", "a swing measurement takes one period per position, "
+                                      "e.g. period = { near = ..., far = ... }")
+        period = _per_position(r, t["period"], "time", f"{where}.period", names, positive=True)
         if len(period) < 2:
-            r.fail("measurement.period", "a swing measurement needs periods at two or more positions")
+            r.fail(f"{where}.period", "a swing measurement needs periods at two or more positions")
     decrement = None
     if "decrement" in t:
-        decrement = r.scalar(t["decrement"], "dimensionless", "measurement.decrement", nonnegative=True)
+        decrement = r.scalar(t["decrement"], "dimensionless", f"{where}.decrement", nonnegative=True)
         if decrement.value > MAX_DECREMENT:
-            r.fail("measurement.decrement", f"a logarithmic decrement of {decrement.value:.3g} per period is beyond "
-                                            f"{MAX_DECREMENT:g} (the swing would die out within a period: no "
-                                            "period could be measured)")
+            r.fail(f"{where}.decrement", f"a logarithmic decrement of {decrement.value:.3g} per period is beyond "
+                                         f"{MAX_DECREMENT:g} (the swing would die out within a period: no "
+                                         "period could be measured)")
     extra = {}
     if "fiber_q" in t:
-        extra["fiber_q"] = r.scalar(t["fiber_q"], "dimensionless", "measurement.fiber_q", positive=True)
+        extra["fiber_q"] = r.scalar(t["fiber_q"], "dimensionless", f"{where}.fiber_q", positive=True)
     if "amplitude" in t:
         if isinstance(t["amplitude"], dict):
-            extra["amplitude"] = _per_position(r, t["amplitude"], "angle", "measurement.amplitude", names,
+            extra["amplitude"] = _per_position(r, t["amplitude"], "angle", f"{where}.amplitude", names,
                                                positive=True)
         else:
-            extra["amplitude"] = r.scalar(t["amplitude"], "angle", "measurement.amplitude", positive=True)
+            extra["amplitude"] = r.scalar(t["amplitude"], "angle", f"{where}.amplitude", positive=True)
     if "angle_correlation" in t:
-        extra["angle_correlation"] = _read_correlation(r, t["angle_correlation"], len(angle))
-    return Measurement(method, angle, period, decrement, extra)
+        extra["angle_correlation"] = _read_correlation(r, t["angle_correlation"], len(angle),
+                                                       f"{where}.angle_correlation")
+    return Measurement(method, angle, period, decrement, extra, where)
 
 
-def _read_correlation(r: _Reader, raw, n: int) -> tuple[tuple[float, ...], ...]:
-    """An n x n correlation matrix: numbers in [-1, 1], ones on the diagonal, symmetric, positive
-    semi-definite (smallest eigenvalue above -1e-9)."""
-    key = "measurement.angle_correlation"
+def _read_acceleration(r: _Reader, t: dict, groups, where: str) -> Measurement:
+    """harmonic (a whole number m >= 1), acceleration (rad/s^2, > 0), optional group (a known group)."""
+    for k in ("harmonic", "acceleration"):
+        if k not in t:
+            r.fail(f"{where}.{k}", f"an acceleration measurement needs '{k}' (keys: harmonic, acceleration, "
+                                   "optional group)")
+    m = t["harmonic"]
+    if isinstance(m, bool) or not isinstance(m, int):
+        r.fail(f"{where}.harmonic", f"expected a whole number (the harmonic m of the turn), got {_type_name(m)}")
+    if not 1 <= m <= MAX_HARMONIC:
+        r.fail(f"{where}.harmonic", f"the harmonic must be between 1 and {MAX_HARMONIC}, got {m}")
+    acc = r.scalar(t["acceleration"], "angular_acceleration", f"{where}.acceleration", positive=True)
+    extra = {"harmonic": int(m), "acceleration": acc}
+    if "group" in t:
+        group = r.string(t["group"], f"{where}.group").strip()
+        if groups and group not in groups:
+            r.fail(f"{where}.group", f"no body is in group '{group}' (groups: {', '.join(groups)})")
+        extra["group"] = group
+    return Measurement("acceleration", {}, None, None, extra, where)
+
+
+def _read_servo(r: _Reader, t: dict, names, where: str) -> Measurement:
+    """torque per position (N m), or voltage per position (V) with torque_per_volt2 (N m/V^2)."""
+    has_t, has_v, has_c = "torque" in t, "voltage" in t, "torque_per_volt2" in t
+    if has_t and (has_v or has_c):
+        other = "voltage" if has_v else "torque_per_volt2"
+        r.fail(f"{where}.{other}", f"give the servo torque either directly (torque) or as c V^2 (voltage with "
+                                   f"torque_per_volt2), not both (got torque and {other})")
+    if not has_t and not has_v:
+        key = "torque_per_volt2" if has_c else "torque"
+        r.fail(f"{where}.torque", "a servo measurement needs torque = { A = ..., B = ... }, or voltage = { ... } "
+                                  "with torque_per_volt2" + (" (got torque_per_volt2 alone)" if key != "torque" else ""))
+    if has_v and not has_c:
+        r.fail(f"{where}.torque_per_volt2", "voltages need torque_per_volt2 = \"c +- u N m/V^2\" (torque = c V^2)")
+    extra = {}
+    if has_t:
+        extra["torque"] = _per_position(r, t["torque"], "torque", f"{where}.torque", names)
+        count, key = len(extra["torque"]), "torque"
+    else:
+        extra["voltage"] = _per_position(r, t["voltage"], "voltage", f"{where}.voltage", names)
+        c = r.scalar(t["torque_per_volt2"], "torque_per_volt2", f"{where}.torque_per_volt2")
+        if c.value == 0:
+            r.fail(f"{where}.torque_per_volt2", "must not be zero")
+        extra["torque_per_volt2"] = c
+        count, key = len(extra["voltage"]), "voltage"
+    if count < 2:
+        r.fail(f"{where}.{key}", f"a servo measurement needs the {key} at two or more positions")
+    return Measurement("servo", {}, None, None, extra, where)
+
+
+def _read_correlation(r: _Reader, raw, n: int, key: str = "measurement.angle_correlation"):
+    """An n x n correlation matrix (tuple of tuples): numbers in [-1, 1], ones on the diagonal,
+    symmetric, positive semi-definite (smallest eigenvalue above -1e-9)."""
     if n < 2:
         r.fail(key, "needs angles at two or more positions")
     if not (isinstance(raw, list) and len(raw) == n and all(isinstance(row, list) and len(row) == n for row in raw)):

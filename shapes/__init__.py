@@ -3,6 +3,9 @@
 demo.toml       an invented bench torsion balance (not any real apparatus)
 bracket.stl     its mirror bracket, made by make_bracket.py (mm)
 demo_run.csv    an invented recorded run of it, made by make_demo_run.py (time s, angle rad, position)
+demo_acceleration.toml, demo_servo.toml
+                invented balances measured by angular-acceleration feedback and by an electrostatic
+                servo, their [measurement] tables made by make_demo_methods.py
 """
 
 from __future__ import annotations
@@ -25,6 +28,11 @@ def _installed(name: str) -> Path:
 def demo_path() -> Path:
     """Path of the built-in demo scene (TOML); its mesh file lies beside it."""
     return _installed(DEMO_SCENE)
+
+
+def method_demo_path(method: str) -> Path:
+    """Path of the demo scene of a method: "acceleration" or "servo"."""
+    return _installed(f"demo_{method}.toml")
 
 
 def demo_run_path() -> Path:

@@ -48,6 +48,9 @@ real shapes, exact moment of inertia, damping, gravitational stiffness at the pe
 (deflection), exact (not linearised) equilibrium, finite amplitude (swing), fiber anelasticity (swing).
 The first factor is the textbook far-mass correction; the value with every pair as points (what
 `truepull compare` calls the point model) is also reported, as G_point_all_pairs.
+
+The acceleration-feedback and servo methods have their own modules (acceleration_method.py,
+servo_method.py); reduce_measurement hands them the scene and they return the same Reduction.
 """
 
 from __future__ import annotations
@@ -94,6 +97,9 @@ CORRECTION_NAMES = {
     "equilibrium": "exact (not linearised) equilibrium",
     "amplitude": "finite amplitude",
     "anelasticity": "fiber anelasticity",
+    "shapes_harmonic": "exact torque harmonic of the real shapes",
+    "leakage": "leakage of other harmonics",
+    "shapes_servo": "exact torque difference of the real shapes at the held angle",
 }
 
 
@@ -132,9 +138,19 @@ class Observations:
 def measurement_values(scene, fiber_q: Measured | None = None) -> dict[str, Measured]:
     """Every measured value by its budget name ("measurement.angle.A", "measurement.period" or
     "measurement.period.near", "measurement.decrement", "measurement.fiber_q",
-    "measurement.amplitude" or "measurement.amplitude.near"), in SI with its uncertainty."""
+    "measurement.amplitude" or "measurement.amplitude.near"; acceleration "measurement.acceleration";
+    servo "measurement.torque.A" or "measurement.voltage.A" and "measurement.torque_per_volt2"), in SI
+    with its uncertainty."""
     m = _measurement(scene)
     out: dict[str, Measured] = {}
+    if m.method in ("acceleration", "servo"):
+        for key in ("acceleration", "torque", "voltage", "torque_per_volt2"):
+            value = m.extra.get(key)
+            if isinstance(value, dict):
+                out.update({f"measurement.{key}.{name}": v for name, v in value.items()})
+            elif value is not None:
+                out[f"measurement.{key}"] = value
+        return out
     if m.method == "deflection":
         for name, value in m.angle.items():
             out[f"measurement.angle.{name}"] = value
@@ -467,9 +483,10 @@ class Reduction:
     numerical error (engine tolerances, equilibrium solve, quadrature). Per measured position:
     `equilibrium` the solved angle from the fiber's rest angle (rad), `torque` G Gamma there (N m),
     `stiffness` G k there (N m/rad). `fiber_constant` kappa (N m/rad; swing: at the first position's
-    frequency). `offset` (deflection) the common zero of the measured angles (rad). `nodes` the
+    frequency; None for acceleration and servo, which need none). `offset` (deflection) the common zero of the measured angles (rad). `nodes` the
     turns (rad) at which the engine sampled each position's torque curve; `state` what the
-    uncertainty model starts from."""
+    uncertainty model starts from. `method_terms` the acceleration and servo methods' own numbers
+    (acceleration_method.py, servo_method.py), None for deflection and swing."""
 
     method: str
     G: float
@@ -478,7 +495,7 @@ class Reduction:
     numerical_error: float
     inertia: float
     inertia_point: float
-    fiber_constant: float
+    fiber_constant: float | None
     positions: tuple[str, ...]
     equilibrium: tuple[float, ...]
     torque: tuple[float, ...]
@@ -492,9 +509,10 @@ class Reduction:
     notes: tuple[str, ...] = field(default_factory=tuple)
     G_point_all_pairs: float | None = None
     point_terms: dict | None = None
+    method_terms: dict | None = None
 
     def to_json(self) -> dict:
-        return {
+        out = {
             "method": self.method, "G": self.G, "G_point": self.G_point,
             "corrections": [{"name": c.name, "factor": c.factor, "ppm": (c.factor - 1.0) * 1e6,
                              "applied": c.applied, "note": c.note} for c in self.corrections],
@@ -508,6 +526,9 @@ class Reduction:
             "angle_offset": self.offset, "G_point_all_pairs": self.G_point_all_pairs, "notes": list(self.notes),
             "point_terms": self.point_terms,
         }
+        if self.method_terms is not None:
+            out["method_terms"] = self.method_terms
+        return out
 
 
 def per_unit_g(scene):
@@ -549,9 +570,21 @@ def final_G(obs: Observations, curves, inertia: float, state) -> tuple[float, tu
 
 def reduce_measurement(scene, *, test: str = "pendulum", source: str = "attractor", rtol: float = 1e-9,
                        fiber_q: Measured | None = None) -> Reduction:
-    """G from the scene's [measurement], every correction itemised (see the module docstring)."""
+    """G from the scene's [measurement], every correction itemised (see the module docstring; the
+    acceleration and servo methods in acceleration_method.py and servo_method.py)."""
     if not rtol > 0:
         raise InputError(scene.path, "--rtol", "the tolerance must be greater than zero")
+    method = _measurement(scene).method
+    if method in ("acceleration", "servo"):
+        if method == "acceleration":
+            from truepull.integrate.balance.acceleration_method import reduce_acceleration as reduce_own
+        else:
+            from truepull.integrate.balance.servo_method import reduce_servo as reduce_own
+        result = reduce_own(scene, test=test, source=source, rtol=rtol)
+        if fiber_q is not None:
+            result = replace(result, notes=result.notes + (f"fiber_q is used by time-of-swing only; the {method} "
+                                                           "reduction does not use it",))
+        return result
     obs = observations(scene, fiber_q, test=test)
     notes: list[str] = []
     m = scene.measurement
@@ -761,6 +794,8 @@ def _chain(steps) -> tuple[tuple[Correction, ...], float | None]:
             corrections.append(Correction(name, math.nan, False, "undefined for this pendulum"))
             continue
         factor = value / previous if previous is not None else math.nan
+        if previous is None and not note:
+            note = "the first defined step: nothing before it to compare with"
         corrections.append(Correction(name, float(factor), bool(applied), note))
         previous = value
     return tuple(corrections), G_point

@@ -9,7 +9,10 @@ axis, the turntable's axis too); the measured angles, periods, decrement, amplit
 
 The model G(x) rebuilds the scene with the input values (bodies.spec_with + build_body, positions
 replaced), recomputes the moment of inertia and the exact torque curves at the nominal reduction's
-equilibrium samples (budget_nodes), and solves the exact reduction (reduction.final_G). It is a top-level
+equilibrium samples (budget_nodes), and solves the exact reduction (reduction.final_G); for the
+acceleration and servo methods it recomputes their geometry (the torque harmonic and the inertia, or
+the torques at the held angle) and their formula (acceleration_method.py, servo_method.py). Their
+measured inputs: the harmonic's amplitude, the servo torques or voltages and torque_per_volt2. It is a top-level
 function of (context, x), the context holding the scene text, so it can run in worker processes and
 on a Dask cluster. Curves are cached per geometry, so stepping a measured value costs no engine work.
 
@@ -55,6 +58,12 @@ CHECK_DRAWS = 50
 # the most full-model draws an adaptive run with full_model=True makes
 FULL_MODEL_MAX_DRAWS = 1_000_000
 STEP_FRACTION = 0.1
+
+# units of the measured inputs by their budget name's second part
+MEASURED_UNITS = {"angle": "rad", "period": "s", "amplitude": "rad", "acceleration": "rad/s^2", "torque": "N m",
+                  "voltage": "V", "torque_per_volt2": "N m/V^2"}
+# methods whose model is their own module's geometry_terms and g_from_terms
+OWN_MODEL_METHODS = ("acceleration", "servo")
 
 _UNITS = {"at": "m", "density": "kg/m^3", "mass": "kg", "rotate": "rad", "turn": "rad", "shift": "m"}
 
@@ -105,14 +114,13 @@ def uncertain_inputs(scene, test: str = "pendulum", source: str = "attractor",
     for name, m in measured.items():
         if m.u:
             kind = name.split(".")[1]
-            unit = {"angle": "rad", "period": "s", "amplitude": "rad"}.get(kind, "")
+            unit = MEASURED_UNITS.get(kind, "")
             refs.append(InputRef(name, "measurement", "", name, m.value, m.u, unit))
     return tuple(refs)
 
 
 def _measured_positions(scene) -> set[str]:
-    m = scene.measurement
-    return set(m.angle) if m.method == "deflection" else set(m.period)
+    return set(scene.measurement.positions)
 
 
 def apply_inputs(scene, refs, x) -> tuple[object, dict[str, float]]:
@@ -167,21 +175,28 @@ class ModelContext:
     nodes: tuple[tuple[float, ...], ...]
     state: tuple[float, ...]
     fiber_q: tuple[float, float | None] | None
+    method: str | None = None
+    """the measurement to reduce (by method) when the scene has several; None: the first"""
 
 
 @lru_cache(maxsize=4)
-def _scene(text: str, path: str, base_dir: str | None):
+def _scene(text: str, path: str, base_dir: str | None, method: str | None = None):
     from truepull.geometry.scene import load_scene_text
 
-    return load_scene_text(text, path, base_dir)
+    scene = load_scene_text(text, path, base_dir)
+    return scene if method is None else scene.with_measurement(method)
 
 
 @lru_cache(maxsize=8)
 def _geometry(context: ModelContext, geometry_values: tuple[float, ...]):
-    """(torque curves per position, moment of inertia) for one set of geometry inputs."""
-    scene = _scene(context.scene_text, context.path, context.base_dir)
+    """(torque curves per position, moment of inertia, scene) for one set of geometry inputs; for the
+    acceleration and servo methods (their geometry terms, None, scene)."""
+    scene = _scene(context.scene_text, context.path, context.base_dir, context.method)
     refs = [r for r in context.refs if r.kind != "measurement"]
     scene, _ = apply_inputs(scene, refs, geometry_values)
+    method = scene.measurement.method
+    if method in OWN_MODEL_METHODS:
+        return _own_model(method).geometry_terms(scene, context.test, context.source, context.rtol), None, scene
     inertia, _ = pendulum_inertia(scene, context.test)
     s1 = per_unit_g(scene)
     obs_positions = _positions_in_order(scene)
@@ -191,8 +206,16 @@ def _geometry(context: ModelContext, geometry_values: tuple[float, ...]):
 
 
 def _positions_in_order(scene) -> tuple[str, ...]:
-    m = scene.measurement
-    return tuple(m.angle) if m.method == "deflection" else tuple(m.period)
+    return scene.measurement.positions
+
+
+def _own_model(method: str):
+    """The module of a method with its own model (geometry_terms, g_from_terms)."""
+    if method == "acceleration":
+        from truepull.integrate.balance import acceleration_method as module
+    else:
+        from truepull.integrate.balance import servo_method as module
+    return module
 
 
 def g_model(context: ModelContext, x) -> float:
@@ -201,6 +224,19 @@ def g_model(context: ModelContext, x) -> float:
     geometry = tuple(float(v) for r, v in zip(context.refs, x) if r.kind != "measurement")
     curves, inertia, scene = _geometry(context, geometry)
     measured = {r.param: float(v) for r, v in zip(context.refs, x) if r.kind == "measurement"}
+    method = scene.measurement.method
+    if method == "acceleration":
+        from truepull.integrate.balance.acceleration_method import g_from_terms
+
+        value = measured.get("measurement.acceleration", scene.measurement.extra["acceleration"].value)
+        return float(g_from_terms(curves, value))
+    if method == "servo":
+        from truepull.integrate.balance.servo_method import g_from_terms
+
+        try:
+            return float(g_from_terms(scene, curves, measured))
+        except StepUndefined:
+            return math.nan
     q = None if context.fiber_q is None else Measured(*context.fiber_q)
     obs = observations(scene, q, measured, test=context.test)
     try:
@@ -297,7 +333,10 @@ def budget_nodes(scene, reduction: Reduction, fiber_q=None) -> tuple[tuple[float
     equilibrium (and, for a swing of amplitude A, at the equilibrium -+ A), without the pose as drawn
     when the pendulum hangs elsewhere. The model moves the equilibrium only by the small changes of the
     inputs, over which the curve through these samples is exact to far below the uncertainties (its
-    error is second order in the move)."""
+    error is second order in the move). The acceleration and servo methods sample no curves (their
+    own models): their reduction's nodes are returned as they are."""
+    if reduction.method in OWN_MODEL_METHODS:
+        return reduction.nodes
     obs = observations(scene, None if fiber_q is None else Measured(*fiber_q))
     out = []
     for i, (nodes, theta) in enumerate(zip(reduction.nodes, reduction.equilibrium)):
@@ -331,8 +370,9 @@ def reduction_budget(scene, reduction: Reduction, scene_text: str, *, test: str 
         notes.append(f"uncertainties of bodies outside the {test} and {source} groups do not change G: "
                      f"{', '.join(others)}")
     q = None if fiber_q is None else (fiber_q.value, fiber_q.u)
+    chosen = scene.measurement.method if len(scene.measurements) > 1 else None
     context = ModelContext(scene_text, scene.path or "-", scene.base_dir, test, source, reduction.rtol, refs,
-                           budget_nodes(scene, reduction, q), reduction.state, q)
+                           budget_nodes(scene, reduction, q), reduction.state, q, chosen)
     inputs = [Input(r.name, r.value, r.u, r.unit) for r in refs]
     steps = [STEP_FRACTION * r.u for r in refs]
     rel_noise = max(reduction.numerical_error / abs(reduction.G), 1e-14)

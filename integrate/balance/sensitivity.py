@@ -224,8 +224,8 @@ class GModel:
 def g_model(scene, test: str = "pendulum") -> GModel | None:
     """The first-order G model for the scene's measurement, or None without one."""
     m = scene.measurement
-    if m is None:
-        return None
+    if m is None or m.method in ("acceleration", "servo"):
+        return None  # their first-order G models are not written here: the G columns stay empty
     if m.method == "deflection":
         names = tuple(m.angle)[:2]
         return GModel("deflection", names, "torque")
