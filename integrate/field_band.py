@@ -21,6 +21,7 @@ from numba import njit, prange
 
 from truepull.integrate.gauss import gauss_unit
 from truepull.integrate.patches import BAND
+from truepull.integrate.threads import kernel_threads
 
 N_HIGH = 12
 N_LOW = 10
@@ -216,7 +217,8 @@ def band_field(points, patchset, density, G):
     points = np.ascontiguousarray(points, float).reshape(-1, 3)
     xh, wh = gauss_unit(N_HIGH)
     xl, wl = gauss_unit(N_LOW)
-    IU, IG, DU, DG, RU, RG = band_body_field(points, patchset.kinds, patchset.params, xh, wh, xl, wl)
+    with kernel_threads(points.shape[0] * len(patchset.kinds) * 50):
+        IU, IG, DU, DG, RU, RG = band_body_field(points, patchset.kinds, patchset.params, xh, wh, xl, wl)
     fu = -0.5 * G * density
     fg = -G * density
     return fu * IU, fg * IG, fu * DU, fg * DG, abs(fu) * RU, abs(fg) * RG

@@ -25,6 +25,7 @@ from truepull.geometry.errors import InputError
 from truepull.integrate.patches import body_patches
 from truepull.integrate.sources import GRADIENT_KINDS, POINTLIKE_KINDS, SourceField
 from truepull.integrate.surface_quadrature import field_tolerances, integrate_surface
+from truepull.integrate.threads import PARALLEL_MIN_WORK, kernel_threads
 
 EPS = np.finfo(float).eps
 
@@ -117,7 +118,13 @@ def tolerance_scales(test_body, source_body, pivot) -> np.ndarray:
 
 def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10, tol=None) -> PairResult:
     """The exact interaction of two non-overlapping uniform bodies (see the module docstring).
-    `tol` (8,), absolute tolerances on [F, torque, K, E], overrides rtol times the pair's point scale."""
+    `tol` (8,), absolute tolerances on [F, torque, K, E], overrides rtol times the pair's point scale.
+    Its kernels run on one thread while the machine's cores are busy (`threads`)."""
+    with kernel_threads(PARALLEL_MIN_WORK):
+        return _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol)
+
+
+def _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol) -> PairResult:
     pivot = np.asarray(pivot, float)
     axis = np.asarray(axis, float) / np.linalg.norm(axis)
     tk, sk = test_body.shape.kind, source_body.shape.kind
