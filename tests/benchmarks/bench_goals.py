@@ -101,8 +101,8 @@ def main():
     brute_1e6 = t6
     tess_t = tess[-1][1]
 
-    def row(name, t, note=""):
-        rows.append((name, t, brute_1e6 / t, tess_t / t, note))
+    def row(name, t, note="", ratios=True):
+        rows.append((name, t, brute_1e6 / t if ratios else math.nan, tess_t / t if ratios else math.nan, note))
 
     for rtol in (1e-9, 1e-6):
         t, c = best(lambda: compare_groups(sc, rtol=rtol))
@@ -115,14 +115,17 @@ def main():
         row(f"41-value turn 0:40:1 deg, rtol {rtol:g} (goal {goal})", t,
             f"{res.method}, reached={res.reached}")
     pt = load_scene_text(POINT_BESIDE_BOX, "point-box")
-    t, _ = best(lambda: compare_groups(pt, rtol=1e-9), repeat=5)
-    row("point beside a box, whole compare_groups (goal 0.1 ms a pair)", t)
+    t_pair, _ = best(lambda: compare_groups(pt, rtol=1e-9), repeat=5)
     from truepull.integrate.field_prism import prism_field
+    from truepull.integrate.threads import kernel_threads
 
     x = np.array([[0.3, 0.1, 0.05]])
     h = np.array([0.1, 0.1, 0.1])
-    t, _ = best(lambda: prism_field(x, h, 11340.0, 6.674e-11), repeat=20)
-    row("  the prism closed form alone at that point", t)
+    with kernel_threads(1):  # one point: one thread, as the pair itself runs it
+        t_cf, _ = best(lambda: prism_field(x, h, 11340.0, 6.674e-11), repeat=20)
+    row("point beside a box, whole compare_groups (goal 0.1 ms a pair)", t_pair,
+        f"{t_pair / t_cf:.0f} times the closed form alone", ratios=False)
+    row("  the prism closed form alone at that point (one thread)", t_cf, ratios=False)
     with tempfile.TemporaryDirectory() as d:
         path = os.path.join(d, "drums.toml")
         with open(path, "w") as f:
@@ -134,7 +137,7 @@ def main():
             t0 = time.perf_counter()
             subprocess.run(cmd, capture_output=True)
             walls.append(time.perf_counter() - t0)
-        row("whole `truepull compare` process, drums-like (goal 0.8 s)", min(walls))
+        row("whole `truepull compare` process, drums-like (goal 0.8 s)", min(walls), "imports, scene, integration")
 
     print(f"load average at the end: {os.getloadavg()[0]:.2f} on {os.cpu_count()} cores")
     print("references:")
