@@ -22,9 +22,11 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from truepull.geometry.errors import InputError
-from truepull.integrate.patches import body_patches
-from truepull.integrate.sources import GRADIENT_KINDS, POINTLIKE_KINDS, SourceField
+from truepull.integrate.field_band import band_field
+from truepull.integrate.patches import BAND, body_patches
+from truepull.integrate.sources import CLOSED_FORM_KINDS, GRADIENT_KINDS, POINTLIKE_KINDS, SourceField
 from truepull.integrate.surface_quadrature import field_tolerances, integrate_surface
+from truepull.integrate.threads import PARALLEL_MIN_WORK, kernel_threads
 
 EPS = np.finfo(float).eps
 
@@ -117,7 +119,13 @@ def tolerance_scales(test_body, source_body, pivot) -> np.ndarray:
 
 def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10, tol=None) -> PairResult:
     """The exact interaction of two non-overlapping uniform bodies (see the module docstring).
-    `tol` (8,), absolute tolerances on [F, torque, K, E], overrides rtol times the pair's point scale."""
+    `tol` (8,), absolute tolerances on [F, torque, K, E], overrides rtol times the pair's point scale.
+    Its kernels run on one thread while the machine's cores are busy (`threads`)."""
+    with kernel_threads(PARALLEL_MIN_WORK):
+        return _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol)
+
+
+def _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol) -> PairResult:
     pivot = np.asarray(pivot, float)
     axis = np.asarray(axis, float) / np.linalg.norm(axis)
     tk, sk = test_body.shape.kind, source_body.shape.kind
@@ -135,8 +143,10 @@ def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10
     centroid = integ.com
     if tol is None:
         tol = rtol * G * tolerance_scales(integ, src, pivot)
+    # the relative accuracy the pair needs: its tolerances over its point-model sizes
+    pair_rtol = float(np.min(np.asarray(tol, float) / (G * tolerance_scales(integ, src, pivot))))
     tol_u, tol_g = field_tolerances(patches, integ.density, pivot, axis, centroid, tol, order)
-    res = integrate_surface(patches, integ.density, lambda X: field.field_with_differences(X, tol_u, tol_g), pivot, axis,
+    res = integrate_surface(patches, integ.density, _field_function(field, tol_u, tol_g, pair_rtol), pivot, axis,
                             centroid, tol, order=order, distance=field.distance)
     vals = res.values
     # rounding floor: a few hundred ulps of the magnitude of each result
@@ -149,6 +159,16 @@ def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10
         force=sign * vals[0:3], torque=sign * vals[3:6], stiffness_axis=float(vals[6]),
         energy=float(vals[7]), errors=errs, method=method, reached=bool(res.reached and inner_ok),
         evaluations=res.evaluations)
+
+
+def _field_function(field, tol_u, tol_g, rtol):
+    """points -> (U, g, dU, dg, rU, rg) of the source at the tolerances tol_u, tol_g; a body bounded by
+    bands alone gets the band field with rules that follow the relative tolerance `rtol`
+    (field_band.rung_for; its rule difference goes into the pair's error estimate as before)."""
+    if field.kind not in CLOSED_FORM_KINDS and np.all(field.patches().kinds == BAND):
+        ps, rho, G = field.patches(), field.body.density, field.G
+        return lambda X: band_field(X, ps, rho, G, rtol)
+    return lambda X: field.field_with_differences(X, tol_u, tol_g)
 
 
 def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:

@@ -27,6 +27,8 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit, prange
 
+from truepull.integrate.threads import kernel_threads
+
 BAND, ELLIPSOID, PARALLELOGRAM, TRIANGLE = 0, 1, 2, 3
 PARAM_WIDTH = 17
 TWO_PI = 2.0 * math.pi
@@ -100,13 +102,19 @@ def patch_point(kind, p, s, t):
         return x, y, w, nx, ny, nz
 
 
-@njit(cache=True, parallel=True)
 def cell_nodes(kinds, params, cell_patch, cell_dom, xg, wg):
     """Quadrature nodes of cells: points X (C*n*n, 3) and weighted vector areas W (C*n*n, 3).
 
     Cell c covers [s0, s1] x [t0, t1] = cell_dom[c] of patch cell_patch[c]; tensor Gauss rule (xg, wg)
     on [0, 1]. sum(W) over a closed surface is zero; sum(X . W) / 3 is the enclosed volume.
     """
+    with kernel_threads(cell_patch.shape[0] * xg.shape[0] ** 2):
+        return _cell_nodes_kernel(kinds, params, cell_patch, cell_dom, xg, wg)
+
+
+@njit(cache=True, parallel=True)
+def _cell_nodes_kernel(kinds, params, cell_patch, cell_dom, xg, wg):
+    """The kernel of `cell_nodes`."""
     nc = cell_patch.shape[0]
     n = xg.shape[0]
     X = np.empty((nc * n * n, 3))

@@ -110,3 +110,52 @@ file_units = "{file_units}"
 material = "brass"
 at = [0, 150, 0]
 """
+
+
+# "drums-like": two cylindrical bobs (8 mm radius, 16 mm long, 18 g/cm^3) at x = +-56 mm on a box beam,
+# two cylindrical attractors (30 mm radius, 60 mm long, lead) at (+-56, +-41) mm, 3 mm from the bobs.
+# The pendulum reaches 64 mm from the pivot and the attractors come within 39.4 mm of it, so no sphere
+# about the pivot separates them: every turn is integrated directly. Turning the attractor by about
+# -3 deg brings them into contact; turning it by positive angles takes them apart.
+DRUMS_LIKE = """
+[units]
+length = "mm"
+[[body]]
+name = "beam"
+group = "pendulum"
+shape = "box"
+size = [100, 6, 6]
+density = 2700
+[[body]]
+name = "bob-east"
+group = "pendulum"
+shape = "cylinder"
+radius = 8
+length = 16
+density = 18000
+at = [56, 0, 0]
+[[body]]
+name = "bob-west"
+group = "pendulum"
+shape = "cylinder"
+radius = 8
+length = 16
+density = 18000
+at = [-56, 0, 0]
+[[body]]
+name = "big-east"
+group = "attractor"
+shape = "cylinder"
+radius = 30
+length = 60
+density = 11340
+at = [56, 41, 0]
+[[body]]
+name = "big-west"
+group = "attractor"
+shape = "cylinder"
+radius = 30
+length = 60
+density = 11340
+at = [-56, -41, 0]
+"""

@@ -247,3 +247,17 @@ def test_band_field_refuses_a_body_that_is_not_all_bands():
     ps = shape_patches(Box((0.01, 0.01, 0.01)), np.eye(3), np.zeros(3))
     with pytest.raises(ValueError, match="bands"):
         band_field(np.zeros((1, 3)) + 0.1, ps, RHO, G)
+
+
+@pytest.mark.parametrize("rtol", [1e-4, 1e-6, 1e-8])
+@pytest.mark.parametrize("case", ["cylinder, side at a 1% gap", "tube, over the annulus", "frustum, beside the side"])
+def test_looser_rules_reach_their_tolerance_and_bound_their_error(case, rtol):
+    # reference: the ring field (elliptic integrals) integrated over the cross-section by scipy cubature;
+    # the rules picked for a looser rtol (field_band.rung_for) reach it, and the estimate bounds the error
+    shape, (rho, z), near = OFF_AXIS[case]
+    profile, zr = _profile(shape)
+    ref, ref_err = revolution_field((rho, z), profile, zr, RHO, near=near)
+    ps = shape_patches(shape, np.eye(3), np.zeros(3))
+    U, g, dU, dg, rU, rg = band_field(np.array([[rho, 0.0, z]]), ps, RHO, G, rtol)
+    check(U[0], ref[0], abs(dU[0]) + rU[0], ref_err[0], rtol)
+    check(g[0], [ref[1], 0.0, ref[2]], np.linalg.norm(dg[0]) + rg[0], np.hypot(ref_err[1], ref_err[2]), rtol)

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import os
 import platform
+import sys
 import time
 
 import numpy as np
@@ -21,48 +22,9 @@ from truepull.integrate import pair_cache
 from truepull.integrate.interaction import compare_groups
 from truepull.shapes import demo_path
 
-BOBS_ON_BEAM = """
-[units]
-length = "mm"
-[[body]]
-name = "beam"
-group = "pendulum"
-shape = "box"
-size = [100, 6, 6]
-density = 2700
-[[body]]
-name = "bob-east"
-group = "pendulum"
-shape = "cylinder"
-radius = 8
-length = 16
-density = 18000
-at = [56, 0, 0]
-[[body]]
-name = "bob-west"
-group = "pendulum"
-shape = "cylinder"
-radius = 8
-length = 16
-density = 18000
-at = [-56, 0, 0]
-[[body]]
-name = "big-east"
-group = "attractor"
-shape = "cylinder"
-radius = 30
-length = 60
-density = 11340
-at = [56, 41, 0]
-[[body]]
-name = "big-west"
-group = "attractor"
-shape = "cylinder"
-radius = 30
-length = 60
-density = 11340
-at = [-56, -41, 0]
-"""
+sys.path.insert(0, os.path.join(os.path.dirname(__file__), ".."))
+from scene_fixtures import DRUMS_LIKE as BOBS_ON_BEAM  # noqa: E402
+
 
 
 def timed(fn, repeat=2):
