@@ -120,3 +120,16 @@ def test_every_public_name_has_a_numpydoc_docstring():
         if callable(obj) and not isinstance(obj, type) and name not in ("InputError",):
             if name not in ("scene_toml", "demo_path", "demo_run_path"):
                 assert "Returns\n    -------" in obj.__doc__, name
+
+
+def test_the_readme_example_runs_and_corrects_the_point_torque(capsys):
+    import re
+    from pathlib import Path
+
+    text = (Path(__file__).resolve().parent.parent / "README.md").read_text()
+    block = re.findall(r"```python\n(.*?)```", text, flags=re.S)[0]
+    scope = {}
+    exec(block, scope)
+    c, k = scope["c"], scope["k"]
+    # corrected point torque = exact torque (the factor's definition, exact / point)
+    assert k.apply(c.point_torque_axis[0], "torque_axis", "A") == pytest.approx(c.exact_torque_axis[0], rel=1e-14)
