@@ -2,7 +2,7 @@
 
 Points come from `--points CSV` (columns x, y, z, header row), `--line X0,Y0,Z0:X1,Y1,Z1:N` (N points,
 both ends included) or `--grid X0:X1:NX,Y0:Y1:NY,Z0:Z1:NZ` (NX*NY*NZ points, x fastest; a count of 1
-takes the start value), all in the scene's length unit. Output values are SI: positions m, U J/kg,
+takes the start value), all in the scene's length unit (--line also takes a unit after each end). Output values are SI: positions m, U J/kg,
 g = -grad U m/s^2 (toward the masses), T_ij = d g_i / d x_j 1/s^2, errors absolute (norms). Along a
 line, the points where the gradient along the line vanishes are found and printed with the field's
 curvature there. The computation is `integrate.field_at_points`; this module only reads and formats.
@@ -32,7 +32,9 @@ def add_arguments(parser) -> None:
     add_scene(parser)
     where = parser.add_mutually_exclusive_group(required=True)
     where.add_argument("--points", metavar="CSV", help="points from a CSV file with columns x, y, z (header row)")
-    where.add_argument("--line", metavar="X0,Y0,Z0:X1,Y1,Z1:N", help="N points on a segment, both ends included")
+    where.add_argument("--line", metavar="X0,Y0,Z0:X1,Y1,Z1:N",
+                       help="N points on a segment, both ends included; the scene's length unit or a unit after "
+                            "each end, e.g. '0,0,-5 cm:0,0,5 cm:101'")
     where.add_argument("--grid", metavar="X0:X1:NX,Y0:Y1:NY,Z0:Z1:NZ", help="a box grid of NX*NY*NZ points")
     add_groups(parser, test=None, source="group whose field is computed")
     add_position(parser)
@@ -61,8 +63,11 @@ def _count(text, key, what, least):
     return n
 
 
-def parse_line(text: str):
-    """'X0,Y0,Z0:X1,Y1,Z1:N' -> (start (3,), end (3,), N), in the units as written."""
+def parse_line(text: str, scene):
+    """'X0,Y0,Z0:X1,Y1,Z1:N' -> (start (3,) m, end (3,) m, N): coordinates in the scene's length unit,
+    or with a unit after an end point's coordinates ('0,0,-5 cm:0,0,5 cm:101')."""
+    from truepull.cli.options import length_vector
+
     parts = text.split(":")
     if len(parts) != 3:
         raise InputError(None, "--line", f"expected X0,Y0,Z0:X1,Y1,Z1:N, got '{text}'")
@@ -71,7 +76,7 @@ def parse_line(text: str):
         xyz = p.split(",")
         if len(xyz) != 3:
             raise InputError(None, "--line", f"an end point needs three coordinates, got '{p}'")
-        ends.append(np.array([_number(c, "--line", "a coordinate") for c in xyz]))
+        ends.append(np.array(length_vector(p, scene, "--line")))
     n = _count(parts[2], "--line", "the number of points N", 2)
     if np.array_equal(ends[0], ends[1]):
         raise InputError(None, "--line", "the two ends are the same point")
@@ -219,8 +224,7 @@ def run(args) -> int:
     if args.points is not None:
         pts = read_points_csv(args.points) * f
     elif args.line is not None:
-        a, b, n = parse_line(args.line)
-        line = (a * f, b * f, n)
+        line = parse_line(args.line, scene)
     else:
         xs, ys, zs = parse_grid(args.grid)
         grid_shape = (len(xs), len(ys), len(zs))

@@ -151,3 +151,13 @@ def test_check_shows_each_stated_uncertainty(tmp_path, capsys):
     out = capsys.readouterr().out
     line = next(line for line in out.splitlines() if line.startswith("body[bob].radius"))
     assert "5 +- 0.002" in line and line.endswith("mm")
+
+
+def test_field_line_ends_take_units():
+    from truepull.cli.field import parse_line
+
+    scene = load_scene_text(SCENE_MM, "s.toml")
+    # 1 cm = 10 mm (SI prefixes, SI Brochure 9th ed., table 7)
+    a, b, n = parse_line("0,0,-5 cm:0,0,5 cm:11", scene)
+    a2, b2, n2 = parse_line("0,0,-50:0,0,50:11", scene)
+    assert a == pytest.approx(a2, rel=1e-15) and b == pytest.approx(b2, rel=1e-15) and n == n2 == 11
