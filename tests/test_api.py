@@ -133,3 +133,13 @@ def test_the_readme_example_runs_and_corrects_the_point_torque(capsys):
     c, k = scope["c"], scope["k"]
     # corrected point torque = exact torque (the factor's definition, exact / point)
     assert k.apply(c.point_torque_axis[0], "torque_axis", "A") == pytest.approx(c.exact_torque_axis[0], rel=1e-14)
+
+
+def test_reduce_through_the_api_equals_the_cli_and_its_corrections_chain_to_G(capsys):
+    path = str(truepull.demo_path())
+    r = truepull.reduce(path, budget=False, rtol=1e-6)
+    assert r.to_json() == _cli_json(capsys, "reduce", path, "--no-budget", "--rtol", "1e-6")   # the second run reuses the pairs
+    # the corrections are factors whose product takes the point-mass G to G (their definition in
+    # the contract); a reduction of one's own applies them the same way
+    product = math.prod(c["factor"] for c in r.corrections())
+    assert r.G_point * product == pytest.approx(r.G, rel=1e-12)
