@@ -243,6 +243,7 @@ def torque_scale(c) -> float:
 
 
 def section_compare(ctx: Context) -> Section:
+    from truepull.cli.output import guarded_ratio
     from truepull.integrate.interaction import compare_positions
 
     s = Section("compare", "Exact interaction beside the point-mass model")
@@ -257,10 +258,10 @@ def section_compare(ctx: Context) -> Section:
             "stiffness exact (N m/rad)", "stiffness point (N m/rad)", "exact/point", "|force| (N)", "reached"]
     rows = []
     for c in comps:
-        corr = c.correction
         rows.append([c.position or "as drawn", fmt(c.exact.torque_axis, 10), fmt(c.point.torque_axis, 10),
-                     fmt(corr["torque_axis"], 8), fmt(c.error.torque_axis, 2), fmt(c.exact.stiffness_axis, 8),
-                     fmt(c.point.stiffness_axis, 8), fmt(corr["stiffness_axis"], 8),
+                     fmt(guarded_ratio(c.exact.torque_axis, c.point.torque_axis, c.error.torque_axis), 8),
+                     fmt(c.error.torque_axis, 2), fmt(c.exact.stiffness_axis, 8), fmt(c.point.stiffness_axis, 8),
+                     fmt(guarded_ratio(c.exact.stiffness_axis, c.point.stiffness_axis, c.error.stiffness_axis), 8),
                      fmt(float(np.linalg.norm(c.exact.force)), 8), "yes" if c.reached else "NO"])
     parts = [f"Test group `{comps[0].test}`, source group `{comps[0].source}`; torque about the fiber axis, "
              f"stiffness -d(torque)/d(turn of the test group); requested tolerance {ctx.args.rtol:g}.",
