@@ -17,6 +17,7 @@ import sys
 
 import numpy as np
 
+from truepull.cli.options import show_progress
 from truepull.cli.output import fmt, format_table, print_json, save_figure_atomic
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
@@ -27,28 +28,30 @@ HELP = "sensitivity of torque and G to each body's placement, size and density"
 
 
 def add_arguments(parser) -> None:
-    parser.add_argument("scene", metavar="SCENE", help="scene file (TOML)")
-    parser.add_argument("--position", metavar="NAME",
-                        help="the position whose torque is reported (default: the first measured position, "
-                             "else the first position, else the scene as drawn)")
-    parser.add_argument("--test", default="pendulum", help="group the torque acts on (default: pendulum)")
-    parser.add_argument("--source", default="attractor", help="group that pulls (default: attractor)")
-    parser.add_argument("--rtol", type=float, default=1e-9, help="engine tolerance (default: 1e-9)")
+    from truepull.cli import options
+
+    options.add_scene(parser)
+    options.add_position(parser, default="the first measured position, else the first position, else the scene "
+                                         "as drawn", what="the [[position]] whose torque is reported")
+    options.add_groups(parser)
+    options.add_rtol(parser)
     parser.add_argument("--body", action="append", metavar="NAME", help="only this body (repeatable)")
     parser.add_argument("--offset", action="append", default=[], metavar="BODY:dx,dy,dz",
-                        help="what if BODY were moved by (dx, dy, dz) in the scene's length unit")
+                        help="what if BODY were moved by (dx, dy, dz), in the scene's length unit or with a unit, "
+                             "e.g. 'bob:0.1,0,0 mm'")
     parser.add_argument("--flatten", action="append", default=[], metavar="BODY:f[:ax,ay,az]",
                         help="what if sphere BODY were an ellipsoid of equal mass with flattening f")
     parser.add_argument("--void", action="append", default=[], metavar="BODY:radius:dx,dy,dz",
-                        help="what if BODY had a spherical void of that radius at that offset")
+                        help="what if BODY had a spherical void of that radius at that offset, in the scene's "
+                             "length unit or with units, e.g. 'bob:1 mm:0.5,0,0 mm'")
     parser.add_argument("--full-reduction", action="store_true",
                         help="what-ifs: reduce G in full before and after (slower) instead of the first-order "
                              "model")
     parser.add_argument("--no-table", action="store_true", help="only the what-ifs, no sensitivity table")
     parser.add_argument("--png", metavar="FILE", help="bar chart of the ranked sensitivities (ppm per stated u) "
                                                       "and the what-ifs")
-    parser.add_argument("--scheduler", metavar="ADDRESS", help="run on a Dask cluster (default: local processes)")
-    parser.add_argument("--workers", type=int, help="local worker processes (default: one per core)")
+    options.add_parallel(parser)
+    options.add_quiet(parser)
 
 
 def _numbers(text: str, n: int, key: str, file) -> list[float]:
@@ -75,13 +78,14 @@ def _body_name(scene, name: str, key: str) -> str:
 
 def parse_what_ifs(scene, args) -> list[tuple]:
     """[(kind, body, arguments in SI)] from the what-if options."""
-    f = scene.length_factor
+    from truepull.cli.options import length, length_vector
+
     out = []
     for text in args.offset:
         name, sep, rest = text.rpartition(":")
         if not sep or not name:
             raise InputError(scene.path, "--offset", f"expected BODY:dx,dy,dz, got '{text}'")
-        v = [x * f for x in _numbers(rest, 3, "--offset", scene.path)]
+        v = length_vector(rest, scene, "--offset")
         out.append(("offset", _body_name(scene, name, "--offset"), (v,)))
     for text in args.flatten:
         parts = text.split(":")
@@ -94,8 +98,8 @@ def parse_what_ifs(scene, args) -> list[tuple]:
         parts = text.split(":")
         if len(parts) != 3 or not parts[0]:
             raise InputError(scene.path, "--void", f"expected BODY:radius:dx,dy,dz, got '{text}'")
-        radius = _numbers(parts[1], 1, "--void", scene.path)[0] * f
-        offset = [x * f for x in _numbers(parts[2], 3, "--void", scene.path)]
+        radius = length(parts[1], scene, "--void")
+        offset = length_vector(parts[2], scene, "--void")
         out.append(("void", _body_name(scene, parts[0], "--void"), (radius, offset)))
     return out
 
@@ -199,7 +203,7 @@ def run(args) -> int:
     result = None
     if not args.no_table:
         result = sensitivities(scene, args.test, args.source, position, args.rtol, workers=args.workers,
-                               scheduler=args.scheduler, progress=sys.stderr.isatty(), scene_path=args.scene,
+                               scheduler=args.scheduler, progress=show_progress(args), scene_path=args.scene,
                                bodies=args.body)
     what_ifs = [run_what_if(scene, it, test=args.test, source=args.source, position=position, rtol=args.rtol,
                             full_reduction=args.full_reduction) for it in items]

@@ -4,26 +4,50 @@ from __future__ import annotations
 
 import numpy as np
 
+from truepull.cli.options import add_scene
 from truepull.cli.output import fmt, format_table, print_json
-from truepull.geometry.audit import all_group_totals, scene_warnings
-from truepull.geometry.scene import load_scene
 
 HELP = "load and validate a scene; bodies, mass properties, group totals, warnings"
 
 
 def add_arguments(parser) -> None:
-    parser.add_argument("scene", metavar="SCENE", help="scene file (TOML)")
+    add_scene(parser)
     parser.add_argument("--no-overlaps", action="store_true",
                         help="skip the search for overlapping and touching bodies (faster)")
 
 
 def check_data(scene, overlaps: bool = True) -> dict:
-    """The check result in SI, shaped as `check --json`."""
-    bodies = [{"name": b.name, "group": b.group, "shape": b.shape.kind, "mass": b.mass, "volume": b.volume,
-               "com": b.com, "inertia_com": b.inertia_com} for b in scene.bodies]
-    groups = {name: {"mass": t.mass, "com": t.com, "inertia_axis": t.inertia_axis}
-              for name, t in all_group_totals(scene).items()}
-    return {"bodies": bodies, "groups": groups, "warnings": scene_warnings(scene, overlaps=overlaps)}
+    """The check result in SI, shaped as `check --json` (truepull.api.check)."""
+    from truepull.api import check
+
+    return check(scene, overlaps).to_json()
+
+
+def _shown(scene, kind: str) -> tuple[float, str]:
+    """(factor, unit) in which check shows a stated value of this kind: lengths and angles in the
+    scene's units, everything else in SI."""
+    from truepull.geometry.stated import SI_UNITS
+
+    if kind == "length":
+        return scene.length_factor, scene.length_unit
+    if kind == "angle":
+        return scene.angle_factor, scene.angle_unit
+    return 1.0, SI_UNITS.get(kind, "SI")
+
+
+def stated_lines(scene, stated) -> list[str]:
+    """The table of stated uncertainties: key, value +- u, unit (as read)."""
+    from truepull.geometry.stated import stated_uncertainties
+
+    stated = stated_uncertainties(scene) if stated is None else stated
+    if not stated:
+        return ["no stated uncertainties (+-)"]
+    rows = []
+    for s in stated:
+        f, unit = _shown(scene, s.kind)
+        rows.append([s.key, f"{fmt(s.value / f, 9)} +- {fmt(s.u / f, 3)}", unit])
+    return [f"stated uncertainties ({len(stated)}), as read:",
+            format_table(["key", "value +- u", "unit"], rows, align="lrl")]
 
 
 def _vec(v, factor: float) -> str:
@@ -47,23 +71,27 @@ def render(scene, data: dict) -> str:
         kind = d["shape"] + (" (hole)" if b.is_hole else "")
         rows.append([d["name"], d["group"], kind, fmt(d["mass"]), fmt(d["volume"] / f**3),
                      _vec(d["com"], f), " ".join(fmt(x, 5) for x in principal)])
-    lines.append(format_table(["body", "group", "shape", "mass kg", f"volume {u}^3", f"centre of mass {u}",
-                               f"principal moments kg {u}^2"], rows, align="lllrrll"))
+    lines.append(format_table(["body", "group", "shape", "mass (kg)", f"volume ({u}^3)", f"centre of mass ({u})",
+                               f"principal moments (kg {u}^2)"], rows, align="lllrrll"))
     lines.append("")
     grows = []
     for name, g in data["groups"].items():
         grows.append([name, fmt(g["mass"]), _vec(g["com"], f), fmt(g["inertia_axis"] / f**2)])
-    lines.append(format_table(["group", "net mass kg", f"centre of mass {u}", f"inertia about frame axis kg {u}^2"],
+    lines.append(format_table(["group", "net mass (kg)", f"centre of mass ({u})",
+                               f"inertia about frame axis (kg {u}^2)"],
                               grows, align="lrlr"))
     if scene.positions:
         lines.append("")
         prow = [[p.name, p.group, fmt(p.turn.value / scene.angle_factor), scene.angle_unit,
                  _vec([s.value for s in p.shift], f)] for p in scene.positions]
-        lines.append(format_table(["position", "group", "turn", "unit", f"shift {u}"], prow, align="llrll"))
+        lines.append(format_table(["position", "group", f"turn ({scene.angle_unit})", f"shift ({u})"],
+                                  [r[:3] + r[4:] for r in prow], align="llrl"))
     if scene.measurement is not None:
         lines.append("")
         for m in scene.measurements or (scene.measurement,):
             lines.append(f"measurement: {m.method} at positions {', '.join(m.positions) or '-'}")
+    lines.append("")
+    lines.extend(stated_lines(scene, None))
     lines.append("")
     if data["warnings"]:
         lines.append(f"warnings ({len(data['warnings'])}):")
@@ -74,8 +102,10 @@ def render(scene, data: dict) -> str:
 
 
 def run(args) -> int:
+    from truepull.api import check, load_scene
+
     scene = load_scene(args.scene)
-    data = check_data(scene, overlaps=not args.no_overlaps)
+    data = check(scene, overlaps=not args.no_overlaps).to_json()
     if args.json:
         print_json(data)
     else:

@@ -4,25 +4,25 @@ from __future__ import annotations
 
 import numpy as np
 
-from truepull.cli.output import fmt, format_table, not_reached_exit, print_json
-from truepull.geometry.scene import load_scene
-from truepull.integrate.interaction import compare_positions
+from truepull.cli.options import add_groups, add_position, add_rtol, add_scene
+from truepull.cli.output import fmt, format_table, guarded_ratio, not_reached_exit, print_json
 
 HELP = "exact force, torque and stiffness beside the point-mass model"
 
 
 def add_arguments(parser) -> None:
-    parser.add_argument("scene", metavar="SCENE", help="scene file (TOML)")
-    parser.add_argument("--test", default="pendulum", help="group that feels the pull (default: pendulum)")
-    parser.add_argument("--source", default="attractor", help="group that pulls (default: attractor)")
-    parser.add_argument("--position", default=None, help="only this position (default: every position)")
-    parser.add_argument("--rtol", type=float, default=1e-9, help="relative tolerance (default 1e-9)")
+    add_scene(parser)
+    add_groups(parser)
+    add_position(parser, default="every position", what="only this [[position]] of the scene")
+    add_rtol(parser)
     parser.add_argument("--moments", type=int, default=None, metavar="L",
                         help="also list multipole moments up to degree L")
 
 
-def _ratio_text(a: float, b: float) -> str:
-    return fmt(a / b, 12) if b != 0 else "-"
+def _ratio_text(a: float, b: float, error: float) -> str:
+    """exact / point, or '-' when both lie within the error estimate of zero (or point is zero)."""
+    r = guarded_ratio(a, b, error)
+    return "-" if r is None else fmt(r, 12)
 
 
 def render(comparison) -> str:
@@ -33,19 +33,20 @@ def render(comparison) -> str:
     lines = [f"{where}: test group '{c.test}', source group '{c.source}', G = {c.G:.6g} m^3 kg^-1 s^-2"]
     rows = []
     for i, axis in enumerate("xyz"):
-        rows.append([f"force {axis}", "N", fmt(e.force[i], 12), fmt(p.force[i], 12), _ratio_text(e.force[i], p.force[i]),
-                     fmt(err.force[i], 2)])
+        rows.append([f"force {axis} (N)", fmt(e.force[i], 12), fmt(p.force[i], 12),
+                     _ratio_text(e.force[i], p.force[i], err.force[i]), fmt(err.force[i], 2)])
     for i, axis in enumerate("xyz"):
-        rows.append([f"torque {axis} about pivot", "N m", fmt(e.torque[i], 12), fmt(p.torque[i], 12),
-                     _ratio_text(e.torque[i], p.torque[i]), fmt(err.torque[i], 2)])
-    rows.append(["torque about axis", "N m", fmt(e.torque_axis, 12), fmt(p.torque_axis, 12),
-                 _ratio_text(e.torque_axis, p.torque_axis), fmt(err.torque_axis, 2)])
-    rows.append(["stiffness about axis", "N m/rad", fmt(e.stiffness_axis, 12), fmt(p.stiffness_axis, 12),
-                 _ratio_text(e.stiffness_axis, p.stiffness_axis), fmt(err.stiffness_axis, 2)])
-    rows.append(["energy", "J", fmt(e.energy, 12), fmt(p.energy, 12), _ratio_text(e.energy, p.energy),
+        rows.append([f"torque {axis} about pivot (N m)", fmt(e.torque[i], 12), fmt(p.torque[i], 12),
+                     _ratio_text(e.torque[i], p.torque[i], err.torque[i]), fmt(err.torque[i], 2)])
+    rows.append(["torque about axis (N m)", fmt(e.torque_axis, 12), fmt(p.torque_axis, 12),
+                 _ratio_text(e.torque_axis, p.torque_axis, err.torque_axis), fmt(err.torque_axis, 2)])
+    rows.append(["stiffness about axis (N m/rad)", fmt(e.stiffness_axis, 12), fmt(p.stiffness_axis, 12),
+                 _ratio_text(e.stiffness_axis, p.stiffness_axis, err.stiffness_axis), fmt(err.stiffness_axis, 2)])
+    rows.append(["energy (J)", fmt(e.energy, 12), fmt(p.energy, 12), _ratio_text(e.energy, p.energy, err.energy),
                  fmt(err.energy, 2)])
-    lines.append(format_table(["quantity", "unit", "exact", "point model", "exact/point", "est. error"], rows,
-                              align="llrrrr"))
+    lines.append(format_table(["quantity (unit)", "exact", "point model", "exact/point", "est. error"], rows,
+                              align="lrrrr"))
+    lines.append("exact/point is '-' where both values lie within the error estimate of zero")
     status = "reached" if c.reached else "NOT reached"
     lines.append(f"tolerance {c.rtol:g} {status}; error estimates from refinement (coarse against fine rule)")
     total = c.exact.torque_axis
@@ -57,7 +58,7 @@ def render(comparison) -> str:
         share = f"{100 * t / total:.3f} %" if total != 0 else "-"
         prow.append([pr.test, pr.source, fmt(t, 10), fmt(pt, 10), share, pr.method])
     lines.append("")
-    lines.append(format_table(["test body", "source body", "torque about axis N m", "point model N m",
+    lines.append(format_table(["test body", "source body", "torque about axis (N m)", "point model (N m)",
                                "share", "method"], prow, align="llrrrl"))
     for n in c.notes:
         lines.append(f"note: {n}")
@@ -65,10 +66,11 @@ def render(comparison) -> str:
 
 
 def run(args) -> int:
+    from truepull.api import compare, load_scene
+
     scene = load_scene(args.scene)
-    if args.position is not None:
-        scene.get_position(args.position)
-    results = compare_positions(scene, args.test, args.source, args.rtol, args.position)
+    result = compare(scene, args.test, args.source, args.position, args.rtol)
+    results = result.comparisons
     moments = None
     if args.moments is not None:
         from truepull.cli.moments import format_moments, moments_json
@@ -76,7 +78,7 @@ def run(args) -> int:
         moments = (moments_json if args.json else format_moments)(scene, args.moments, args.test, args.source,
                                                                    args.position)
     if args.json:
-        out = {"results": [r.to_json() for r in results]}
+        out = result.to_json()
         if moments is not None:
             out["moments"] = moments
         print_json(out)

@@ -2,7 +2,7 @@
 
 Points come from `--points CSV` (columns x, y, z, header row), `--line X0,Y0,Z0:X1,Y1,Z1:N` (N points,
 both ends included) or `--grid X0:X1:NX,Y0:Y1:NY,Z0:Z1:NZ` (NX*NY*NZ points, x fastest; a count of 1
-takes the start value), all in the scene's length unit. Output values are SI: positions m, U J/kg,
+takes the start value), all in the scene's length unit (--line also takes a unit after each end). Output values are SI: positions m, U J/kg,
 g = -grad U m/s^2 (toward the masses), T_ij = d g_i / d x_j 1/s^2, errors absolute (norms). Along a
 line, the points where the gradient along the line vanishes are found and printed with the field's
 curvature there. The computation is `integrate.field_at_points`; this module only reads and formats.
@@ -27,14 +27,18 @@ COLUMNS = (["x_m", "y_m", "z_m", "potential_J_per_kg", "gx_m_per_s2", "gy_m_per_
 
 
 def add_arguments(parser) -> None:
-    parser.add_argument("scene", metavar="SCENE", help="scene file (TOML)")
+    from truepull.cli.options import add_groups, add_position, add_rtol, add_scene
+
+    add_scene(parser)
     where = parser.add_mutually_exclusive_group(required=True)
     where.add_argument("--points", metavar="CSV", help="points from a CSV file with columns x, y, z (header row)")
-    where.add_argument("--line", metavar="X0,Y0,Z0:X1,Y1,Z1:N", help="N points on a segment, both ends included")
+    where.add_argument("--line", metavar="X0,Y0,Z0:X1,Y1,Z1:N",
+                       help="N points on a segment, both ends included; the scene's length unit or a unit after "
+                            "each end, e.g. '0,0,-5 cm:0,0,5 cm:101'")
     where.add_argument("--grid", metavar="X0:X1:NX,Y0:Y1:NY,Z0:Z1:NZ", help="a box grid of NX*NY*NZ points")
-    parser.add_argument("--source", default="attractor", help="group whose field is computed (default: attractor)")
-    parser.add_argument("--position", metavar="NAME", help="place the apparatus at this [[position]]")
-    parser.add_argument("--rtol", type=float, default=1e-9, help="relative tolerance (default: 1e-9)")
+    add_groups(parser, test=None, source="group whose field is computed")
+    add_position(parser)
+    add_rtol(parser)
     parser.add_argument("--out", metavar="FILE", help="write the CSV table to FILE instead of stdout")
     parser.add_argument("--vtk", metavar="FILE", help="also write the values as VTK point data (.vtk, .vtp or .vts)")
 
@@ -59,8 +63,11 @@ def _count(text, key, what, least):
     return n
 
 
-def parse_line(text: str):
-    """'X0,Y0,Z0:X1,Y1,Z1:N' -> (start (3,), end (3,), N), in the units as written."""
+def parse_line(text: str, scene):
+    """'X0,Y0,Z0:X1,Y1,Z1:N' -> (start (3,) m, end (3,) m, N): coordinates in the scene's length unit,
+    or with a unit after an end point's coordinates ('0,0,-5 cm:0,0,5 cm:101')."""
+    from truepull.cli.options import length_vector
+
     parts = text.split(":")
     if len(parts) != 3:
         raise InputError(None, "--line", f"expected X0,Y0,Z0:X1,Y1,Z1:N, got '{text}'")
@@ -69,7 +76,7 @@ def parse_line(text: str):
         xyz = p.split(",")
         if len(xyz) != 3:
             raise InputError(None, "--line", f"an end point needs three coordinates, got '{p}'")
-        ends.append(np.array([_number(c, "--line", "a coordinate") for c in xyz]))
+        ends.append(np.array(length_vector(p, scene, "--line")))
     n = _count(parts[2], "--line", "the number of points N", 2)
     if np.array_equal(ends[0], ends[1]):
         raise InputError(None, "--line", "the two ends are the same point")
@@ -144,15 +151,10 @@ def csv_text(pf) -> str:
 
 
 def to_json(pf, zeros=None) -> dict:
-    rows = [{"at": pf.points[i].tolist(), "potential": float(pf.U[i]), "field": pf.g[i].tolist(),
-             "gradient": pf.T[i].tolist(), "error_potential": float(pf.err_U[i]),
-             "error_field": float(pf.err_g[i]), "error_gradient": float(pf.err_T[i])}
-            for i in range(len(pf.points))]
-    out = {"source": pf.source, "G": pf.G, "rows": rows}
-    if zeros is not None:
-        out["gradient_zeros"] = [{"s": z.s, "at": z.at.tolist(), "error_s": z.err_s, "curvature": z.curvature,
-                                  "error_curvature": z.err_curvature} for z in zeros]
-    return out
+    """The `field --json` object (truepull.results.FieldResult.to_json)."""
+    from truepull.results import FieldResult
+
+    return FieldResult(pf, zeros).to_json()
 
 
 def check_vtk_name(path: str, grid: bool) -> str:
@@ -210,25 +212,19 @@ def zeros_text(zeros, direction) -> list[str]:
 
 
 def run(args) -> int:
+    from truepull.api import field, load_scene
     from truepull.cli.output import print_json, write_atomic
-    from truepull.geometry.scene import load_scene
-    from truepull.integrate.field_at_points import field_at_points, gradient_zeros
 
     scene = load_scene(args.scene)
     if args.position is not None:
         scene.get_position(args.position)
-    if not args.rtol > 0:
-        raise InputError(None, "--rtol", f"must be greater than zero, got {args.rtol}")
     f = scene.length_factor
     grid_shape = None
     line = None
     if args.points is not None:
         pts = read_points_csv(args.points) * f
     elif args.line is not None:
-        a, b, n = parse_line(args.line)
-        line = (a * f, b * f)
-        s = np.linspace(0.0, 1.0, n)
-        pts = line[0] + s[:, None] * (line[1] - line[0])
+        line = parse_line(args.line, scene)
     else:
         xs, ys, zs = parse_grid(args.grid)
         grid_shape = (len(xs), len(ys), len(zs))
@@ -236,21 +232,16 @@ def run(args) -> int:
         pts = np.column_stack([X.ravel(), Y.ravel(), Z.ravel()]) * f
     if args.vtk:
         check_vtk_name(args.vtk, grid_shape is not None)   # before the work, not after it
-    pf = field_at_points(scene, pts, args.source, args.position, args.rtol)
-    zeros = None
-    if line is not None:
-        placed = scene.at_position(args.position) if args.position else scene
-        u = (line[1] - line[0]) / np.linalg.norm(line[1] - line[0])
-        s_m = np.linalg.norm(pf.points - line[0], axis=1)
-        t_uu = np.einsum("i,nij,j->n", u, pf.T, u)
-        zeros = gradient_zeros(placed.group(args.source), line[0], line[1], s_m, t_uu, pf.G, args.rtol)
+    result = field(scene, None if line is not None else pts, line=line, source=args.source,
+                   position=args.position, rtol=args.rtol)
+    pf, zeros = result.point_field, result.gradient_zeros
     if args.vtk:
         write_vtk(args.vtk, pf, grid_shape)
     if args.json:
-        print_json(to_json(pf, zeros))
+        print_json(result.to_json())
         return 0
     text = csv_text(pf)
-    notes = zeros_text(zeros, u) if zeros is not None else []
+    notes = zeros_text(zeros, result.direction) if zeros is not None else []
     if args.out:
         write_atomic(args.out, text)
         sys.stdout.write(f"{len(pf.points)} points written to {args.out}\n")

@@ -37,9 +37,9 @@ def add_arguments(parser) -> None:
     matter = parser.add_mutually_exclusive_group()
     matter.add_argument("--density", metavar="X", help="density, kg/m^3 or with a unit, e.g. '8.5 g/cm^3'")
     matter.add_argument("--material", metavar="NAME", help="a named material (e.g. brass, tungsten, aluminium)")
-    parser.add_argument("--name", metavar="N", help="body name for the [[body]] block (default: the file's stem)")
-    parser.add_argument("--group", default="attractor", metavar="G", help="group for the [[body]] block "
-                                                                          "(default attractor)")
+    parser.add_argument("--name", metavar="NAME", help="body name for the [[body]] block (default: the file's stem)")
+    parser.add_argument("--group", default="attractor", metavar="NAME", help="group for the [[body]] block "
+                                                                             "(default: attractor)")
 
 
 def _density(args):

@@ -148,3 +148,13 @@ def fmt(x: float, digits: int = 6) -> str:
     if x is None or (isinstance(x, float) and not math.isfinite(x)):
         return "-"
     return f"{x:.{digits}g}"
+
+
+def guarded_ratio(a: float, b: float, error: float) -> float | None:
+    """a / b, or None when both a and b lie within `error` of zero (their ratio then says nothing, e.g.
+    two forces that vanish by symmetry) or b is zero. `error` is the absolute error estimate of the
+    computed value a; the point model's b is compared with the same error."""
+    a, b, error = float(a), float(b), abs(float(error))
+    if b == 0 or not (math.isfinite(a) and math.isfinite(b)) or (abs(a) <= error and abs(b) <= error):
+        return None
+    return a / b

@@ -21,10 +21,10 @@ G_UNIT = "m^3 kg^-1 s^-2"
 
 def add_arguments(parser) -> None:
     parser.add_argument("scene", metavar="SCENE", help="scene file (TOML) with a [measurement] table")
-    parser.add_argument("--rtol", type=float, default=1e-9,
-                        help="engine tolerance for the reduction and the GUM sensitivities (default 1e-9)")
-    parser.add_argument("--mc-rtol", type=float, default=1e-6,
-                        help="looser engine tolerance inside the Monte Carlo (default 1e-6)")
+    from truepull.cli import options
+
+    options.add_rtol(parser, what="relative tolerance of the engine for the reduction and the GUM sensitivities")
+    options.add_rtol(parser, 1e-6, "looser relative tolerance of the engine inside the Monte Carlo", "--mc-rtol")
     parser.add_argument("--samples", type=int, default=None,
                         help="Monte Carlo draws, fixed (default: adaptive, JCGM 101:2008 7.9, until u and the 95 %% "
                              "interval are stable to two significant digits; 0 skips the Monte Carlo)")
@@ -32,25 +32,28 @@ def add_arguments(parser) -> None:
                         help="every Monte Carlo draw through the full model (slow; for a cluster) instead of "
                              "the checked second-order surrogate")
     parser.add_argument("--check-draws", type=int, default=50,
-                        help="full-model draws that check the surrogate (default 50)")
-    parser.add_argument("--seed", type=int, default=0, help="seed of the Monte Carlo draws (default 0)")
-    parser.add_argument("--workers", type=int, default=None,
-                        help="local worker processes (default: one per core; 1 runs here)")
-    parser.add_argument("--scheduler", metavar="ADDRESS",
-                        help="run the budget on a Dask cluster, e.g. tcp://127.0.0.1:8786")
+                        help="full-model draws that check the surrogate (default: 50)")
+    parser.add_argument("--seed", type=int, default=0, help="seed of the Monte Carlo draws (default: 0)")
+    options.add_parallel(parser)
     parser.add_argument("--fiber-q", metavar="Q",
                         help="fiber quality factor for the anelasticity correction of time-of-swing, "
                              "e.g. 2500 or '2500 +- 300' (replaces the scene's fiber_q)")
     parser.add_argument("--method", default=None,
                         help="reduce only the measurement by this method (deflection, swing, acceleration, servo) "
                              "when the scene has several [[measurement]] tables")
-    parser.add_argument("--test", default="pendulum", help="the suspended group (default pendulum)")
-    parser.add_argument("--source", default="attractor", help="the source group (default attractor)")
+    options.add_groups(parser)
     parser.add_argument("--no-budget", action="store_true", help="skip the uncertainty budget")
-    parser.add_argument("--no-progress", action="store_true", help="no progress bar on stderr")
+    options.add_quiet(parser)
+    parser.add_argument("--no-progress", action="store_true", help="the same as --quiet (kept for scripts)")
     from truepull.cli.fit import add_data_arguments
 
     add_data_arguments(parser, as_option=True)
+
+
+def _show_progress(args) -> bool:
+    from truepull.cli.options import show_progress
+
+    return show_progress(args)
 
 
 def _fiber_q(raw):
@@ -71,7 +74,7 @@ def reduce_data(args) -> dict:
     data = reduction_data(args.scene, rtol=args.rtol, mc_rtol=args.mc_rtol, samples=args.samples, seed=args.seed,
                           check_draws=args.check_draws, full_model=args.full_model, workers=args.workers,
                           scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test, source=args.source,
-                          budget=not args.no_budget, progress=not args.no_progress, text=text,
+                          budget=not args.no_budget, progress=_show_progress(args), text=text,
                           method=getattr(args, "method", None))
     if fit is not None:
         data["fit"] = fit

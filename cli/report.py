@@ -74,23 +74,23 @@ def add_arguments(parser) -> None:
                         help="recorded run to fit (columns time, angle, position as for `truepull fit`)")
     parser.add_argument("--data-time-unit", default="s", help="unit of the run's time column (default: s)")
     parser.add_argument("--data-angle-unit", default="rad", help="unit of the run's angle column (default: rad)")
-    parser.add_argument("--rtol", type=float, default=1e-9,
-                        help="engine tolerance of compare and the reduction (default: 1e-9)")
-    parser.add_argument("--survey-rtol", type=float, default=SURVEY_RTOL,
-                        help=f"engine tolerance of the turn scan, the bias ranking and the 3-D view's field "
-                             f"(default: {SURVEY_RTOL:g})")
+    from truepull.cli import options
+
+    options.add_rtol(parser, what="relative tolerance of the engine for compare and the reduction")
+    options.add_rtol(parser, SURVEY_RTOL, "relative tolerance of the engine for the turn scan, the bias ranking "
+                                          "and the 3-D view's field", "--survey-rtol")
     parser.add_argument("--turn", metavar="START:STOP:STEP",
-                        help="turn scan in degrees, e.g. --turn=-60:60:5 (default: across the positions' turns)")
+                        help="turn scan in degrees, STOP included when it falls on the grid, e.g. --turn=-60:60:5 "
+                             "(default: across the positions' turns)")
     parser.add_argument("--samples", type=int, default=None,
                         help="Monte Carlo draws of the budget beside the GUM linear one, fixed (default: adaptive, "
                              "JCGM 101:2008 7.9, through the checked surrogate, as for reduce; 0 for the GUM "
                              "budget only)")
     parser.add_argument("--check-draws", type=int, default=50,
                         help="full-model draws that check the Monte Carlo's surrogate (default: 50)")
-    parser.add_argument("--workers", type=int, default=None,
-                        help="local worker processes (default: one per core)")
-    parser.add_argument("--test", default="pendulum", help="the suspended group (default: pendulum)")
-    parser.add_argument("--source", default="attractor", help="the group that pulls (default: attractor)")
+    options.add_parallel(parser)
+    options.add_quiet(parser)
+    options.add_groups(parser)
     parser.add_argument("--no-view", action="store_true", help="skip the 3-D picture")
     parser.add_argument("--no-bias", action="store_true", help="skip the bias ranking")
 
@@ -243,6 +243,7 @@ def torque_scale(c) -> float:
 
 
 def section_compare(ctx: Context) -> Section:
+    from truepull.cli.output import guarded_ratio
     from truepull.integrate.interaction import compare_positions
 
     s = Section("compare", "Exact interaction beside the point-mass model")
@@ -257,10 +258,10 @@ def section_compare(ctx: Context) -> Section:
             "stiffness exact (N m/rad)", "stiffness point (N m/rad)", "exact/point", "|force| (N)", "reached"]
     rows = []
     for c in comps:
-        corr = c.correction
         rows.append([c.position or "as drawn", fmt(c.exact.torque_axis, 10), fmt(c.point.torque_axis, 10),
-                     fmt(corr["torque_axis"], 8), fmt(c.error.torque_axis, 2), fmt(c.exact.stiffness_axis, 8),
-                     fmt(c.point.stiffness_axis, 8), fmt(corr["stiffness_axis"], 8),
+                     fmt(guarded_ratio(c.exact.torque_axis, c.point.torque_axis, c.error.torque_axis), 8),
+                     fmt(c.error.torque_axis, 2), fmt(c.exact.stiffness_axis, 8), fmt(c.point.stiffness_axis, 8),
+                     fmt(guarded_ratio(c.exact.stiffness_axis, c.point.stiffness_axis, c.error.stiffness_axis), 8),
                      fmt(float(np.linalg.norm(c.exact.force)), 8), "yes" if c.reached else "NO"])
     parts = [f"Test group `{comps[0].test}`, source group `{comps[0].source}`; torque about the fiber axis, "
              f"stiffness -d(torque)/d(turn of the test group); requested tolerance {ctx.args.rtol:g}.",
@@ -314,7 +315,7 @@ def section_scan(ctx: Context) -> Section:
         s.available, s.reason = False, f"no group '{group}' to turn"
         return s
     sweep = scans.Sweep("turn", tuple(math.radians(v) for v in shown), group)
-    result = scans.scan(scene, sweep, test=ctx.args.test, source=ctx.args.source, rtol=ctx.args.survey_rtol, workers=ctx.args.workers,
+    result = scans.scan(scene, sweep, test=ctx.args.test, source=ctx.args.source, rtol=ctx.args.survey_rtol, workers=ctx.args.workers, scheduler=getattr(ctx.args, "scheduler", None),
                         scene_path=ctx.scene_path, progress=False)
     png, caption = FIGURES["scan"]
     write_png(str(ctx.folder / png), result, shown, "deg", f"{scene.title or Path(scene.path).name}: turn of {group}")
@@ -373,7 +374,7 @@ REPORT_SPHERES = 4
 def section_bias(ctx: Context) -> Section:
     sens = _need("truepull.integrate.balance.sensitivity")
     s = Section("bias", "What moves the result")
-    result = sens.sensitivities(ctx.scene, ctx.args.test, ctx.args.source, rtol=ctx.args.survey_rtol, workers=ctx.args.workers,
+    result = sens.sensitivities(ctx.scene, ctx.args.test, ctx.args.source, rtol=ctx.args.survey_rtol, workers=ctx.args.workers, scheduler=getattr(ctx.args, "scheduler", None),
                                 scene_path=ctx.scene_path, progress=False)
     s.data = result.to_json()
     where = f"position {result.position}" if result.position else "the scene as drawn"
@@ -432,7 +433,7 @@ def section_reduce(ctx: Context, scene=None, scene_text: str | None = None, name
     ctx.reduced[name] = data
     budget = bud.reduction_budget(scene, reduction, scene_text, test=ctx.args.test, source=ctx.args.source,
                                   samples=ctx.args.samples, check_draws=ctx.args.check_draws,
-                                  workers=ctx.args.workers, progress=False)
+                                  workers=ctx.args.workers, scheduler=getattr(ctx.args, "scheduler", None), progress=False)
     data.update(budget.to_json(reduction.G))
     s.data = data
     s.reached = bool(reduction.reached)
@@ -783,7 +784,9 @@ def plan(scene, args) -> list:
     return steps
 
 
-def _progress(msg: str) -> None:
+def _progress(msg: str, quiet: bool = False) -> None:
+    if quiet:
+        return
     sys.stderr.write(f"truepull report: {msg}\n")
     sys.stderr.flush()
 
@@ -793,13 +796,14 @@ def build(ctx: Context) -> list[Section]:
     for step in plan(ctx.scene, ctx.args):
         start = time.perf_counter()
         name = step.__name__.removeprefix("section_")
-        _progress(f"{name} ...")
+        _progress(f"{name} ...", getattr(ctx.args, "quiet", False))
         try:
             s = step(ctx)
         except PieceMissing as exc:
             s = Section(name, name, available=False, reason=str(exc))
         s.seconds = round(time.perf_counter() - start, 3)
-        _progress(f"{name} done in {s.seconds:.1f} s" + ("" if s.available else f" (not available: {s.reason})"))
+        _progress(f"{name} done in {s.seconds:.1f} s" + ("" if s.available else f" (not available: {s.reason})"),
+                  getattr(ctx.args, "quiet", False))
         sections.append(s)
     return sections
 

@@ -2,46 +2,40 @@
 
 The table (CSV) goes to stdout, or to --csv FILE; notes (method used, overlaps, checks) go to
 stderr so that the CSV stays clean. Sweep values: a turn in degrees, a shift in the scene's length
-unit on the command line; in the CSV and JSON a turn is in degrees and a shift in metres.
+unit on the command line (or either with its own unit, "0:2:0.5 mm"); in the CSV and JSON a turn is
+in degrees and a shift in metres. The CSV's column names end in their units (`value_deg`,
+`exact_torque_axis_N_m`, ...) and it carries the error columns of the JSON. The work is
+`truepull.api.scan`; this module reads the options and writes the outputs.
 """
 
 from __future__ import annotations
 
-import csv
-import io
-import math
 import sys
 
 import numpy as np
 
+from truepull.cli import options
 from truepull.cli.output import not_reached_exit, print_json, save_figure_atomic, write_atomic
-from truepull.geometry.errors import InputError
-from truepull.geometry.scene import load_scene
-from truepull.integrate.scans import DEFAULT_CHECKS, Sweep, parse_range, scan
+from truepull.integrate.scans import DEFAULT_CHECKS
 
 HELP = "sweep a turn or a shift of a group; exact and point torque and stiffness"
-HEADER = ["value", "exact_torque_axis", "point_torque_axis", "exact_stiffness_axis", "point_stiffness_axis",
-          "fx", "fy", "fz"]
 
 
 def add_arguments(parser) -> None:
-    parser.add_argument("scene", metavar="SCENE", help="scene file (TOML)")
+    options.add_scene(parser)
     what = parser.add_mutually_exclusive_group(required=True)
-    what.add_argument("--turn", metavar="START:STOP:STEP",
-                      help="turn the group about the frame axis through the pivot, in degrees (STOP included "
-                           "when it falls on the grid)")
+    what.add_argument("--turn", metavar="START:STOP:STEP", help=TURN_HELP)
     what.add_argument("--shift", metavar="x|y|z:START:STOP:STEP",
-                      help="shift the group along a scene axis, in the scene's length unit")
-    parser.add_argument("--group", default="attractor", help="the group that moves (default: attractor)")
-    parser.add_argument("--test", default="pendulum", help="group the torque acts on (default: pendulum)")
-    parser.add_argument("--source", default="attractor", help="group that pulls (default: attractor)")
-    parser.add_argument("--position", metavar="NAME", help="start from this [[position]] of the scene")
-    parser.add_argument("--rtol", type=float, default=1e-9, help="relative tolerance (default: 1e-9)")
+                      help="shift the group along a scene axis, in the scene's length unit or with a unit, "
+                           "e.g. 'x:0:2:0.5 mm' (STOP included when it falls on the grid)")
+    options.add_group(parser)
+    options.add_groups(parser)
+    options.add_position(parser, what="start from this [[position]] of the scene")
+    options.add_rtol(parser)
     parser.add_argument("--csv", metavar="FILE", help="write the table to FILE instead of stdout")
     parser.add_argument("--png", metavar="FILE", help="plot of exact and point torque, stiffness and their ratio")
-    parser.add_argument("--scheduler", metavar="ADDRESS",
-                        help="run on a Dask cluster, e.g. tcp://127.0.0.1:8786 (default: local processes)")
-    parser.add_argument("--workers", type=int, help="local worker processes (default: one per core)")
+    options.add_parallel(parser)
+    options.add_quiet(parser)
     parser.add_argument("--no-multipoles", action="store_true",
                         help="integrate every value directly, even where the multipole series applies")
     parser.add_argument("--checks", type=int, default=DEFAULT_CHECKS,
@@ -49,30 +43,23 @@ def add_arguments(parser) -> None:
                              f"{DEFAULT_CHECKS})")
 
 
-def parse_sweep(scene, args) -> tuple[Sweep, tuple[float, ...], str]:
+TURN_HELP = ("turn the group about the frame axis through the pivot, in degrees or with a unit, e.g. "
+             "'0:1:0.1 rad'; STOP included when it falls on the grid")
+
+
+def parse_sweep(scene, args):
     """(sweep in SI, the values as output: degrees for a turn, metres for a shift, that unit's name)."""
-    if args.turn is not None:
-        values = parse_range(args.turn, "--turn", scene.path)
-        return Sweep("turn", tuple(math.radians(v) for v in values), args.group), values, "deg"
-    text = str(args.shift)
-    direction, _, rest = text.partition(":")
-    direction = direction.strip().lower()
-    if direction not in ("x", "y", "z"):
-        raise InputError(scene.path, "--shift", f"expected x|y|z:START:STOP:STEP, got '{text}'")
-    values = parse_range(rest, "--shift", scene.path)
-    f = scene.length_factor
-    si = tuple(v * f for v in values)
-    return Sweep("shift", si, args.group, direction), si, "m"
+    from truepull.api import sweep_of
+
+    return sweep_of(scene, args.turn, args.shift, args.group)
 
 
-def csv_text(result, shown) -> str:
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(HEADER)
-    for v, r in zip(shown, result.rows):
-        cells = [v, r.exact_torque_axis, r.point_torque_axis, r.exact_stiffness_axis, r.point_stiffness_axis, *r.force]
-        w.writerow(["" if (isinstance(c, float) and not math.isfinite(c)) else repr(float(c)) for c in cells])
-    return buf.getvalue()
+def csv_text(result, shown, rtol: float = float("nan")) -> str:
+    """The CSV table of an integrate.scans.ScanResult (truepull.results.ScanResult.csv)."""
+    from truepull.results import ScanResult
+
+    unit = "deg" if result.sweep.kind == "turn" else "m"
+    return ScanResult(result, np.asarray(shown, float), unit, rtol).csv()
 
 
 def meeting_spans(x, met) -> list[tuple[float, float]]:
@@ -140,27 +127,21 @@ def write_png(path: str, result, shown, unit: str, title: str) -> None:
 
 
 def run(args) -> int:
+    from truepull.api import load_scene, scan
+
     scene = load_scene(args.scene)
-    sweep, shown, unit = parse_sweep(scene, args)
-    if args.checks < 0:
-        raise InputError(scene.path, "--checks", "must be zero or more")
-    result = scan(scene, sweep, test=args.test, source=args.source, position=args.position, rtol=args.rtol,
-                  workers=args.workers, scheduler=args.scheduler, progress=sys.stderr.isatty(),
-                  scene_path=args.scene, multipoles=not args.no_multipoles, checks=args.checks)
+    api_result = scan(scene, args.turn, args.shift, group=args.group, test=args.test, source=args.source,
+                      position=args.position, rtol=args.rtol, workers=args.workers, scheduler=args.scheduler,
+                      progress=options.show_progress(args), scene_path=args.scene,
+                      multipoles=not args.no_multipoles, checks=args.checks)
+    result, shown, unit, sweep = api_result.result, api_result.values, api_result.unit, api_result.result.sweep
     title = f"{scene.title or scene.path}: {sweep.kind} of {sweep.group}"
     if args.png:
         write_png(args.png, result, shown, unit, title)
     if args.json:
-        rows = [dict(r.to_json(), value=float(v)) for v, r in zip(shown, result.rows)]
-        to_shown = dict(zip(sweep.values, shown))
-        print_json({"rows": rows, "method": result.method,
-                    "degree": result.degree, "unit": unit, "kind": sweep.kind, "group": sweep.group,
-                    "direction": sweep.direction, "test": result.test, "source": result.source,
-                    "rtol": args.rtol, "notes": list(result.notes),
-                    "checks": [{"value": float(to_shown.get(c.value, c.value)), "multipole": c.multipole, "direct": c.direct,
-                                "allowed": c.allowed} for c in result.checks]})
+        print_json(api_result.to_json())
     else:
-        text = csv_text(result, shown)
+        text = api_result.csv()
         if args.csv:
             write_atomic(args.csv, text)
             print(f"wrote {args.csv}: {len(result.rows)} rows ({result.method})")

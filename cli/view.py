@@ -30,18 +30,18 @@ GRID_RANGE = (5, 201)
 
 
 def add_arguments(parser) -> None:
-    parser.add_argument("scene", metavar="SCENE", help="scene file (TOML)")
-    parser.add_argument("--position", metavar="NAME", help="draw the scene at this [[position]] (default: as drawn)")
+    from truepull.cli import options
+
+    options.add_scene(parser)
+    options.add_position(parser, what="draw the scene at this [[position]]")
     parser.add_argument("--png", metavar="FILE", help="draw off-screen into this PNG file instead of a window")
     parser.add_argument("--vtk", metavar="FILE", help="also write bodies and sampled field as a VTK MultiBlock "
                                                      "(.vtm, SI units) for ParaView")
     parser.add_argument("--plane", choices=tuple(PLANES), help="plane of the field samples, through the test "
                                                                "group's centre of mass (default: across the fiber)")
-    parser.add_argument("--grid", type=int, default=41, metavar="N", help="N x N field samples (default 41)")
-    parser.add_argument("--test", default="pendulum", metavar="G", help="group feeling the pull (default pendulum)")
-    parser.add_argument("--source", default="attractor", metavar="G", help="group whose field is drawn "
-                                                                           "(default attractor)")
-    parser.add_argument("--rtol", type=float, default=1e-6, help="relative tolerance of the engine (default 1e-6)")
+    parser.add_argument("--grid", type=int, default=41, metavar="N", help="N x N field samples (default: 41)")
+    options.add_groups(parser, source="group that pulls, whose field is drawn")
+    options.add_rtol(parser, 1e-6)
 
 
 def _centre(bodies) -> np.ndarray:

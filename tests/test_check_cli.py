@@ -59,7 +59,7 @@ def test_json_follows_the_contract(tmp_path, capsys):
     code, out, err = run_check(tmp_path, TWO_BOBS, "--json", capsys=capsys)
     assert code == 0 and err == ""
     data = json.loads(out)
-    assert set(data) == {"bodies", "groups", "warnings"}
+    assert set(data) == {"bodies", "groups", "warnings", "stated"}  # "stated": added, the contract keys kept
     assert [b["name"] for b in data["bodies"]] == ["bob-east", "bob-west", "big"]
     for b in data["bodies"]:
         assert set(b) == {"name", "group", "shape", "mass", "volume", "com", "inertia_com"}
@@ -82,7 +82,7 @@ def test_json_follows_the_contract(tmp_path, capsys):
 def test_table_shows_units(tmp_path, capsys):
     code, out, _ = run_check(tmp_path, TWO_BOBS, capsys=capsys)
     assert code == 0
-    assert "centre of mass mm" in out and "mass kg" in out and "bob-west" in out
+    assert "centre of mass (mm)" in out and "mass (kg)" in out and "bob-west" in out
     assert "(50, 0, 0)" in out and "no warnings" in out
 
 

@@ -69,8 +69,9 @@ def test_csv_on_stdout_matches_newton(tmp_path, capsys):
     assert main(["scan", path, "--turn", "0:90:30", "--workers", "1"]) == 0
     out = capsys.readouterr()
     rows = list(csv.reader(io.StringIO(out.out)))
-    assert rows[0] == ["value", "exact_torque_axis", "point_torque_axis", "exact_stiffness_axis",
-                       "point_stiffness_axis", "fx", "fy", "fz"]
+    assert rows[0] == ["value_deg", "exact_torque_axis_N_m", "point_torque_axis_N_m",
+                       "exact_stiffness_axis_N_m_per_rad", "point_stiffness_axis_N_m_per_rad", "fx_N", "fy_N", "fz_N",
+                       "error_torque_axis_N_m", "error_stiffness_axis_N_m_per_rad", "error_force_N"]
     assert [float(r[0]) for r in rows[1:]] == [0.0, 30.0, 60.0, 90.0]
     scale = max(abs(_newton(math.radians(float(r[0])))[0]) for r in rows[1:])  # the torque vanishes at 0
     for r in rows[1:]:
@@ -106,7 +107,7 @@ def test_csv_file_and_bad_input(tmp_path, capsys):
     path = _write(tmp_path)
     out = tmp_path / "t.csv"
     assert main(["scan", path, "--turn", "0:10:10", "--csv", str(out), "--workers", "1"]) == 0
-    assert out.read_text().startswith("value,exact_torque_axis")
+    assert out.read_text().startswith("value_deg,exact_torque_axis_N_m")
     capsys.readouterr()
     for argv in (["--turn", "0:10"], ["--turn", "0:10:0"], ["--shift", "w:0:1:1"], ["--turn", "0:10:5", "--group", "x"],
                  ["--turn", "0:10:5", "--position", "nowhere"], ["--turn", "0:10:5", "--rtol", "-1"]):

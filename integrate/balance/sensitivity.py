@@ -83,7 +83,8 @@ class SensitivityRow:
     def to_json(self) -> dict:
         return {"body": self.body, "parameter": self.parameter, "value": self.value,
                 "d_torque_axis": self.d_torque_axis, "u": self.u, "torque_ppm": self.torque_ppm,
-                "d_G": self.d_G, "G_ppm": self.G_ppm, "d_error": self.d_error, "step": self.step,
+                "d_G": self.d_G, "G_ppm": self.G_ppm, "d_error": self.d_error,
+                "error_d_torque_axis": self.d_error, "step": self.step,
                 "method": self.method}
 
 
@@ -110,7 +111,8 @@ class WhatIfResult:
         return {"kind": self.kind, "body": self.body, "description": self.description,
                 "torque_before": self.torque_before, "torque_after": self.torque_after,
                 "d_torque_axis": self.d_torque_axis, "torque_ppm": self.torque_ppm, "G_ppm": self.G_ppm,
-                "error_torque": self.error_torque, "G_method": self.G_method}
+                "error_torque": self.error_torque, "error_torque_axis": self.error_torque,
+                "G_method": self.G_method}
 
 
 @dataclass(frozen=True)
@@ -130,7 +132,8 @@ class BiasResult:
 
     def to_json(self) -> dict:
         return {"rows": [r.to_json() for r in self.rows], "torque_axis": self.torque_axis,
-                "torque_error": self.torque_error, "position": self.position, "G": self.G,
+                "torque_error": self.torque_error, "error_torque_axis": self.torque_error,
+                "position": self.position, "G": self.G,
                 "G_model": self.G_model, "rtol": self.rtol, "step_factor": self.step_factor,
                 "notes": list(self.notes)}
 
