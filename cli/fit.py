@@ -234,13 +234,15 @@ def write_png(path: str, fits, time, angle, time_unit: str, angle_unit: str, run
         name = f"position {f.position}" if f.position is not None else "record"
         top.set_title(f"segment {k + 1}: {name}\nT = {_pm(f.period, f.u_period, tf)} {_unit_label(time_unit)}, "
                       f"decrement = {_pm(f.decrement, f.u_decrement)}", fontsize=9)
-        top.set_ylabel(f"angle [{_unit_label(angle_unit)}]")
-        top.legend(fontsize=8, loc="upper right")
+        top.set_ylabel(f"angle ({_unit_label(angle_unit)})")
         bottom.plot(t / tf, (y - model(t)) / af, ".", ms=2.0, color="C3")
         bottom.axhline(0.0, color="0.3", lw=0.6)
-        bottom.set_ylabel(f"residual [{_unit_label(angle_unit)}]")
-        bottom.set_xlabel(f"time [{_unit_label(time_unit)}]")
+        bottom.set_ylabel(f"residual ({_unit_label(angle_unit)})")
+        bottom.set_xlabel(f"time ({_unit_label(time_unit)})")
         top.tick_params(labelbottom=False)
+    if fits:  # one legend above all the panels, so that it covers no data
+        handles, labels = fig.axes[0].get_legend_handles_labels()
+        fig.legend(handles, labels, loc="outside upper center", ncols=len(labels), fontsize=9, markerscale=3)
     save_figure_atomic(fig, path, dpi=110)
 
 

@@ -303,7 +303,7 @@ def default_turns(scene) -> tuple[str, tuple[float, ...]]:
 
 def section_scan(ctx: Context) -> Section:
     scans = _need("truepull.integrate.scans")
-    from truepull.cli.scan import csv_text, write_png
+    from truepull.cli.scan import csv_text, position_marks, write_png
 
     s = Section("scan", "Torque versus turn")
     scene = ctx.scene
@@ -317,7 +317,8 @@ def section_scan(ctx: Context) -> Section:
     result = scans.scan(scene, sweep, test=ctx.args.test, source=ctx.args.source, rtol=ctx.args.survey_rtol, workers=ctx.args.workers,
                         scene_path=ctx.scene_path, progress=False)
     png, caption = FIGURES["scan"]
-    write_png(str(ctx.folder / png), result, shown, "deg", f"{scene.title or Path(scene.path).name}: turn of {group}")
+    write_png(str(ctx.folder / png), result, shown, "deg", f"{scene.title or Path(scene.path).name}: turn of {group}",
+              position_marks(scene, sweep))
     write_atomic(ctx.folder / "scan.csv", csv_text(result, shown))
     s.figures = [png, "scan.csv"]
     s.reached = bool(result.reached)
@@ -481,21 +482,39 @@ def section_reduce(ctx: Context, scene=None, scene_text: str | None = None, name
     return s
 
 
+TOTAL_LABEL = "total u(G)"
+"""The budget figure's top bar: the combined standard uncertainty itself, not a sum of the bars."""
+
+
 def budget_png(path, rows, G: float, u: float | None = None, top: int = 20) -> None:
-    """Horizontal bars: each input's contribution to u(G) in ppm, largest at the top; the title gives
-    G in concise notation when u is known."""
+    """Horizontal bars: each input's contribution to u(G) in ppm of G, largest at the top, and above
+    them, in its own colour, the combined u(G) (the budget's total, which adds the contributions in
+    quadrature with their correlations, so it is less than their sum); the title gives G in concise
+    notation when u is known."""
     from matplotlib.figure import Figure
+
+    from truepull.cli.notation import concise, ppm
 
     rows = sorted(rows, key=lambda b: -b["contribution"])[:top][::-1]
     names = [b["input"] for b in rows]
-    ppm = [b["contribution_ppm"] for b in rows]
-    fig = Figure(figsize=(8, 0.9 + 0.32 * max(len(rows), 1)), layout="constrained")
+    values = [b["contribution_ppm"] for b in rows]
+    colours = ["C0"] * len(rows)
+    if u:
+        names.append(TOTAL_LABEL)
+        values.append(abs(u / G) * 1e6)
+        colours.append("C3")
+    fig = Figure(figsize=(8, 1.1 + 0.32 * max(len(names), 1)), layout="constrained")
     ax = fig.subplots()
-    ax.barh(range(len(rows)), ppm, color="C0")
-    ax.set_yticks(range(len(rows)), names, fontsize=8)
+    y = np.arange(len(names), dtype=float)
+    if u:
+        y[-1] += 0.5  # a gap between the inputs and their total
+    ax.barh(y, values, color=colours)
+    ax.set_yticks(y, names, fontsize=8)
+    if u:
+        ax.get_yticklabels()[-1].set_fontweight("bold")
+        ax.text(values[-1], y[-1], f" {ppm(u, G)} ppm", va="center", fontsize=8)
+        ax.set_xlim(0, values[-1] * 1.15)
     ax.set_xlabel("contribution to u(G) (ppm of G)")
-    from truepull.cli.notation import concise, ppm
-
     shown = f"{concise(G, u)} m^3 kg^-1 s^-2 ({ppm(u, G)} ppm)" if u else f"{G:.7g} m^3 kg^-1 s^-2"
     ax.set_title(f"uncertainty budget of G = {shown}", fontsize=10)
     ax.grid(True, axis="x", alpha=0.3)
