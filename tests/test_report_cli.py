@@ -424,3 +424,20 @@ def test_cautions_name_the_same_hazards_in_readme_and_report():
     for hazard in ("lead is toxic", "crush", "laser", "fiber can snap", "dust and chips", "pinch", "implode",
                    "local codes"):
         assert hazard in readme and hazard in report, hazard
+
+
+def test_budget_figure_shows_the_total_above_the_inputs(monkeypatch):
+    from truepull.cli import report as report_cli
+
+    figs = []
+    monkeypatch.setattr(report_cli, "save_figure_atomic", lambda fig, path, **kw: figs.append(fig))
+    rows = [{"input": "a", "contribution": 3e-15, "contribution_ppm": 45.0},
+            {"input": "b", "contribution": 4e-15, "contribution_ppm": 60.0}]
+    G, u = 6.674e-11, 5.0e-15
+    report_cli.budget_png("x.png", rows, G, u)
+    ax = figs[0].axes[0]
+    labels = [t.get_text() for t in ax.get_yticklabels()]
+    assert labels == ["a", "b", report_cli.TOTAL_LABEL]  # largest input nearest the total, at the top
+    widths = [p.get_width() for p in ax.patches]
+    # the total's bar is u / G in ppm (the definition of a relative uncertainty in ppm), 5e-15 / 6.674e-11
+    assert widths[-1] == pytest.approx(u / G * 1e6, rel=1e-12) and widths[:2] == [45.0, 60.0]
