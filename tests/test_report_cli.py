@@ -271,8 +271,8 @@ def test_report_fit_recovers_the_invented_run(full_report):
     segs = _load(out)["sections"]["fit"]["segments"]
     assert [s["position"] for s in segs] == list(mr.SEQUENCE)
     # the generator's damped period at each position: omega_d^2 = (kappa + G s) / I - gamma^2, gamma =
-    # c / 2I, s the gravitational stiffness per unit G at the equilibrium (damped oscillator, textbook
-    # mechanics, from memory); the equilibrium to first order, zero + G Gamma(0) / kappa, is close enough
+    # c / 2I, s the gravitational stiffness per unit G at the equilibrium (damped oscillator,
+    # Landau and Lifshitz, Mechanics, 3rd ed., sec. 25; from memory); the equilibrium to first order, zero + G Gamma(0) / kappa, is close enough
     b = mr.demo_balance()
     gamma = b.damping / (2 * b.inertia)
     for s in segs:
