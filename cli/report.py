@@ -360,7 +360,11 @@ def _harmonics_parts(series, group: str, data: dict) -> list[str]:
             f"leading harmonics, above a millionth of the largest:",
             _md_table(["m", "C_m (N m)", "S_m (N m)", "amplitude (N m)", "error (N m)"], rows, "rrrrr")
             + "\n\nColumns: the harmonic's order m; its cosine and sine coefficients; sqrt(C_m^2 + S_m^2); the "
-            "bound on their error."]
+            "bound on their error. The series comes from the inner moments q_lm of the pendulum and the outer "
+            "moments Q_lm of the attractor about the pivot, in the torsion-balance multipole formalism (D'Urso and "
+            "Adelberger, Phys. Rev. D 55, 7970 (1997); Adelberger, Collins and Hoyle, Class. Quantum Grav. 23, "
+            "125 (2006)), with orthonormal Y_lm in the Condon-Shortley phase; the order m of a moment is the order "
+            "of the torque harmonic it feeds."]
 
 
 # --- bias ----------------------------------------------------------------------------------------

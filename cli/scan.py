@@ -14,6 +14,7 @@ import sys
 
 import numpy as np
 
+from truepull.cli.plot_units import power_of_ten, scaled_label as _scaled_label
 from truepull.cli.output import not_reached_exit, print_json, save_figure_atomic, write_atomic
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
@@ -96,20 +97,6 @@ def meeting_spans(x, met) -> list[tuple[float, float]]:
     return spans
 
 
-def power_of_ten(values) -> int:
-    """A multiple of three near log10 of the largest finite |value| (0 when there is none), so that
-    the axis reads in plain numbers with the power in its label."""
-    v = np.asarray(values, float)
-    v = np.abs(v[np.isfinite(v)])
-    if not v.size or not v.max() > 0:
-        return 0
-    return int(3 * math.floor(math.log10(v.max()) / 3))
-
-
-def _scaled_label(text: str, unit: str, power: int) -> str:
-    return f"{text} ({unit})" if power == 0 else f"{text} (10^{power} {unit})"
-
-
 def position_marks(scene, sweep, start: str | None = None) -> list[tuple[str, float]]:
     """(name, sweep value as shown) of each [[position]] of the sweep's group that the sweep passes
     through: for a turn, the position's turn in degrees relative to `start` (a position name, or the
@@ -157,7 +144,7 @@ def write_png(path: str, result, shown, unit: str, title: str, marks=()) -> None
     ax[0].plot(x, exact / 10.0**pt, label="exact", lw=1.6)
     ax[0].plot(x, point / 10.0**pt, "--", label="point masses", lw=1.2)
     ax[0].set_ylabel(_scaled_label("torque about the axis", "N m", pt))
-    ax[0].set_title(title)
+    ax[0].set_title(title, pad=14 if marks else 6)
     ax[1].plot(x, stiff / 10.0**ps, label="exact", lw=1.6)
     ax[1].plot(x, point_stiff / 10.0**ps, "--", label="point masses", lw=1.2)
     ax[1].set_ylabel(_scaled_label("gravitational stiffness", "N m/rad", ps))
@@ -176,8 +163,8 @@ def write_png(path: str, result, shown, unit: str, title: str, marks=()) -> None
         for k, (name, v) in enumerate(inside):
             a.axvline(v, color="0.25", ls=":", lw=1.0, label="positions" if k == 0 else None)
     for name, v in inside:
-        ax[0].annotate(name, (v, 1.0), xycoords=("data", "axes fraction"), xytext=(2, -2),
-                       textcoords="offset points", va="top", fontsize=8, color="0.25")
+        ax[0].annotate(name, (v, 1.0), xycoords=("data", "axes fraction"), xytext=(0, 2),
+                       textcoords="offset points", ha="center", va="bottom", fontsize=8, color="0.25")
     for a in ax[:2]:
         a.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     if spans or inside:

@@ -88,7 +88,7 @@ def add_field(plotter, shown, fp, factor: float) -> dict:
                          clim=(lo, hi), lighting=False, show_scalar_bar=True, opacity=PLANE_OPACITY,
                          scalar_bar_args={"title": "magnitude of g (m/s^2)", "fmt": "%.1e", "n_labels": 5,
                                           "color": "black", "vertical": True, "position_x": 0.88,
-                                          "position_y": 0.12, "height": 0.7, "width": 0.06})
+                                          "position_y": 0.10, "height": 0.66, "width": 0.06})
         info["drawn"].append("field")
     n = fp.n
     step = max(1, int(round((n - 1) / (ARROWS_PER_SIDE - 1))))
@@ -122,7 +122,8 @@ def add_arrow(plotter, start, vector, length: float, colour: str, label: str) ->
     plotter.add_mesh(pv.Arrow(start=start, direction=d, scale=length, tip_length=0.25, tip_radius=0.07,
                               shaft_radius=0.025), color=colour)
     plotter.add_point_labels(np.asarray([np.asarray(start) + d * length * 1.05]), [label], font_size=14,
-                             text_color=colour, shape=None, show_points=False, always_visible=True)
+                             text_color=colour, shape="rounded_rect", shape_color="white", shape_opacity=0.75,
+                             show_points=False, always_visible=True)
     return True
 
 
