@@ -60,15 +60,32 @@ def add_bodies(plotter, bodies, surfaces, colours, factor: float) -> None:
                          smooth_shading=True, split_sharp_edges=True)
 
 
+TICK_OVERSHOOT = 0.1
+"""The axes may reach this fraction of their span past what is drawn, to end on a round tick."""
+
+
 def nice_ticks(lo: float, hi: float, most: int = 6) -> tuple[float, float, int]:
-    """(start, stop, count) of round tick values (1, 2, 2.5 or 5 times a power of ten apart) that
-    cover [lo, hi] with at most `most` + 1 labels, from matplotlib's tick locator."""
+    """(first, last, count) of round tick values (1, 2, 2.5 or 5 times a power of ten apart, from
+    matplotlib's tick locator) for an axis over [lo, hi]: the coarsest such step, with at most
+    most + 2 intervals, whose ticks reach past both ends by no more than TICK_OVERSHOOT of the span;
+    failing that, the coarsest one's ticks inside [lo, hi]. So the axes hug what is drawn and carry
+    only round labels."""
     from matplotlib.ticker import MaxNLocator
 
     if not hi > lo:
-        lo, hi = lo - 1.0, hi + 1.0
-    ticks = MaxNLocator(nbins=most, steps=[1, 2, 2.5, 5, 10]).tick_values(lo, hi)
-    return float(ticks[0]), float(ticks[-1]), len(ticks)
+        return float(lo), float(lo), 1
+    slack = TICK_OVERSHOOT * (hi - lo)
+    steps = []
+    for nbins in range(most, most + 3):
+        ticks = MaxNLocator(nbins=nbins, steps=[1, 2, 2.5, 5, 10]).tick_values(lo, hi)
+        step = float(ticks[1] - ticks[0])
+        steps.append(step)
+        first, last = np.floor(lo / step) * step, np.ceil(hi / step) * step
+        if lo - first <= slack and last - hi <= slack:
+            return float(first), float(last), int(round((last - first) / step)) + 1
+    step = steps[0]
+    first, last = np.ceil(lo / step) * step, np.floor(hi / step) * step
+    return float(first), float(last), int(round((last - first) / step)) + 1
 
 
 def add_field(plotter, shown, fp, factor: float) -> dict:
@@ -176,7 +193,7 @@ def draw(plotter, scene, bodies, surfaces, fp, shown, comparison, centre, title:
     plotter.add_text(title, position="upper_edge", font_size=11, color="black")
     bounds = []
     for k, (lo, hi) in enumerate(np.reshape(plotter.bounds, (3, 2))):
-        t0, t1, count = nice_ticks(lo, hi)
+        t0, t1, count = nice_ticks(lo, hi, 6 if k < 2 else 3)  # z: the axis is short on screen
         bounds += [t0, t1]
         info.setdefault("tick_counts", []).append(count)
     nx, ny, nz = info["tick_counts"]
