@@ -43,14 +43,17 @@ SCAN_STEPS = 24
 MARKER = "report.json"
 
 CAUTIONS = (
-    "Lead is toxic: wear gloves when handling lead masses, keep food and drink away, wash your hands "
+    "Lead is toxic. Wear gloves when handling lead masses, keep food and drink away, wash your hands "
     "afterwards, and use sealed or painted masses.",
-    "Heavy masses crush and tip: move them with rated lifting gear and fix them on secured mounts.",
-    "Laser optical levers: use low-power lasers only; never let the beam or its reflection reach an eye.",
-    "Machining lead or tungsten alloys makes toxic dust and chips: extraction, wet methods and the lab's "
-    "rules for them.",
-    "Turntables pinch and vacuum cans can implode: guards, and never a hand in a moving mount.",
-    "A loaded fiber can snap: keep the case closed and stand clear.",
+    "Heavy masses crush and tip. Move them with rated lifting gear and fix them on secured mounts and "
+    "turntables; keep hands and feet out from under them.",
+    "Laser optical levers: use low-power lasers only and never let the beam, or its reflection from the "
+    "mirror, reach anyone's eye.",
+    "Machining lead or tungsten alloys makes toxic dust and chips: use local extraction or wet methods, "
+    "collect the chips, and follow the lab's rules for these metals.",
+    "Turntables pinch: guard them, and never reach into a moving mount.",
+    "Vacuum cans can implode: use cans rated for vacuum, shield their windows, and let air in slowly.",
+    "A loaded fiber can snap, dropping the pendulum; keep the case closed and stand clear.",
     "Local codes, your laboratory's safety rules and licensed practice come first.",
 )
 

@@ -180,7 +180,9 @@ def test_report_folder_holds_what_it_promises(full_report):
         assert (out / png).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     md = (out / "report.md").read_text()
     assert info["tool"]["name"] == "truepull" and info["tool"]["version"] in md
-    assert "Lead is toxic" in md and "licensed practice" in md
+    from truepull.cli.report import CAUTIONS
+
+    assert all(f"- {c}" in md for c in CAUTIONS)  # every caution, word for word as in the README
     assert "engine tolerance: 1e-09" in md and "reached:" in md
     for fig in ("torque_vs_turn.png", "fit.png", "budget.png"):
         assert f"]({fig})" in md
@@ -416,14 +418,20 @@ def test_report_names_no_folder_of_this_machine_and_follows_the_umask(full_repor
 
 
 def test_cautions_name_the_same_hazards_in_readme_and_report():
-    # the hazards named in the lab-safety notes (common practice): each in both places
+    # the hazards named in the lab-safety notes (common practice): each in both places, and the
+    # README's list under Cautions is the report's word for word (bold marks and line breaks aside)
+    import re
+
     from truepull.cli.report import CAUTIONS
 
-    readme = (Path(__file__).resolve().parent.parent / "README.md").read_text().lower()
+    readme = (Path(__file__).resolve().parent.parent / "README.md").read_text()
+    section = readme.split("## Cautions", 1)[1].split("\n## ", 1)[0]
+    items = [" ".join(i.replace("**", "").split()) for i in re.split(r"\n- ", section)[1:]]
+    assert items == list(CAUTIONS)
     report = " ".join(CAUTIONS).lower()
-    for hazard in ("lead is toxic", "crush", "laser", "fiber can snap", "dust and chips", "pinch", "implode",
-                   "local codes"):
-        assert hazard in readme and hazard in report, hazard
+    for hazard in ("lead is toxic", "crush", "laser", "eye", "fiber can snap", "tungsten", "dust and chips",
+                   "pinch", "implode", "local codes", "safety rules"):
+        assert hazard in report, hazard
 
 
 def test_budget_figure_shows_the_total_above_the_inputs(monkeypatch):
