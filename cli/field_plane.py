@@ -3,9 +3,12 @@
 The grid is centred on a given point (the pendulum's centre of mass), lies in a world coordinate
 plane (xy, xz or yz) and is wide enough to hold both groups. Field values come from the engine
 (`integrate.interaction.group_field`), never from a second calculation. Grid points inside a source
-body, or closer to its surface than a small margin (a quarter of the grid spacing), are masked: the
-engine's source fields hold outside the bodies, and points grazing a surface would only slow the
-quadrature down. Masked points carry NaN. SI throughout: m, J/kg, m/s^2.
+body, or closer to its surface than a small margin (a twentieth of the grid spacing), are masked:
+the engine's source fields hold outside the bodies. Masked points carry NaN. For pictures,
+`shown_plane` clips the grid along the bodies' own surfaces (each body's exact inside test, found
+by bisection along every grid edge that crosses it, at the same margin) and adds the engine's field
+at the points where it cuts, so the plane stops at each body's outline instead of in a staircase of
+whole grid cells. SI throughout: m, J/kg, m/s^2.
 """
 
 from __future__ import annotations
