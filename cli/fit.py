@@ -216,6 +216,12 @@ def write_png(path: str, fits, time, angle, time_unit: str, angle_unit: str, run
     rows = math.ceil(n / cols)
     fig = Figure(figsize=(5.0 * cols, 4.6 * rows), layout="constrained")
     grid = fig.add_gridspec(2 * rows, cols, height_ratios=[3, 1.3] * rows)
+    # one power of ten for every angle panel and one for every residual panel, so the panels compare
+    inside = [(time >= f.t_start) & (time <= f.t_end) for f in fits]
+    pa = power_of_ten(np.concatenate([angle[m] for m in inside]) / af) if fits else 0
+    pr = power_of_ten(np.concatenate([(angle[m] - (run.evaluate if run is not None else f.evaluate)(time[m]))
+                                      for f, m in zip(fits, inside)]) / af) if fits else 0
+    af_top, af_res = af * 10.0**pa, af * 10.0**pr
     for k, f in enumerate(fits):
         r, c = divmod(k, cols)
         sel = (time >= f.t_start) & (time <= f.t_end)
@@ -224,8 +230,6 @@ def write_png(path: str, fits, time, angle, time_unit: str, angle_unit: str, run
         bottom = fig.add_subplot(grid[2 * r + 1, c], sharex=top)
         fine = np.linspace(f.t_start, f.t_end, max(400, 20 * int((f.t_end - f.t_start) / f.period + 1)))
         model = run.evaluate if run is not None else f.evaluate
-        pa, pr = power_of_ten(y / af), power_of_ten((y - model(t)) / af)
-        af_top, af_res = af * 10.0**pa, af * 10.0**pr
         top.plot(t / tf, y / af_top, ".", ms=2.5, color="0.45", label="data")
         top.plot(fine / tf, model(fine) / af_top, "-", lw=1.0, color="C0", label="run fit" if run is not None else "fit")
         if run is not None:
