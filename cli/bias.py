@@ -153,15 +153,27 @@ def render(scene, result, what_ifs) -> str:
 PNG_ROWS = 20
 
 
+LABEL_WIDTH = 38
+"""Bar labels longer than this many characters are wrapped onto more lines, never cut."""
+
+
+def wrapped(label: str, width: int = LABEL_WIDTH) -> str:
+    """The label on lines of at most `width` characters (words kept whole), every word kept."""
+    import textwrap
+
+    return "\n".join(textwrap.wrap(label, width, break_long_words=False, break_on_hyphens=False)) or label
+
+
 def _bars(ax, y, torque, G, labels):
-    """Torque bars (and G bars beside them when any G value is known) at heights y, labelled."""
+    """Torque bars (and G bars beside them when any G value is known) at heights y, labelled; the
+    legend sits outside the axes, right of the bars, so that it covers none of them."""
     has_G = any(g is not None for g in G)
     h = 0.4 if has_G else 0.7
     ax.barh(y + (h / 2 if has_G else 0), torque, h, label="torque", color="C0")
     if has_G:
         ax.barh(y - h / 2, [g or 0.0 for g in G], h, label="G", color="C1")
-        ax.legend(fontsize=8, loc="lower right")
-    ax.set_yticks(y, labels, fontsize=8)
+        ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
+    ax.set_yticks(y, [wrapped(t) for t in labels], fontsize=8)
     ax.grid(True, axis="x", alpha=0.3)
 
 
@@ -172,8 +184,9 @@ def write_png(path, result, what_ifs, title: str = "") -> None:
 
     ranking = result is not None or not what_ifs
     rows = [r for r in (result.rows if result is not None else ()) if r.torque_ppm is not None][:PNG_ROWS][::-1]
+    lines = sum(wrapped(w.description).count("\n") + 1 for w in what_ifs)
     heights = ([0.9 + 0.3 * max(len(rows), 2)] if ranking else []) + \
-              ([0.9 + 0.3 * max(len(what_ifs), 2)] if what_ifs else [])
+              ([0.9 + 0.3 * max(len(what_ifs), 2) + 0.15 * lines] if what_ifs else [])
     fig = Figure(figsize=(8.5, sum(heights) + 0.4), layout="constrained")
     axes = list(fig.subplots(len(heights), 1, height_ratios=heights, squeeze=False)[:, 0])
     if ranking:
@@ -187,9 +200,9 @@ def write_png(path, result, what_ifs, title: str = "") -> None:
     if what_ifs:
         ax = axes.pop(0)
         _bars(ax, np.arange(len(what_ifs))[::-1], [w.torque_ppm for w in what_ifs], [w.G_ppm for w in what_ifs],
-              [w.description if len(w.description) <= 60 else w.description[:57] + "..." for w in what_ifs])
+              [w.description for w in what_ifs])
         ax.axvline(0.0, color="k", lw=0.8)
-        ax.set_xlabel("change (ppm)")
+        ax.set_xlabel("change of torque and of G (ppm)")
         ax.set_title("what if", fontsize=10)
     save_figure_atomic(fig, path, dpi=110)
 

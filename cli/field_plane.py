@@ -3,9 +3,12 @@
 The grid is centred on a given point (the pendulum's centre of mass), lies in a world coordinate
 plane (xy, xz or yz) and is wide enough to hold both groups. Field values come from the engine
 (`integrate.interaction.group_field`), never from a second calculation. Grid points inside a source
-body, or closer to its surface than a small margin (a quarter of the grid spacing), are masked: the
-engine's source fields hold outside the bodies, and points grazing a surface would only slow the
-quadrature down. Masked points carry NaN. SI throughout: m, J/kg, m/s^2.
+body, or closer to its surface than a small margin (a twentieth of the grid spacing), are masked:
+the engine's source fields hold outside the bodies. Masked points carry NaN. For pictures,
+`shown_plane` clips the grid along the bodies' own surfaces (each body's exact inside test, found
+by bisection along every grid edge that crosses it, at the same margin) and adds the engine's field
+at the points where it cuts, so the plane stops at each body's outline instead of in a staircase of
+whole grid cells. SI throughout: m, J/kg, m/s^2.
 """
 
 from __future__ import annotations
@@ -20,8 +23,12 @@ PLANES = {"xy": (0, 1, 2), "xz": (0, 2, 1), "yz": (1, 2, 0)}
 MARGIN = 1.15
 """The grid reaches this many times past the farthest body's bounding sphere."""
 
-SURFACE_MARGIN = 0.25
-"""Grid points closer than this many grid spacings to a source surface are masked."""
+SURFACE_MARGIN = 0.05
+"""Grid points closer than this many grid spacings to a source surface are masked; the picture's
+plane is clipped at this distance outside each source body (a small fraction of a cell)."""
+
+BISECTIONS = 30
+"""Halvings of a grid edge to find where it meets a body's surface: 2^-30 of a spacing."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -83,20 +90,28 @@ def grid_points(centre, half_size: float, plane: str, n: int) -> np.ndarray:
     return pts
 
 
-def near_or_inside(bodies, points, margin: float) -> np.ndarray:
-    """Which points lie inside any of the bodies or within `margin` (m) of its surface."""
+def clearance(bodies, points, margin: float) -> np.ndarray:
+    """(N,) m: the least signed distance from each point to the bodies' surfaces (negative inside),
+    exact for points within `margin` of a body's bounding sphere; farther points get the (smaller,
+    still positive) distance to that sphere, which is all the masking and clipping need."""
     from truepull.geometry.distance import signed_distance
 
-    out = np.zeros(len(points), dtype=bool)
+    points = np.asarray(points, float)
+    out = np.full(len(points), np.inf)
     for body in bodies:
         centre, radius = body.bounding_sphere()
-        near = np.linalg.norm(points - centre, axis=1) <= radius + margin
+        to_sphere = np.linalg.norm(points - centre, axis=1) - radius
+        near = to_sphere <= margin
+        d = to_sphere.copy()
         if np.any(near):
-            d = signed_distance(body.shape, body.to_local(points[near]))
-            hit = np.zeros(len(points), dtype=bool)
-            hit[near] = d <= margin
-            out |= hit
+            d[near] = signed_distance(body.shape, body.to_local(points[near]))
+        out = np.minimum(out, d)
     return out
+
+
+def near_or_inside(bodies, points, margin: float) -> np.ndarray:
+    """Which points lie inside any of the bodies or within `margin` (m) of its surface."""
+    return clearance(bodies, points, margin) <= margin
 
 
 def sample_field(source_bodies, frame_bodies, centre, plane: str, n: int, G: float, rtol: float) -> FieldPlane:
@@ -142,3 +157,66 @@ def field_polydata(fp: FieldPlane, length_factor: float = 1.0):
     poly.field_data["rtol"] = np.array([fp.rtol])
     poly.field_data["length_factor"] = np.array([length_factor])
     return poly
+
+
+def edge_crossings(bodies, outside, inside, margin: float) -> np.ndarray:
+    """(K, 3) m: on each segment from `outside[k]` (clear of the bodies by more than `margin`) to
+    `inside[k]` (not), the point where the clearance first falls to `margin`, by bisection of the
+    bodies' exact inside test (BISECTIONS halvings), taken on the clear side."""
+    a = np.asarray(outside, float).copy()
+    b = np.asarray(inside, float).copy()
+    for _ in range(BISECTIONS):
+        mid = 0.5 * (a + b)
+        clear = clearance(bodies, mid, margin) > margin
+        a[clear], b[~clear] = mid[clear], mid[~clear]
+    return a
+
+
+def shown_plane(fp: FieldPlane, source_bodies, G: float, length_factor: float = 1.0):
+    """The sampled plane clipped along the source bodies' surfaces, as PolyData (coordinates divided
+    by `length_factor`) with point arrays g_magnitude (m/s^2) and err_g: whole grid cells where all
+    four corners are clear, cut cells where an edge meets a body, the cut points placed on the body's
+    surface (at the masking margin) by `edge_crossings` and their field computed by the engine at
+    the plane's tolerance. Empty when every point is masked."""
+    import pyvista as pv
+
+    from truepull.integrate.interaction import group_field
+
+    margin = SURFACE_MARGIN * fp.spacing
+    poly = field_polydata(fp)
+    n = fp.n
+    j, i = np.divmod(np.arange(n * n), n)
+    poly.point_data["grid_i"] = i.astype(float)
+    poly.point_data["grid_j"] = j.astype(float)
+    poly.point_data["clear"] = np.where(fp.masked, -1.0, 1.0)
+    cut = poly.clip_scalar(scalars="clear", invert=False, value=0.0)
+    if cut.n_points == 0:
+        return pv.PolyData()
+    gi, gj = np.asarray(cut.point_data["grid_i"]), np.asarray(cut.point_data["grid_j"])
+    on_i, on_j = np.isclose(gi, np.round(gi), atol=1e-6), np.isclose(gj, np.round(gj), atol=1e-6)
+    new = ~(on_i & on_j)
+    mag = np.full(cut.n_points, np.nan)
+    err = np.full(cut.n_points, np.nan)
+    old = np.flatnonzero(~new)
+    k = np.round(gj[old]).astype(int) * n + np.round(gi[old]).astype(int)
+    mag[old], err[old] = fp.g_magnitude[k], fp.err_g[k]
+    idx = np.flatnonzero(new)
+    if idx.size:
+        # each new point lies on one grid edge: along i when its j is whole, else along j
+        along_i = on_j[idx]
+        i0 = np.where(along_i, np.floor(gi[idx]), np.round(gi[idx])).astype(int)
+        j0 = np.where(along_i, np.round(gj[idx]), np.floor(gj[idx])).astype(int)
+        i1, j1 = np.minimum(i0 + along_i, n - 1), np.minimum(j0 + ~along_i, n - 1)
+        k0, k1 = j0 * n + i0, j1 * n + i1
+        first_clear = ~fp.masked[k0]
+        outside = np.where(first_clear[:, None], fp.points[k0], fp.points[k1])
+        inside = np.where(first_clear[:, None], fp.points[k1], fp.points[k0])
+        pts = edge_crossings(source_bodies, outside, inside, margin)
+        _, g, _, eg = group_field(source_bodies, pts, G, fp.rtol)
+        cut.points[idx] = pts
+        mag[idx], err[idx] = np.linalg.norm(g, axis=1), eg
+    shown = pv.PolyData(np.asarray(cut.points) / length_factor, cut.faces) if cut.n_cells else pv.PolyData()
+    if shown.n_points:
+        shown.point_data["g_magnitude"] = mag
+        shown.point_data["err_g"] = err
+    return shown

@@ -207,6 +207,8 @@ def write_png(path: str, fits, time, angle, time_unit: str, angle_unit: str, run
     `run` the curve and residuals are the one fit of the whole run's."""
     from matplotlib.figure import Figure
 
+    from truepull.cli.plot_units import power_of_ten, scaled_label
+
     tf = si_factor(time_unit, "time", None, "--time-unit")
     af = _angle_factor(angle_unit)
     n = len(fits)
@@ -214,6 +216,12 @@ def write_png(path: str, fits, time, angle, time_unit: str, angle_unit: str, run
     rows = math.ceil(n / cols)
     fig = Figure(figsize=(5.0 * cols, 4.6 * rows), layout="constrained")
     grid = fig.add_gridspec(2 * rows, cols, height_ratios=[3, 1.3] * rows)
+    # one power of ten for every angle panel and one for every residual panel, so the panels compare
+    inside = [(time >= f.t_start) & (time <= f.t_end) for f in fits]
+    pa = power_of_ten(np.concatenate([angle[m] for m in inside]) / af) if fits else 0
+    pr = power_of_ten(np.concatenate([(angle[m] - (run.evaluate if run is not None else f.evaluate)(time[m]))
+                                      for f, m in zip(fits, inside)]) / af) if fits else 0
+    af_top, af_res = af * 10.0**pa, af * 10.0**pr
     for k, f in enumerate(fits):
         r, c = divmod(k, cols)
         sel = (time >= f.t_start) & (time <= f.t_end)
@@ -221,26 +229,28 @@ def write_png(path: str, fits, time, angle, time_unit: str, angle_unit: str, run
         top = fig.add_subplot(grid[2 * r, c])
         bottom = fig.add_subplot(grid[2 * r + 1, c], sharex=top)
         fine = np.linspace(f.t_start, f.t_end, max(400, 20 * int((f.t_end - f.t_start) / f.period + 1)))
-        top.plot(t / tf, y / af, ".", ms=2.5, color="0.45", label="data")
         model = run.evaluate if run is not None else f.evaluate
-        top.plot(fine / tf, model(fine) / af, "-", lw=1.0, color="C0", label="run fit" if run is not None else "fit")
+        top.plot(t / tf, y / af_top, ".", ms=2.5, color="0.45", label="data")
+        top.plot(fine / tf, model(fine) / af_top, "-", lw=1.0, color="C0", label="run fit" if run is not None else "fit")
         if run is not None:
             i = run.positions.index(f.position)
-            top.plot(fine / tf, (run.equilibria[i] + run.drift(fine)) / af, "--", lw=0.8, color="C1",
+            top.plot(fine / tf, (run.equilibria[i] + run.drift(fine)) / af_top, "--", lw=0.8, color="C1",
                      label="equilibrium + drift")
         else:
-            top.plot(fine / tf, (f.equilibrium + f.drift * (fine - f.t_mid)) / af, "--", lw=0.8, color="C1",
+            top.plot(fine / tf, (f.equilibrium + f.drift * (fine - f.t_mid)) / af_top, "--", lw=0.8, color="C1",
                      label="equilibrium")
         name = f"position {f.position}" if f.position is not None else "record"
         top.set_title(f"segment {k + 1}: {name}\nT = {_pm(f.period, f.u_period, tf)} {_unit_label(time_unit)}, "
                       f"decrement = {_pm(f.decrement, f.u_decrement)}", fontsize=9)
-        top.set_ylabel(f"angle [{_unit_label(angle_unit)}]")
-        top.legend(fontsize=8, loc="upper right")
-        bottom.plot(t / tf, (y - model(t)) / af, ".", ms=2.0, color="C3")
+        top.set_ylabel(scaled_label("angle", _unit_label(angle_unit), pa))
+        bottom.plot(t / tf, (y - model(t)) / af_res, ".", ms=2.0, color="C3")
         bottom.axhline(0.0, color="0.3", lw=0.6)
-        bottom.set_ylabel(f"residual [{_unit_label(angle_unit)}]")
-        bottom.set_xlabel(f"time [{_unit_label(time_unit)}]")
+        bottom.set_ylabel(scaled_label("residual", _unit_label(angle_unit), pr))
+        bottom.set_xlabel(f"time ({_unit_label(time_unit)})")
         top.tick_params(labelbottom=False)
+    if fits:  # one legend above all the panels, so that it covers no data
+        handles, labels = fig.axes[0].get_legend_handles_labels()
+        fig.legend(handles, labels, loc="outside upper center", ncols=len(labels), fontsize=9, markerscale=3)
     save_figure_atomic(fig, path, dpi=110)
 
 

@@ -43,14 +43,17 @@ SCAN_STEPS = 24
 MARKER = "report.json"
 
 CAUTIONS = (
-    "Lead is toxic: wear gloves when handling lead masses, keep food and drink away, wash your hands "
+    "Lead is toxic. Wear gloves when handling lead masses, keep food and drink away, wash your hands "
     "afterwards, and use sealed or painted masses.",
-    "Heavy masses crush and tip: move them with rated lifting gear and fix them on secured mounts.",
-    "Laser optical levers: use low-power lasers only; never let the beam or its reflection reach an eye.",
-    "Machining lead or tungsten alloys makes toxic dust and chips: extraction, wet methods and the lab's "
-    "rules for them.",
-    "Turntables pinch and vacuum cans can implode: guards, and never a hand in a moving mount.",
-    "A loaded fiber can snap: keep the case closed and stand clear.",
+    "Heavy masses crush and tip. Move them with rated lifting gear and fix them on secured mounts and "
+    "turntables; keep hands and feet out from under them.",
+    "Laser optical levers: use low-power lasers only and never let the beam, or its reflection from the "
+    "mirror, reach anyone's eye.",
+    "Machining lead or tungsten alloys makes toxic dust and chips: use local extraction or wet methods, "
+    "collect the chips, and follow the lab's rules for these metals.",
+    "Turntables pinch: guard them, and never reach into a moving mount.",
+    "Vacuum cans can implode: use cans rated for vacuum, shield their windows, and let air in slowly.",
+    "A loaded fiber can snap, dropping the pendulum; keep the case closed and stand clear.",
     "Local codes, your laboratory's safety rules and licensed practice come first.",
 )
 
@@ -304,7 +307,7 @@ def default_turns(scene) -> tuple[str, tuple[float, ...]]:
 
 def section_scan(ctx: Context) -> Section:
     scans = _need("truepull.integrate.scans")
-    from truepull.cli.scan import csv_text, write_png
+    from truepull.cli.scan import csv_text, position_marks, write_png
 
     s = Section("scan", "Torque versus turn")
     scene = ctx.scene
@@ -318,7 +321,8 @@ def section_scan(ctx: Context) -> Section:
     result = scans.scan(scene, sweep, test=ctx.args.test, source=ctx.args.source, rtol=ctx.args.survey_rtol, workers=ctx.args.workers, scheduler=getattr(ctx.args, "scheduler", None),
                         scene_path=ctx.scene_path, progress=False)
     png, caption = FIGURES["scan"]
-    write_png(str(ctx.folder / png), result, shown, "deg", f"{scene.title or Path(scene.path).name}: turn of {group}")
+    write_png(str(ctx.folder / png), result, shown, "deg", f"{scene.title or Path(scene.path).name}: turn of {group}",
+              position_marks(scene, sweep))
     write_atomic(ctx.folder / "scan.csv", csv_text(result, shown))
     s.figures = [png, "scan.csv"]
     s.reached = bool(result.reached)
@@ -360,7 +364,11 @@ def _harmonics_parts(series, group: str, data: dict) -> list[str]:
             f"leading harmonics, above a millionth of the largest:",
             _md_table(["m", "C_m (N m)", "S_m (N m)", "amplitude (N m)", "error (N m)"], rows, "rrrrr")
             + "\n\nColumns: the harmonic's order m; its cosine and sine coefficients; sqrt(C_m^2 + S_m^2); the "
-            "bound on their error."]
+            "bound on their error. The series comes from the inner moments q_lm of the pendulum and the outer "
+            "moments Q_lm of the attractor about the pivot, in the torsion-balance multipole formalism (D'Urso and "
+            "Adelberger, Phys. Rev. D 55, 7970 (1997); Adelberger, Collins and Hoyle, Class. Quantum Grav. 23, "
+            "125 (2006)), with orthonormal Y_lm in the Condon-Shortley phase; the order m of a moment is the order "
+            "of the torque harmonic it feeds."]
 
 
 # --- bias ----------------------------------------------------------------------------------------
@@ -530,21 +538,39 @@ def section_methods(ctx: Context) -> Section:
     return s
 
 
+TOTAL_LABEL = "total u(G)"
+"""The budget figure's top bar: the combined standard uncertainty itself, not a sum of the bars."""
+
+
 def budget_png(path, rows, G: float, u: float | None = None, top: int = 20) -> None:
-    """Horizontal bars: each input's contribution to u(G) in ppm, largest at the top; the title gives
-    G in concise notation when u is known."""
+    """Horizontal bars: each input's contribution to u(G) in ppm of G, largest at the top, and above
+    them, in its own colour, the combined u(G) (the budget's total, which adds the contributions in
+    quadrature with their correlations, so it is less than their sum); the title gives G in concise
+    notation when u is known."""
     from matplotlib.figure import Figure
+
+    from truepull.cli.notation import concise, ppm
 
     rows = sorted(rows, key=lambda b: -b["contribution"])[:top][::-1]
     names = [b["input"] for b in rows]
-    ppm = [b["contribution_ppm"] for b in rows]
-    fig = Figure(figsize=(8, 0.9 + 0.32 * max(len(rows), 1)), layout="constrained")
+    values = [b["contribution_ppm"] for b in rows]
+    colours = ["C0"] * len(rows)
+    if u:
+        names.append(TOTAL_LABEL)
+        values.append(abs(u / G) * 1e6)
+        colours.append("C3")
+    fig = Figure(figsize=(8, 1.1 + 0.32 * max(len(names), 1)), layout="constrained")
     ax = fig.subplots()
-    ax.barh(range(len(rows)), ppm, color="C0")
-    ax.set_yticks(range(len(rows)), names, fontsize=8)
+    y = np.arange(len(names), dtype=float)
+    if u:
+        y[-1] += 0.5  # a gap between the inputs and their total
+    ax.barh(y, values, color=colours)
+    ax.set_yticks(y, names, fontsize=8)
+    if u:
+        ax.get_yticklabels()[-1].set_fontweight("bold")
+        ax.text(values[-1], y[-1], f" {ppm(u, G)} ppm", va="center", fontsize=8)
+        ax.set_xlim(0, values[-1] * 1.15)
     ax.set_xlabel("contribution to u(G) (ppm of G)")
-    from truepull.cli.notation import concise, ppm
-
     shown = f"{concise(G, u)} m^3 kg^-1 s^-2 ({ppm(u, G)} ppm)" if u else f"{G:.7g} m^3 kg^-1 s^-2"
     ax.set_title(f"uncertainty budget of G = {shown}", fontsize=10)
     ax.grid(True, axis="x", alpha=0.3)

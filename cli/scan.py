@@ -15,6 +15,7 @@ import sys
 import numpy as np
 
 from truepull.cli import options
+from truepull.cli.plot_units import power_of_ten, scaled_label as _scaled_label
 from truepull.cli.output import not_reached_exit, print_json, save_figure_atomic, write_atomic
 from truepull.integrate.scans import DEFAULT_CHECKS
 
@@ -83,10 +84,34 @@ def meeting_spans(x, met) -> list[tuple[float, float]]:
     return spans
 
 
-def write_png(path: str, result, shown, unit: str, title: str) -> None:
+def position_marks(scene, sweep, start: str | None = None) -> list[tuple[str, float]]:
+    """(name, sweep value as shown) of each [[position]] of the sweep's group that the sweep passes
+    through: for a turn, the position's turn in degrees relative to `start` (a position name, or the
+    scene as drawn); for a shift, its shift along the sweep's axis in metres, for positions with the
+    start's turn."""
+    base = scene.get_position(start) if start is not None else None
+    turn0 = base.turn.value if base is not None and base.group == sweep.group else 0.0
+    shift0 = [s.value for s in base.shift] if base is not None and base.group == sweep.group else [0.0] * 3
+    marks = []
+    for p in scene.positions:
+        if p.group != sweep.group:
+            continue
+        if sweep.kind == "turn":
+            if all(s.value == b for s, b in zip(p.shift, shift0)):
+                marks.append((p.name, math.degrees(p.turn.value - turn0)))
+        elif p.turn.value == turn0:
+            k = "xyz".index(sweep.direction)
+            others = [i for i in range(3) if i != k]
+            if all(p.shift[i].value == shift0[i] for i in others):
+                marks.append((p.name, p.shift[k].value - shift0[k]))
+    return marks
+
+
+def write_png(path: str, result, shown, unit: str, title: str, marks=()) -> None:
     """Torque, stiffness and their ratio to the point model across the sweep. Where bodies meet (an
     overlap row) no curve is drawn, the point model's included (a gap, not a line through the
-    impossible region), and the region is shaded."""
+    impossible region), and the region is shaded. `marks`: (name, value) of the scene's positions,
+    drawn as labelled dotted lines where they fall inside the sweep. Legends sit right of the axes."""
     from matplotlib.figure import Figure
 
     x = np.asarray(shown, float)
@@ -100,29 +125,37 @@ def write_png(path: str, result, shown, unit: str, title: str) -> None:
     with np.errstate(divide="ignore", invalid="ignore"):
         # near the point model's zeros the ratio says nothing; leave those values out
         ratio = np.where(np.abs(point) > 0.05 * big, exact / point, np.nan)
-    fig = Figure(figsize=(8, 9), layout="constrained")
+    pt, ps = power_of_ten(np.r_[exact, point]), power_of_ten(np.r_[stiff, point_stiff])
+    fig = Figure(figsize=(9, 9), layout="constrained")
     ax = fig.subplots(3, 1, sharex=True)
-    ax[0].plot(x, exact, label="exact", lw=1.6)
-    ax[0].plot(x, point, "--", label="point masses", lw=1.2)
-    ax[0].set_ylabel("torque about the axis (N m)")
-    ax[0].legend()
-    ax[0].set_title(title)
-    ax[1].plot(x, stiff, label="exact", lw=1.6)
-    ax[1].plot(x, point_stiff, "--", label="point masses", lw=1.2)
-    ax[1].legend()
-    ax[1].set_ylabel("gravitational stiffness (N m/rad)")
+    ax[0].plot(x, exact / 10.0**pt, label="exact", lw=1.6)
+    ax[0].plot(x, point / 10.0**pt, "--", label="point masses", lw=1.2)
+    ax[0].set_ylabel(_scaled_label("torque about the axis", "N m", pt))
+    ax[0].set_title(title, pad=14 if marks else 6)
+    ax[1].plot(x, stiff / 10.0**ps, label="exact", lw=1.6)
+    ax[1].plot(x, point_stiff / 10.0**ps, "--", label="point masses", lw=1.2)
+    ax[1].set_ylabel(_scaled_label("gravitational stiffness", "N m/rad", ps))
     ax[2].plot(x, ratio, color="C3", lw=1.4)
     ax[2].set_ylabel("exact / point torque")
     ax[2].set_title("ratio where the point torque exceeds 5% of its largest value", fontsize=9)
     what = "turn" if result.sweep.kind == "turn" else f"shift along {result.sweep.direction}"
     ax[2].set_xlabel(f"{what} of {result.sweep.group} ({unit})")
     spans = meeting_spans(x, met)
+    lo, hi = (float(np.min(x)), float(np.max(x))) if x.size else (0.0, 0.0)
+    inside = [(n, v) for n, v in marks if lo <= v <= hi]
     for a in ax:
         a.grid(True, alpha=0.3)
-        for k, (lo, hi) in enumerate(spans):
-            a.axvspan(lo, hi, color="0.6", alpha=0.35, lw=0, label="bodies meet" if k == 0 and a is ax[0] else None)
-    if spans:
-        ax[0].legend()
+        for k, (s0, s1) in enumerate(spans):
+            a.axvspan(s0, s1, color="0.6", alpha=0.35, lw=0, label="bodies meet" if k == 0 else None)
+        for k, (name, v) in enumerate(inside):
+            a.axvline(v, color="0.25", ls=":", lw=1.0, label="positions" if k == 0 else None)
+    for name, v in inside:
+        ax[0].annotate(name, (v, 1.0), xycoords=("data", "axes fraction"), xytext=(0, 2),
+                       textcoords="offset points", ha="center", va="bottom", fontsize=8, color="0.25")
+    for a in ax[:2]:
+        a.legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
+    if spans or inside:
+        ax[2].legend(fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     save_figure_atomic(fig, path, dpi=110)
 
 
@@ -137,7 +170,8 @@ def run(args) -> int:
     result, shown, unit, sweep = api_result.result, api_result.values, api_result.unit, api_result.result.sweep
     title = f"{scene.title or scene.path}: {sweep.kind} of {sweep.group}"
     if args.png:
-        write_png(args.png, result, shown, unit, title)
+        marks = position_marks(scene, sweep, args.position)
+        write_png(args.png, result, shown, unit, title, marks)
     if args.json:
         print_json(api_result.to_json())
     else:

@@ -18,7 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
-from truepull.cli.field_plane import PLANES, default_plane, field_polydata, sample_field
+from truepull.cli.field_plane import PLANES, default_plane, field_polydata, sample_field, shown_plane
 from truepull.cli.offscreen import RenderingUnavailable, have_display, prepare_offscreen
 from truepull.cli.output import fmt, not_reached_exit, print_json, write_atomic
 from truepull.geometry.errors import InputError
@@ -122,10 +122,10 @@ def run(args) -> int:
         "samples": fp.samples, "masked": int(np.count_nonzero(fp.masked)),
         "field": {"min": float(mag.min()) if mag.size else None, "max": float(mag.max()) if mag.size else None,
                   "max_error": float(np.max(fp.err_g[~fp.masked])) if mag.size else None, "units": "m/s^2",
-                  "log_scale": drawn.get("log_scale")},
+                  "log_scale": drawn.get("log_scale"), "shown_min": drawn.get("min"), "shown_max": drawn.get("max")},
         "force": comparison.exact.force, "torque": comparison.exact.torque,
         "torque_axis": comparison.exact.torque_axis, "rtol": args.rtol,
-        "colours": drawn.get("colours"),
+        "colours": drawn.get("colours"), "legend": drawn.get("legend"), "force_zero": drawn.get("force_zero"),
     }
     if args.json:
         print_json(summary)
@@ -158,7 +158,8 @@ def _render(args, scene, placed, surfaces, fp, comparison, centre, window: bool)
     except Exception as exc:  # VTK could not make a render window
         raise RenderingUnavailable(f"cannot open a render window ({' '.join(str(exc).split())})") from None
     try:
-        info = draw(plotter, placed, placed.bodies, surfaces, fp, field_polydata(fp), comparison, centre, title)
+        shown = shown_plane(fp, placed.group(args.source), scene.G.value)
+        info = draw(plotter, placed, placed.bodies, surfaces, fp, shown, comparison, centre, title)
         if window:
             plotter.show(title="truepull view")
             return info

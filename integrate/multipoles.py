@@ -10,6 +10,15 @@ attractor point, is W = -G sum_{l, m=-l..l} a_lm conj(b_lm).
 The moments shown to users are the usual ones with orthonormal Y_lm (Condon-Shortley phase),
     q_lm = integral rho r^l conj(Y_lm) dV,   Q_lm = integral rho r^(-l-1) conj(Y_lm) dV,
 so that W = -G sum (4 pi / (2l+1)) conj(q_lm) Q_lm.
+Published methods this follows: the inner and outer spherical moments q_lm, Q_lm of the
+torsion-balance multipole formalism (C. D'Urso and E. G. Adelberger, "Translation of multipoles for
+a 1/r potential", Phys. Rev. D 55, 7970 (1997); E. G. Adelberger, N. A. Collins and C. D. Hoyle,
+"Analytic expressions for gravitational inner multipole moments of elementary solids and for the
+force between two rectangular solids", Class. Quantum Grav. 23, 125 (2006), arXiv:gr-qc/0512055),
+with orthonormal Y_lm in the Condon-Shortley phase exactly as scipy.special.sph_harm_y (the tests pin
+the convention to it). Where a paper puts the complex conjugate on the other moment, or uses the
+other sign of m, its numbers differ from these by conj or (-1)^m: compare term by term before mixing
+values. The internal a_lm, b_lm are the same moments in Racah's normalisation (solid_harmonics).
 
 Turning the attractor by phi about the axis multiplies b_lm by e^{i m phi}, so each term of W goes as
 e^{-i m phi}: torque on the pendulum about the axis tau = dW/dphi, stiffness K = d^2 W / dphi^2, and

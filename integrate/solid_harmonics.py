@@ -4,6 +4,10 @@ Regular   R_lm(x) = sqrt(4 pi / (2l+1)) r^l Y_lm(theta, phi)
 Irregular I_lm(x) = sqrt(4 pi / (2l+1)) r^(-l-1) Y_lm(theta, phi)
 with Y_lm the orthonormal spherical harmonics with the Condon-Shortley phase (as scipy.special),
 so that 1 / |x - y| = sum_lm conj(R_lm(x)) I_lm(y) for |x| < |y| (the addition theorem).
+The factor sqrt(4 pi / (2l+1)) is Racah's normalisation of the spherical harmonics, C_lm (G. Racah,
+"Theory of complex spectra. II", Phys. Rev. 62, 438 (1942)); with it the addition theorem carries no
+4 pi / (2l+1), which is why the engine works in it. The moments shown to users are converted to the
+orthonormal-Y_lm convention of the torsion-balance literature (see integrate/multipoles.py).
 Only m >= 0 is stored: arrays are (L+1, L+1) complex with [l, m] (zero for m > l); the rest
 follows from R_l,-m = (-1)^m conj(R_lm), and the same for I.
 

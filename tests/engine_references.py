@@ -4,9 +4,10 @@ Nothing here uses the engine's own quadrature. Each function says which publishe
 general-purpose library routine it rests on; the engine tests compare against these.
 
 - `ring_field`: a uniform thin ring, by complete elliptic integrals (scipy.special.ellipk/ellipe;
-  textbook ring potential, e.g. Binney and Tremaine's treatment of axisymmetric potentials).
+  the ring potential as in Binney and Tremaine, Galactic Dynamics, 2nd ed., 2008, chapter 2; from memory,
+  equation number not checked).
 - `cylinder_on_axis`, `cone_on_axis`: on-axis fields of uniform discs stacked into cylinders and
-  cones (standard closed form of applied-geophysics textbooks; scipy.integrate.quad for the cone).
+  cones (the disc closed form, Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed., 1990, gravity chapter; from memory, equation number not checked; scipy.integrate.quad for the cone).
 - `revolution_field`: the field anywhere outside a uniform solid of revolution (cylinder, tube, cone,
   frustum) as the ring field integrated over the body's meridian cross-section with
   scipy.integrate.cubature (the azimuth is closed by the elliptic integrals).
@@ -22,7 +23,7 @@ general-purpose library routine it rests on; the engine tests compare against th
   ellipsoid (Carlson form, integrate/field_ellipsoid.py, tested on its own), integrated over the
   mesh's volume cut into tetrahedra with a collapsed (Duffy) numpy Gauss-Legendre rule.
 - `plate_on_axis`: field on the axis of a uniform rectangular slab (solid angle of a rectangle,
-  textbook), integrated over the thickness with scipy.integrate.quad.
+  from memory), integrated over the thickness with scipy.integrate.quad.
 
 The stiffness convention is the engine's (CONTRACT.md): K = -d(torque . e)/d(theta) for a right-handed
 turn theta of the TEST body about the line through the pivot along e. For a body of mass element dm at
@@ -82,7 +83,7 @@ def ring_field(mass, a, rho, z, G=G):
 def cylinder_on_axis(R, L, rho_m, z, G=G):
     """(U, g_z) on the axis of a uniform solid cylinder (radius R, length L, centred at z = 0) at
     height z outside it: the disc field -2 pi G sigma (1 - d / sqrt(R^2 + d^2)) stacked over the length
-    (standard closed form, applied-geophysics textbooks):
+    (the disc closed form, Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed., 1990, gravity chapter; from memory, equation number not checked):
     g_z = -2 pi G rho [L - sqrt(R^2 + (z + L/2)^2) + sqrt(R^2 + (z - L/2)^2)] for z > L/2 (odd in z),
     U = -2 pi G rho [F(z + L/2) - F(z - L/2) - ((z + L/2)|z + L/2| - (z - L/2)|z - L/2|) / 2],
     F(u) = (u sqrt(R^2 + u^2) + R^2 asinh(u / R)) / 2."""
@@ -109,7 +110,8 @@ def cylinder_axis_gradient(R, L, rho_m, z, G=G):
 def cone_on_axis(R, L, R_top, rho_m, z, G=G):
     """g_z on the axis of a uniform frustum (base radius R at -L/2, top radius R_top at +L/2) at height z
     outside it: the on-axis field of a uniform disc, -2 pi G sigma sign(d) (1 - |d| / sqrt(r^2 + d^2))
-    (textbook), integrated over the height with scipy.integrate.quad. Returns (g_z, error)."""
+    (from memory; it is the cylinder's closed form above for a single disc), integrated over the height
+    with scipy.integrate.quad. Returns (g_z, error)."""
     h = 0.5 * L
 
     def disc(zp):
@@ -397,7 +399,7 @@ def ellipsoid_field_on_mesh(mesh_body, ellipsoid, pivot, axis, n, G=G):
 def plate_on_axis(hx, hy, t, rho_m, z, G=G):
     """g_z above the centre of a uniform box of half-widths hx, hy and thickness t (centred at z = 0) at
     height z > t/2: a thin rectangular plate at depth d pulls with 4 G sigma atan(hx hy / (d sqrt(hx^2 +
-    hy^2 + d^2))) (its solid angle, textbook), integrated over the thickness with scipy.integrate.quad.
+    hy^2 + d^2))) (its solid angle, from memory), integrated over the thickness with scipy.integrate.quad.
     Returns (g_z, error)."""
     def plate(zp):
         d = z - zp

@@ -26,7 +26,8 @@ M_BOB = RHO * 4.0 / 3.0 * math.pi * R_BOB**3
 M_BIG = RHO * 4.0 / 3.0 * math.pi * R_BIG**3
 ANGLE = math.atan2(B, D)   # direction of the attractor sphere "ball-1" as drawn, from the x axis
 KAPPA = 2.5e-8             # fiber torsion constant (N m/rad)
-# moment of inertia of two uniform spheres at +-D about z: 2 (2/5 m r^2 + m D^2) (handbook)
+# moment of inertia of two uniform spheres at +-D about z: 2 (2/5 m r^2 + m D^2) (standard
+# sphere formula plus the parallel-axis theorem, from memory)
 INERTIA = 2.0 * (0.4 * M_BOB * R_BOB**2 + M_BOB * D**2)
 # the two-ball far-mass factor (common practice in teaching-lab manuals; from memory)
 FAR_BETA = B**3 / (B**2 + 4 * D**2) ** 1.5

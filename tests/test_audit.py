@@ -25,7 +25,8 @@ def _scene(tmp_path, text):
 
 def test_density_written_in_kg_per_m3_in_a_g_per_cm3_scene(tmp_path):
     scene = _scene(tmp_path, DENSITY_IN_WRONG_UNIT)
-    # 8960 g/cm^3 = 8.96e6 kg/m^3: beyond osmium's 22590 kg/m^3 (CRC Handbook of Chemistry and Physics)
+    # 8960 g/cm^3 = 8.96e6 kg/m^3: beyond osmium's 22590 kg/m^3 (CRC Handbook of Chemistry
+    # and Physics, table of the elements' densities; value from memory, edition not checked)
     assert scene.body("copper").density == pytest.approx(8.96e6)
     w = [x for x in scene_warnings(scene, overlaps=False) if "not a solid's" in x]
     assert len(w) == 1 and w[0].startswith("copper:")

@@ -26,7 +26,7 @@ def spec(kind="cylinder", size=None, at=(0, 0, 0), **kw):
 
 
 def test_box_about_an_edge_parallel_axis():
-    # standard mechanics handbook table, from memory: a block about one of its edges (along z)
+    # the standard moment-of-inertia formula of a block about an edge (from memory), along z:
     # I = m (a^2 + b^2) / 3
     a, b, c, rho = 0.1, 0.2, 0.3, 7850.0
     body = build_body(spec("box", {"size.x": M(a), "size.y": M(b), "size.z": M(c)}, at=(0.3, -0.1, 0.2),
@@ -58,7 +58,7 @@ def test_rotated_body_tensor_matches_rotated_trimesh():
 
 
 def test_parallel_axis_theorem_general_point():
-    # Steiner: I_P = I_com + m (|d|^2 E - d d^T) (textbook); compare with trimesh mesh about a point
+    # Steiner's parallel-axis theorem, tensor form (from memory): I_P = I_com + m (|d|^2 E - d d^T); compare with trimesh mesh about a point
     body = build_body(spec("cylinder", {"radius": M(0.02), "length": M(0.05)}, at=(0.1, 0.0, 0.03),
                            axis=(1.0, 1.0, 0.0), density=M(8000.0)))
     p = np.array([0.0, 0.0, 0.0])
@@ -73,7 +73,8 @@ def test_parallel_axis_theorem_general_point():
 
 def test_hole_subtracts_mass_and_inertia():
     # tube = cylinder minus a coaxial cylindrical hole: the sum of signed bodies equals the tube's
-    # handbook inertia (m (R^2 + r^2)/2 about its axis, m (3(R^2+r^2)+L^2)/12 across)
+    # inertia by the standard formulas, from memory (m (R^2 + r^2)/2 about its axis, m (3(R^2+r^2)+L^2)/12
+    # across)
     R, r, L, rho = 0.03, 0.01, 0.08, 8500.0
     solid = build_body(spec(size={"radius": M(R), "length": M(L)}, density=M(rho)))
     hole = build_body(spec(size={"radius": M(r), "length": M(L)}, density=M(rho), subtract=True, name="h"))
@@ -100,7 +101,7 @@ def test_mass_given_sets_density_and_point_body():
 
 def test_material_density():
     b = build_body(spec(material="lead"))
-    assert b.density == 11340.0  # lead, from memory, typical handbook value (materials table)
+    assert b.density == 11340.0  # lead, from memory (11.34 g/cm^3, the usual tabulated value)
 
 
 def test_moved_and_contains_world():

@@ -40,7 +40,8 @@ def test_polygonal_shapes_have_their_closed_form_volume(shape, volume):
 def test_round_shapes_converge_to_the_true_volume(shape):
     tm = tm_of(shape)
     assert tm.is_watertight and tm.is_winding_consistent
-    # an inscribed polyhedron with 48 x 24 facets: within 1 % of the volume (4/3 pi a b c etc., handbook)
+    # an inscribed polyhedron with 48 x 24 facets: within 1 % of the volume (4/3 pi a b c etc., closed
+    # forms from memory)
     assert tm.volume < shape.volume() and tm.volume == pytest.approx(shape.volume(), rel=1e-2)
 
 

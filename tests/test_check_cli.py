@@ -70,11 +70,13 @@ def test_json_follows_the_contract(tmp_path, capsys):
     assert data["bodies"][0]["inertia_com"][0][0] == pytest.approx(0.4 * m * R * R, rel=1e-12)
     pend = data["groups"]["pendulum"]
     assert set(pend) == {"mass", "com", "inertia_axis"}
-    # two balls at +-d about the fibre: 2 (2/5 m R^2 + m d^2) (handbook sphere + parallel axis)
+    # two balls at +-d about the fibre: 2 (2/5 m R^2 + m d^2) (standard sphere formula + parallel axis,
+    # from memory)
     assert pend["inertia_axis"] == pytest.approx(2 * (0.4 * m * R * R + m * d * d), rel=1e-12)
     assert pend["mass"] == pytest.approx(2 * m) and pend["com"] == pytest.approx([0, 0, 0], abs=1e-15)
     att = data["groups"]["attractor"]
-    # cylinder about its own axis through the pivot at distance 0.12 m: m R^2 / 2 + m D^2 (handbook)
+    # cylinder about its own axis through the pivot at distance 0.12 m: m R^2 / 2 + m D^2 (standard
+    # formula + parallel axis, from memory)
     assert att["inertia_axis"] == pytest.approx(5 * 0.04**2 / 2 + 5 * 0.12**2, rel=1e-12)
     assert data["warnings"] == []
 

@@ -42,7 +42,7 @@ def body(name, group, shape, at=(0, 0, 0), density=1e4, axis=None):
 ])
 def test_patches_enclose_the_closed_form_volume(shape, volume):
     # divergence theorem: V = (1/3) surface integral of x . n dA, and the surface integral of n dA = 0
-    # (closed forms: handbook volumes of the solids)
+    # (the solids' closed-form volumes, from memory)
     R = Placement.from_scene([0.1, -0.2, 0.3], [1, 1, 0.5], [0, 0, 1], 0.4)
     ps = shape_patches(shape, R.rotation, R.translation)
     X, W = cell_nodes(ps.kinds, ps.params, ps.cell_patch, ps.cell_dom, *gauss_unit(12))
@@ -51,7 +51,8 @@ def test_patches_enclose_the_closed_form_volume(shape, volume):
 
 
 def test_band_field_on_axis_of_a_cylinder():
-    # on-axis field of a uniform cylinder (standard closed form, applied-geophysics textbooks):
+    # on-axis field of a uniform cylinder (the disc closed form stacked;
+    # Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed., 1990, gravity chapter; from memory, equation number not checked):
     # g_z = -2 pi G rho [L - sqrt(R^2 + (z + L/2)^2) + sqrt(R^2 + (z - L/2)^2)] above the top face
     R, L, rho = 0.02, 0.05, 1e4
     ps = shape_patches(Cylinder(R, L), np.eye(3), O)
@@ -65,7 +66,8 @@ def test_band_field_on_axis_of_a_cylinder():
 
 def test_band_field_of_a_thin_tube_approaches_the_ring():
     # ring of mass M, radius a: U = -2 G M K(m) / (pi sqrt((rho + a)^2 + z^2)), m = 4 a rho / ((rho+a)^2+z^2)
-    # (complete elliptic integral, scipy.special.ellipk; textbook ring potential)
+    # (complete elliptic integral, scipy.special.ellipk; the ring
+    # potential from memory)
     a, t, h, rho = 0.05, 1e-4, 1e-4, 1e4
     tube = Cylinder(a + t / 2, h, a - t / 2)
     M = rho * tube.volume()
@@ -130,7 +132,8 @@ def test_mesh_cube_equals_the_prism_box():
 
 
 def test_infinite_slab_limit():
-    # Bouguer slab: g = 2 pi G rho t above an infinite plate (textbook); a wide thin box approaches it
+    # Bouguer slab: g = 2 pi G rho t above an infinite plate
+    # (Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed., 1990, gravity chapter; from memory, equation number not checked); a wide thin box approaches it
     t, W, rho = 0.001, 20.0, 1e4
     slab = body("slab", "attractor", Box((W, W, t)), density=rho)
     ball = body("ball", "pendulum", Sphere(0.001), (0, 0, 0.01), density=1.0)

@@ -29,7 +29,8 @@ def _point_body(name, at, mass):
 
 def test_sphere_inside_and_outside_newton():
     # Newton / shell theorem: outside g = -G M r/r^3, U = -G M / r; inside g = -G M r / R^3,
-    # U = -G M (3 R^2 - r^2) / (2 R^3) (textbook potential of a uniform ball)
+    # U = -G M (3 R^2 - r^2) / (2 R^3) (the uniform ball's potential by
+    # Gauss's law, from memory)
     R = 0.02
     b = body("s", Sphere(R), density=RHO)
     M = b.mass
@@ -75,8 +76,8 @@ def test_prism_against_tplquad():
 
 
 def test_cylinder_on_axis_closed_form_and_error_bound():
-    # on-axis field of a uniform cylinder: discs stacked (standard closed form, applied-geophysics
-    # textbooks; from memory, engine_references.cylinder_on_axis), and its z-derivative for T_zz;
+    # on-axis field of a uniform cylinder: discs stacked (Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed., 1990, gravity chapter; from memory, equation number not checked;
+    # engine_references.cylinder_on_axis), and its z-derivative for T_zz;
     # Laplace with axial symmetry gives T_xx = T_yy = -T_zz / 2
     R, L = 0.02, 0.05
     b = body("c", Cylinder(R, L), density=RHO)
@@ -170,7 +171,7 @@ def test_closed_gradient_against_central_differences():
 
 
 def test_gradient_zero_of_a_ring_on_its_axis():
-    # on the axis of a ring (mass M, radius a) g_z = -G M z / (z^2 + a^2)^(3/2) (textbook ring field,
+    # on the axis of a ring (mass M, radius a) g_z = -G M z / (z^2 + a^2)^(3/2) (the ring's on-axis field,
     # from memory); d g_z / dz = -G M (a^2 - 2 z^2) / (z^2 + a^2)^(5/2) vanishes at z = a / sqrt(2),
     # where d^2 g_z / dz^2 = 4 G M z / (z^2 + a^2)^(5/2). Four equal point masses on the circle give
     # exactly the ring's on-axis field (each contributes the same axial component).

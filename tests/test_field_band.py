@@ -1,14 +1,14 @@
 """The band field of cylinders, tubes, cones and frustums against closed forms and scipy quadrature.
 
 References (tests/engine_references.py):
-- the on-axis field and potential of a uniform cylinder (standard closed form, applied-geophysics
-  textbooks), of a tube (the difference of two cylinders) and of a frustum (the on-axis disc field,
-  a textbook closed form, integrated over the height by scipy.integrate.quad);
+- the on-axis field and potential of a uniform cylinder (the disc closed form stacked over the
+  length; Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed., 1990, gravity chapter; from memory, equation number not checked), of a tube (the difference of two cylinders) and of a frustum (the on-axis disc
+  field, the same closed form, integrated over the height by scipy.integrate.quad);
 - the field of a uniform thin ring by complete elliptic integrals (scipy.special.ellipk/ellipe), and
   anywhere off the axis the ring field integrated over the body's meridian cross-section by
   scipy.integrate.cubature (brute force in cylindrical coordinates with the azimuth in closed form);
-- MacCullagh's formula for the far potential, U = -G M / r - G (tr I - 3 I_rr) / (2 r^3) (textbook),
-  with the handbook inertia tensor;
+- MacCullagh's formula for the far potential, U = -G M / r - G (tr I - 3 I_rr) / (2 r^3) (MacCullagh's formula, e.g. Stacey and Davis, Physics of the Earth, 4th ed.; from memory, equation not checked),
+  with the inertia tensor of the standard moment-of-inertia formulas (from memory);
 - Laplace's equation outside the body and g = -grad U (central differences, loose).
 Every comparison also checks that the engine's error estimate (|dU| + rU, |dg| + rg) bounds the
 difference from the reference, less the reference's own error.
@@ -53,7 +53,7 @@ def check(value, ref, estimate, ref_error, rel, size=0.0):
 
 @pytest.mark.parametrize("z", [0.0252, 0.03, 0.06, 0.1, -0.0255, -0.08])
 def test_cylinder_on_axis_matches_the_closed_form(z):
-    # standard closed form (applied-geophysics textbooks):
+    # the disc closed form stacked over the length (Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed., 1990, gravity chapter; from memory, equation number not checked):
     # g_z = -2 pi G rho [L - sqrt(R^2 + (z + L/2)^2) + sqrt(R^2 + (z - L/2)^2)] above the cylinder
     U, g, eU, eg = local_field(Cylinder(R, L), [0.0, 0.0, z])
     U_ref, gz_ref = cylinder_on_axis(R, L, RHO, z)
@@ -88,7 +88,7 @@ def test_tube_on_axis_inside_its_bore_and_beyond(z):
 @pytest.mark.parametrize("R_top", [0.0, 0.008])
 @pytest.mark.parametrize("z", [0.0253, 0.05, -0.0254, -0.1])
 def test_cone_and_frustum_on_axis_match_the_disc_integral(R_top, z):
-    # on-axis disc field (textbook closed form) integrated over the height with scipy.integrate.quad
+    # on-axis disc field (closed form, from memory; see engine_references.cone_on_axis) integrated over the height with scipy.integrate.quad
     U, g, eU, eg = local_field(Cone(R, L, R_top), [0.0, 0.0, z])
     gz_ref, e = cone_on_axis(R, L, R_top, RHO, z)
     check(g[0], [0.0, 0.0, gz_ref], eg[0], e + 1e-15 * abs(gz_ref), 1e-12)
@@ -196,7 +196,7 @@ def test_a_thin_tube_approaches_the_ring():
 
 @pytest.mark.parametrize("shape, order", [(Cylinder(R, L, 0.008), 4), (Cone(R, L, 0.006), 3)])
 def test_far_potential_follows_maccullagh(shape, order):
-    # MacCullagh's formula (textbook): U = -G M / r - G (tr I - 3 I_rr) / (2 r^3) about the centre of
+    # MacCullagh's formula, e.g. Stacey and Davis, Physics of the Earth, 4th ed.; from memory, equation not checked: U = -G M / r - G (tr I - 3 I_rr) / (2 r^3) about the centre of
     # mass; what is left is the next multipole, order (a/r)^4 for the tube (symmetric about its middle)
     # and (a/r)^3 for the frustum; the quadrupole term itself is of order (a/r)^2
     rot = Rotation.from_rotvec([0.4, -0.3, 0.8]).as_matrix()

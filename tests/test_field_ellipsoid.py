@@ -76,7 +76,7 @@ def test_sphere_outside_is_a_point_mass():
 
 
 def test_sphere_inside_is_linear():
-    # Uniform sphere interior (Gauss's law, textbook): g = -(4/3) pi G rho r,
+    # Uniform sphere interior (Gauss's law, closed form from memory): g = -(4/3) pi G rho r,
     # U = -2 pi G rho (R^2 - r^2/3).
     R = 0.04
     pts = np.random.default_rng(2).uniform(-0.5, 0.5, size=(30, 3)) * R
@@ -110,7 +110,7 @@ def test_interior_matches_ray_quadrature(radii):
 
 
 def test_interior_field_obeys_poisson():
-    # Poisson's equation (textbook): div g = -4 pi G rho inside; the interior field is linear, so
+    # Poisson's equation (Kellogg, Foundations of Potential Theory, 1929; from memory): div g = -4 pi G rho inside; the interior field is linear, so
     # its divergence is sum_i g_i(e_i)/1 for unit offsets along the axes.
     for radii in SHAPES:
         g = ellipsoid_field(np.diag(radii * 0.5), radii, RHO, G)[1]
@@ -119,7 +119,7 @@ def test_interior_field_obeys_poisson():
 
 
 def test_continuous_across_the_surface():
-    # A finite density gives a continuous potential and field (potential theory, textbook).
+    # A finite density gives a continuous potential and field (Kellogg, Foundations of Potential Theory, 1929; from memory).
     rng = np.random.default_rng(3)
     d = rng.normal(size=(20, 3))
     surf = d / np.sqrt(((d / TRIAXIAL) ** 2).sum(axis=1))[:, None]
@@ -132,7 +132,7 @@ def test_continuous_across_the_surface():
 
 
 def test_far_field_is_point_mass_plus_quadrupole():
-    # Multipole expansion (textbook): second moments int x^2 dm = M a^2 / 5 give
+    # Multipole expansion (Jackson, Classical Electrodynamics, 3rd ed., sec. 4.1; from memory): second moments int x^2 dm = M a^2 / 5 give
     # Q = M/5 diag(2a^2 - b^2 - c^2, ...); the octupole vanishes by symmetry, so the residual is
     # ~ (a/r)^4 relative.
     a2 = TRIAXIAL ** 2

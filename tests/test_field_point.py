@@ -71,7 +71,7 @@ def test_shell_cavity_has_zero_field_and_constant_potential():
     U, g = shell_field(pts, [0.0, 0.0, 0.0], R, ri, M, G)
     assert np.all(g == 0.0)
     # Constant potential -G M * (3/2)(R^2 - ri^2)/(R^3 - ri^3): the integral of -G dm/s over the
-    # layers (textbook, e.g. any mechanics text's shell potential).
+    # layers (Newton's shell theorem, Principia Book I Props. 70-71, integrated layer by layer; from memory).
     np.testing.assert_allclose(U, -1.5 * G * M * (R ** 2 - ri ** 2) / (R ** 3 - ri ** 3),
                                rtol=1e-14)
 
@@ -122,7 +122,8 @@ def test_shell_potential_and_field_are_continuous_at_both_radii():
 
 
 def test_solid_sphere_interior_is_linear():
-    # Uniform solid sphere: g = -(4/3) pi G rho r inside, U(0) = -3 G M / (2 R) (textbook).
+    # Uniform solid sphere: g = -(4/3) pi G rho r inside, U(0) = -3 G M / (2 R) (Gauss's law
+    # for a uniform ball, from memory).
     M, R = 5.0, 0.2
     rho = M / (4.0 / 3.0 * np.pi * R ** 3)
     pts = np.array([[0.0, 0.0, 0.0], [0.05, -0.02, 0.1], [0.0, 0.19, 0.0]])
@@ -135,7 +136,8 @@ def test_solid_sphere_interior_is_linear():
 
 
 def test_thin_shell_limit():
-    # inner_radius == radius: a massive surface; the inside potential is -G M / R (textbook).
+    # inner_radius == radius: a massive surface; the inside potential is -G M / R (Newton's shell theorem, Principia Book I Props. 70-71;
+    # from memory).
     U, g = shell_field([[0.0, 0.0, 0.01], [0.0, 0.0, 0.3]], [0, 0, 0], 0.1, 0.1, 1.0, G)
     np.testing.assert_allclose(U, [-G / 0.1, -G / 0.3], rtol=1e-14)
     assert np.all(g[0] == 0.0)

@@ -127,7 +127,7 @@ def test_icosphere_far_field_approaches_point_mass():
 
 
 def test_surface_values_are_finite_and_continuous():
-    # A finite density gives a continuous potential and field (potential theory, textbook): the
+    # A finite density gives a continuous potential and field (Kellogg, Foundations of Potential Theory, 1929; from memory): the
     # values on a vertex, edge and face equal the limits from outside and inside.
     m = trimesh.creation.icosphere(subdivisions=2, radius=0.05)
     data = PolyhedronData(m.vertices, m.faces)
@@ -164,7 +164,7 @@ def test_gradient_matches_central_differences():
 
 
 def test_gradient_obeys_laplace_and_poisson():
-    # Laplace: trace T = 0 outside; Poisson: -4 pi G rho inside (textbook).
+    # Laplace: trace T = 0 outside; Poisson: -4 pi G rho inside (Kellogg, Foundations of Potential Theory, 1929; from memory).
     m = trimesh.creation.icosphere(subdivisions=2, radius=0.05)
     data = PolyhedronData(m.vertices, m.faces)
     rng = np.random.default_rng(8)

@@ -113,7 +113,7 @@ def test_surface_edge_and_vertex_points_match_quadrature(p):
 
 
 def test_continuous_when_approaching_faces_edges_and_vertices():
-    # A finite density gives a continuous potential and field (potential theory, textbook):
+    # A finite density gives a continuous potential and field (Kellogg, Foundations of Potential Theory, 1929; from memory):
     # values a distance eps away converge to the value on the surface, the field error ~ eps log eps.
     targets = np.array([[0.05, 0.01, 0.01], [0.05, 0.03, 0.01], [0.05, 0.03, 0.02]])
     U0, g0 = prism_field(targets, H, RHO, G)
@@ -127,7 +127,7 @@ def test_continuous_when_approaching_faces_edges_and_vertices():
 
 
 def test_bouguer_slab_limit():
-    # Infinite slab: g = 2 pi G rho t (Bouguer, any geophysics textbook). For a square slab of
+    # Infinite slab: g = 2 pi G rho t (Bouguer; Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed., 1990, gravity chapter; from memory, equation number not checked). For a square slab of
     # half-width W seen on its axis from height z the missing outer part is G rho t z times the
     # integral of dA/r^3 outside the square, 4 sqrt(2)/W, so the relative deficit is
     # (4 sqrt(2) / (2 pi)) z / W (thin-slab estimate, derived in the comment; it holds to O(z/W)^2).
@@ -147,7 +147,8 @@ def test_bouguer_slab_limit():
 
 
 def quadrupole_field(p, h, rho, G):
-    """Point mass plus quadrupole of a centred uniform box (textbook multipole expansion):
+    """Point mass plus quadrupole of a centred uniform box (multipole expansion,
+    Jackson, Classical Electrodynamics, 3rd ed., sec. 4.1; from memory):
     Q_ij = int (3 x_i x_j - r^2 delta_ij) dm = M diag(2hx^2 - hy^2 - hz^2, ...)/3; the octupole
     vanishes by symmetry, so the next term is the hexadecapole, ~ (h/r)^4 relative."""
     M = rho * np.prod(2 * h)
@@ -162,7 +163,7 @@ def quadrupole_field(p, h, rho, G):
 
 
 def test_far_field_is_point_mass_plus_quadrupole():
-    # Multipole expansion (textbook): the point+quadrupole residual falls like (h/r)^4 relative.
+    # Multipole expansion (Jackson, Classical Electrodynamics, 3rd ed., sec. 4.1; from memory): the point+quadrupole residual falls like (h/r)^4 relative.
     rng = np.random.default_rng(7)
     dirs = rng.normal(size=(20, 3))
     dirs /= np.linalg.norm(dirs, axis=1)[:, None]
@@ -240,7 +241,8 @@ def test_gradient_matches_central_differences():
 
 
 def test_gradient_obeys_laplace_outside_and_poisson_inside():
-    # Laplace: trace T = 0 outside the mass; Poisson: trace T = -4 pi G rho inside (textbook).
+    # Laplace: trace T = 0 outside the mass; Poisson: trace T = -4 pi G rho inside
+    # (Kellogg, Foundations of Potential Theory, 1929; from memory).
     rng = np.random.default_rng(11)
     pts = rng.uniform(-0.08, 0.08, size=(400, 3))
     inside = np.all(np.abs(pts) < H, axis=1)

@@ -23,7 +23,8 @@ FIELDS = ("period", "decrement", "equilibrium", "amplitude", "drift")
 
 
 def damped_record(t, *, period, decrement, equilibrium, amplitude, drift, phase, t_mid):
-    """theta_eq + drift*tau + A exp(-gamma tau) cos(omega_d tau + phi): the textbook damped oscillator."""
+    """theta_eq + drift*tau + A exp(-gamma tau) cos(omega_d tau + phi): the damped oscillator
+    (Landau and Lifshitz, Mechanics, 3rd ed., sec. 25; from memory)."""
     tau = t - t_mid
     gamma = decrement / period
     return (equilibrium + drift * tau
@@ -32,7 +33,7 @@ def damped_record(t, *, period, decrement, equilibrium, amplitude, drift, phase,
 
 def test_damping_relation_against_ode_reference():
     # Reference: I theta'' + b theta' + kappa (theta - theta_eq) = 0 integrated by scipy's solve_ivp
-    # (DOP853). Textbook damped oscillator: omega0 = sqrt(kappa / I), gamma = b / (2 I), and
+    # (DOP853). Damped oscillator (Landau and Lifshitz, Mechanics, 3rd ed., sec. 25; from memory): omega0 = sqrt(kappa / I), gamma = b / (2 I), and
     # omega0^2 = omega_d^2 (1 + (delta / 2 pi)^2) with delta = gamma T_d the logarithmic decrement.
     inertia, kappa, theta_eq = 1.5e-4, 3.7e-8, 4.0e-3           # kg m^2, N m/rad, rad (invented)
     omega0_true = math.sqrt(kappa / inertia)
@@ -60,7 +61,7 @@ def test_damping_relation_against_ode_reference():
     assert abs(omega0 - omega0_true) <= 3 * u_omega0
     # the damped frequency alone is far off: the check above does test the damping relation
     assert abs(omega_d - omega0_true) > 20 * u_omega0
-    # the decrement itself: delta = gamma T_d with gamma = b / (2 I) (textbook)
+    # the decrement itself: delta = gamma T_d with gamma = b / (2 I) (Landau and Lifshitz, Mechanics, 3rd ed., sec. 25; from memory)
     assert abs(fit.decrement - damping / (2 * inertia) * fit.period) <= 3 * fit.u_decrement
     assert abs(fit.equilibrium - theta_eq) <= 3 * fit.u_equilibrium
     assert abs(fit.drift) <= 3 * fit.u_drift
@@ -111,7 +112,7 @@ def test_one_sigma_intervals_cover_truth_about_68_percent():
 
 def test_correlated_residuals_get_a_note():
     # AR(1) noise x_k = rho x_{k-1} + e_k has lag-1 autocorrelation rho and Durbin-Watson about
-    # 2 (1 - rho) (time-series textbooks; Durbin and Watson 1950).
+    # 2 (1 - rho) (Durbin and Watson, Biometrika 37, 409 (1950); the relation from memory).
     rng = np.random.default_rng(99)
     n, rho = 3000, 0.8
     e = rng.normal(0.0, 1.0e-5, n)
@@ -129,7 +130,7 @@ def test_correlated_residuals_get_a_note():
 
 
 def test_optical_lever_factor_two_from_law_of_reflection():
-    # Law of reflection in vector form: r = d - 2 (d . n) n (textbook optics). A mirror turned by
+    # Law of reflection in vector form: r = d - 2 (d . n) n (from memory). A mirror turned by
     # alpha moves the spot on a flat scale, perpendicular to the rest beam at distance D, to
     # s = D tan(2 alpha); spot_to_angle must give alpha back, for any incidence angle.
     D = 2.5

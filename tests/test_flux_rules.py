@@ -1,7 +1,8 @@
 """Surface (divergence-theorem) rules for volume integrals of homogeneous functions.
 
 Outside references: scipy.integrate.tplquad over the body's volume (brute force, in the body's own
-coordinates); the handbook volumes of a box and a tube; the volume rules of `volume_rules` (Gauss-
+coordinates); the closed-form volumes (from memory) of a box, a b c, and a tube,
+pi (R^2 - r^2) L; the volume rules of `volume_rules` (Gauss-
 Legendre and trapezoid tensor rules, a different formulation) for a high-degree cross-check.
 """
 
@@ -98,7 +99,8 @@ def test_surface_rule_matches_brute_force_volume_quadrature(name):
 @pytest.mark.parametrize("name,volume", [("block", 30 * 12 * 7 * 1e-9),
                                          ("tube", math.pi * (11**2 - 4**2) * 25 * 1e-9)])
 def test_degree_zero_gives_the_handbook_mass(name, volume):
-    # f = 1: sum(w) / 3 is the mass; handbook volumes of a box and a tube
+    # f = 1: sum(w) / 3 is the mass; the closed-form volumes of a box (a b c) and a tube (pi (R^2 - r^2) L),
+    # from memory
     body = load_scene_text(SCENE).body(name)
     _, w = flux_nodes(body, ORIGIN, 0)
     assert abs(w.sum() / 3 - body.density * volume) <= 1e-13 * body.density * volume

@@ -59,7 +59,8 @@ def test_torque_curve_between_nodes_matches_the_engine(balance):
 
 def test_damping_gives_the_decrement():
     # I x'' + c x' + kappa x = 0 has x = exp(-gamma t) cos(omega_d t), gamma = c / 2I, omega_d^2 =
-    # kappa / I - gamma^2, decrement = gamma T_d (damped oscillator, textbook mechanics, from memory);
+    # kappa / I - gamma^2, decrement = gamma T_d (damped oscillator,
+    # Landau and Lifshitz, Mechanics, 3rd ed., sec. 25; from memory);
     # checked against scipy.integrate.solve_ivp of the free oscillator over one damped period
     inertia, kappa = 1.3845e-4, mr.KAPPA
     c = mr.fiber_damping(inertia, kappa, mr.DECREMENT)

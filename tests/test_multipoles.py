@@ -1,8 +1,8 @@
 """Multipole moments and the multipole interaction series.
 
 Outside references: scipy.special.sph_harm_y (spherical harmonics) and eval_legendre; the addition
-theorem for 1/|x - y| (closed form); Newton's law for point masses (computed here); handbook moments
-of inertia of the cylinder and the box; scipy.integrate.tplquad as a brute-force reference for
+theorem for 1/|x - y| (closed form); Newton's law for point masses (computed here); the standard moments
+of inertia of the cylinder and the box (from memory); scipy.integrate.tplquad as a brute-force reference for
 volume integrals; and direct integration by the engine (compare_groups) for extended bodies.
 """
 
@@ -138,7 +138,8 @@ rotate = { axis = [0, 1, 1], angle = 0.7 }
 
 def test_quadrupole_of_a_tube_is_the_handbook_inertia():
     # the Racah-normalised a_20 = integral of r^2 P_2(cos theta) dm = integral of (z^2 - rho^2/2) dm;
-    # handbook: int z^2 dm = M L^2/12 and int rho^2 dm = M (R^2 + r^2)/2 for a tube (moments of inertia)
+    # standard moment-of-inertia integrals, from memory: int z^2 dm = M L^2/12 and int rho^2 dm =
+    # M (R^2 + r^2)/2 for a tube
     sc = load_scene_text(CYLINDER_BOX)
     c = sc.body("c")
     frame = ExpansionFrame.of(np.zeros(3), [0, 0, 1])

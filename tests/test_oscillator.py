@@ -48,7 +48,8 @@ def test_damping_relation_against_a_simulated_damped_oscillator():
 @pytest.mark.parametrize("beta_a2", [1e-4, 0.05, 0.6])
 def test_energy_integral_period_of_the_duffing_oscillator(beta_a2):
     # x'' + x + beta x^3 = 0 at amplitude A: x = A cn(omega t, k), omega^2 = 1 + beta A^2,
-    # k^2 = beta A^2 / (2 (1 + beta A^2)), T = 4 K(k) / omega (textbook Duffing solution; from memory)
+    # k^2 = beta A^2 / (2 (1 + beta A^2)), T = 4 K(k) / omega (the Duffing oscillator's exact
+    # solution by Jacobi elliptic functions, from memory; K from scipy.special.ellipk)
     a = 0.3
     beta = beta_a2 / a**2
     m = beta_a2 / (2 * (1 + beta_a2))

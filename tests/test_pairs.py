@@ -144,8 +144,8 @@ def test_nothing_inside_a_shells_cavity_is_pulled():
 @pytest.mark.parametrize("gap_fraction", [0.01, 0.1])
 @pytest.mark.parametrize("sphere_is_test", [False, True])
 def test_sphere_on_a_cylinders_axis(gap_fraction, sphere_is_test):
-    # the sphere feels m g(centre) with g the cylinder's on-axis closed form (standard, applied-geophysics
-    # textbooks); its stiffness about an off-axis pivot needs the field's gradient there: T_zz from the
+    # the sphere feels m g(centre) with g the cylinder's on-axis closed form (the disc closed form
+    # stacked, Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed., 1990, gravity chapter; from memory, equation number not checked); its stiffness about an off-axis pivot needs the field's gradient there: T_zz from the
     # closed form's derivative, T_xx = T_yy = -T_zz/2 (axial symmetry, Laplace); the cylinder feels the
     # opposite force and torque (third law) and the same stiffness and energy
     R, L, a = 0.02, 0.05, 0.006
@@ -350,7 +350,7 @@ def test_mesh_beside_an_ellipsoid_against_the_carlson_field_over_its_volume():
 # ------------------------------------------------------------------------------------------
 
 def test_a_wide_thin_box_approaches_the_infinite_slab():
-    # Bouguer plate: g = 2 pi G rho t above an infinite slab (textbook); a finite square plate pulls
+    # Bouguer plate: g = 2 pi G rho t above an infinite slab (Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed., 1990, gravity chapter; from memory, equation number not checked); a finite square plate pulls
     # with 4 G sigma atan(w^2 / (d sqrt(2 w^2 + d^2))) on its axis (solid angle of a rectangle), here
     # integrated over the thickness by scipy quad. For w >> d, atan(x) = pi/2 - 1/x + O(x^-3) with
     # 1/x = sqrt(2) d / w, so the deficit from the slab is (2 sqrt 2 / pi) d / w to first order (d the

@@ -2,12 +2,13 @@
 centroids, in rotated and shifted placements.
 
 Checks, each against an outside closed form:
-- volume: (1/3) surface integral of x . n dA = V (divergence theorem) with V the handbook volume;
+- volume: (1/3) surface integral of x . n dA = V (divergence theorem) with V the closed-form volume
+  (from memory);
 - closure: the surface integral of n dA = 0 (divergence theorem for a constant field);
-- area: the surface integral of |n| dA = the handbook surface area (ellipsoid: Carlson's R_G form as
+- area: the surface integral of |n| dA = the closed-form surface area (from memory; ellipsoid: Carlson's R_G form as
   given in the scipy.special.elliprg documentation);
 - centroid: the surface integral of x (x . n) dA = 4 V c (divergence theorem, div(x_i x) = 4 x_i), with
-  c the handbook centroid (a cone's at a quarter of its height from the base).
+  c the closed-form centroid, from memory (a cone's at a quarter of its height from the base).
 """
 
 from __future__ import annotations
@@ -30,7 +31,7 @@ PI = math.pi
 
 def frustum_centroid_height(R, r, L):
     """Height of a frustum's centroid above its base: L (R^2 + 2 R r + 3 r^2) / (4 (R^2 + R r + r^2))
-    (handbook; r = 0 gives the cone's L/4)."""
+    (from memory; r = 0 gives the cone's L/4, and r = R the cylinder's L/2)."""
     return L * (R * R + 2 * R * r + 3 * r * r) / (4 * (R * R + R * r + r * r))
 
 
@@ -43,7 +44,8 @@ _ico_v = np.asarray(_ico.vertices) * np.array([1.0, 0.7, 0.5])
 _hull = ConvexHull(_ico_v)
 _prism = trimesh.creation.cylinder(radius=0.015, height=0.04, sections=12)
 
-# (shape, volume, area, centroid in the local frame) from closed forms (handbook formulas)
+# (shape, volume, area, centroid in the local frame) from closed forms (the standard mensuration
+# formulas, from memory)
 CASES = {
     "cylinder": (Cylinder(0.02, 0.05), PI * 0.02**2 * 0.05, 2 * PI * 0.02 * 0.05 + 2 * PI * 0.02**2, np.zeros(3)),
     "tube": (Cylinder(0.02, 0.05, 0.008), PI * (0.02**2 - 0.008**2) * 0.05,
@@ -93,9 +95,9 @@ def test_divergence_theorem_gives_the_closed_form_volume_area_and_centroid(case,
     assert np.einsum("ij,ij->", X, W) / 3 == pytest.approx(volume, rel=1e-12 * (reach / size))
     # divergence theorem for a constant field: the surface integral of n dA vanishes
     assert np.abs(W.sum(axis=0)).max() <= 1e-13 * area
-    # handbook surface area
+    # the closed-form surface area (from memory)
     assert np.linalg.norm(W, axis=1).sum() == pytest.approx(area, rel=1e-12)
-    # surface integral of x (x . n) dA = 4 V c (div(x_i x) = 4 x_i), c the handbook centroid
+    # surface integral of x (x . n) dA = 4 V c (div(x_i x) = 4 x_i), c the closed-form centroid
     c_world = pl.apply(centroid)
     first = np.einsum("ij,i->j", X, np.einsum("ij,ij->i", X, W)) / (4 * volume)
     assert np.linalg.norm(first - c_world) <= 1e-11 * reach**2 / size

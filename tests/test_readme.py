@@ -26,7 +26,8 @@ def test_readme_scene_example_loads_and_checks_cleanly():
     first = _code_blocks("toml")[0]
     scene = load_scene_text(first, "README.md")
     assert [p.name for p in scene.positions] == ["A", "B"]
-    # 1923.5 g in a 30 mm x 60 mm cylinder: density pi r^2 h -> about 11.34 g/cm^3 (lead, from memory)
+    # 820.8 g in a cylinder of radius 24 mm and length 40 mm: density m / (pi r^2 h) -> about
+    # 11.34 g/cm^3 (lead, from memory)
     assert abs(scene.body("big-east").density - 11340) < 10
     warnings = scene_warnings(scene)
     assert not [w for w in warnings if "overlap" in w or "touch" in w], warnings

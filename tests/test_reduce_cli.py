@@ -220,7 +220,7 @@ def test_the_point_mass_formula_is_written_with_its_numbers(tmp_path, capsys):
     data = run_json(capsys, ["reduce", write(tmp_path, deflection_text()), "--samples", "0", "--workers", "1",
                              "--no-progress"])
     t = data["point_terms"]
-    # the textbook inputs: points of the bobs' masses at +-D (I_p = 2 m D^2, handbook), the measured
+    # the point-model inputs: points of the bobs' masses at +-D (I_p = 2 m D^2, point masses, closed form), the measured
     # period and angles, and the nearest pairs' point torques (Newton's law, by hand above)
     assert t["inertia_point"] == pytest.approx(2 * sb.M_BOB * sb.D**2, rel=1e-12)
     assert t["torques_per_G"][0] == pytest.approx(_nearest_torque_per_g(sb.PSI_A), rel=1e-12)

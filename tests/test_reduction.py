@@ -1,6 +1,6 @@
 """The G reduction against a synthetic experiment made from closed forms (tests/synthetic_balance.py):
-deflection and time-of-swing recover the true G, the itemised factors match the textbook two-ball
-formula and its far-mass correction, and bad measurements are refused."""
+deflection and time-of-swing recover the true G, the itemised factors match the two-ball formula of
+teaching-lab manuals (from memory) and its far-mass correction, and bad measurements are refused."""
 
 from __future__ import annotations
 
@@ -99,17 +99,18 @@ def test_deflection_recovers_the_true_G_and_the_textbook_factors():
     # the absolute equilibrium angles (from the fiber's rest) and the fiber constant come back too
     assert result.equilibrium == pytest.approx((theta["A"], theta["B"]), rel=1e-11)
     assert result.fiber_constant == pytest.approx(sb.KAPPA, rel=1e-11)
-    # G_point is the textbook two-ball formula G = 2 pi^2 L b^2 theta / (M T^2), L = 2D the beam, theta half
+    # G_point is the two-ball formula G = 2 pi^2 L b^2 theta / (M T^2), L = 2D the beam, theta half
     # the change of the measured angle (common practice in teaching-lab manuals; from memory)
     half_change = (theta["A"] - theta["B"]) / 2
     textbook = 2 * math.pi**2 * (2 * sb.D) * sb.B**2 * half_change / (sb.M_BIG * period**2)
     assert result.G_point == pytest.approx(textbook, rel=1e-12)
-    # the far attractor's pull: the textbook formula without the far-ball term against with it,
+    # the far attractor's pull: the two-ball formula without the far-ball term against with it,
     # 1 / (1 - beta), beta = b^3 / (b^2 + 4 d^2)^(3/2) (teaching-lab manuals; from memory)
     assert factor(result, "pull of every attractor body") == pytest.approx(1 / (1 - sb.FAR_BETA), rel=1e-12)
     # spheres act as points (shell theorem): no shape correction
     assert factor(result, "exact torque of the real shapes") == pytest.approx(1.0, abs=1e-13)
-    # inertia of spheres about the axis against that of points: 1 + (2/5) r^2 / D^2 (handbook)
+    # inertia of spheres about the axis against that of points: 1 + (2/5) r^2 / D^2 (standard
+    # sphere inertia plus parallel axis, from memory)
     assert factor(result, "exact moment of inertia") == pytest.approx(1 + 0.4 * sb.R_BOB**2 / sb.D**2, rel=1e-13)
     # damping: omega0^2 / omega_d^2 = 1 + (delta / 2 pi)^2
     assert factor(result, "damping") == pytest.approx(1 + (0.05 / (2 * math.pi)) ** 2, rel=1e-13)

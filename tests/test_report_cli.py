@@ -180,7 +180,9 @@ def test_report_folder_holds_what_it_promises(full_report):
         assert (out / png).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     md = (out / "report.md").read_text()
     assert info["tool"]["name"] == "truepull" and info["tool"]["version"] in md
-    assert "Lead is toxic" in md and "licensed practice" in md
+    from truepull.cli.report import CAUTIONS
+
+    assert all(f"- {c}" in md for c in CAUTIONS)  # every caution, word for word as in the README
     assert "engine tolerance: 1e-09" in md and "reached:" in md
     for fig in ("torque_vs_turn.png", "fit.png", "budget.png"):
         assert f"]({fig})" in md
@@ -271,8 +273,8 @@ def test_report_fit_recovers_the_invented_run(full_report):
     segs = _load(out)["sections"]["fit"]["segments"]
     assert [s["position"] for s in segs] == list(mr.SEQUENCE)
     # the generator's damped period at each position: omega_d^2 = (kappa + G s) / I - gamma^2, gamma =
-    # c / 2I, s the gravitational stiffness per unit G at the equilibrium (damped oscillator, textbook
-    # mechanics, from memory); the equilibrium to first order, zero + G Gamma(0) / kappa, is close enough
+    # c / 2I, s the gravitational stiffness per unit G at the equilibrium (damped oscillator,
+    # Landau and Lifshitz, Mechanics, 3rd ed., sec. 25; from memory); the equilibrium to first order, zero + G Gamma(0) / kappa, is close enough
     b = mr.demo_balance()
     gamma = b.damping / (2 * b.inertia)
     for s in segs:
@@ -416,11 +418,34 @@ def test_report_names_no_folder_of_this_machine_and_follows_the_umask(full_repor
 
 
 def test_cautions_name_the_same_hazards_in_readme_and_report():
-    # the hazards named in the lab-safety notes (common practice): each in both places
+    # the hazards named in the lab-safety notes (common practice): each in both places, and the
+    # README's list under Cautions is the report's word for word (bold marks and line breaks aside)
+    import re
+
     from truepull.cli.report import CAUTIONS
 
-    readme = (Path(__file__).resolve().parent.parent / "README.md").read_text().lower()
+    readme = (Path(__file__).resolve().parent.parent / "README.md").read_text()
+    section = readme.split("## Cautions", 1)[1].split("\n## ", 1)[0]
+    items = [" ".join(i.replace("**", "").split()) for i in re.split(r"\n- ", section)[1:]]
+    assert items == list(CAUTIONS)
     report = " ".join(CAUTIONS).lower()
-    for hazard in ("lead is toxic", "crush", "laser", "fiber can snap", "dust and chips", "pinch", "implode",
-                   "local codes"):
-        assert hazard in readme and hazard in report, hazard
+    for hazard in ("lead is toxic", "crush", "laser", "eye", "fiber can snap", "tungsten", "dust and chips",
+                   "pinch", "implode", "local codes", "safety rules"):
+        assert hazard in report, hazard
+
+
+def test_budget_figure_shows_the_total_above_the_inputs(monkeypatch):
+    from truepull.cli import report as report_cli
+
+    figs = []
+    monkeypatch.setattr(report_cli, "save_figure_atomic", lambda fig, path, **kw: figs.append(fig))
+    rows = [{"input": "a", "contribution": 3e-15, "contribution_ppm": 45.0},
+            {"input": "b", "contribution": 4e-15, "contribution_ppm": 60.0}]
+    G, u = 6.674e-11, 5.0e-15
+    report_cli.budget_png("x.png", rows, G, u)
+    ax = figs[0].axes[0]
+    labels = [t.get_text() for t in ax.get_yticklabels()]
+    assert labels == ["a", "b", report_cli.TOTAL_LABEL]  # largest input nearest the total, at the top
+    widths = [p.get_width() for p in ax.patches]
+    # the total's bar is u / G in ppm (the definition of a relative uncertainty in ppm), 5e-15 / 6.674e-11
+    assert widths[-1] == pytest.approx(u / G * 1e6, rel=1e-12) and widths[:2] == [45.0, 60.0]

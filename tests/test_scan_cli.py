@@ -65,6 +65,7 @@ def _write(tmp_path):
 
 
 def test_csv_on_stdout_matches_newton(tmp_path, capsys):
+    # reference: Newton's law for the point masses, computed by _newton above
     path = _write(tmp_path)
     assert main(["scan", path, "--turn", "0:90:30", "--workers", "1"]) == 0
     out = capsys.readouterr()
@@ -89,6 +90,8 @@ def test_csv_on_stdout_matches_newton(tmp_path, capsys):
 
 
 def test_json_shift_from_a_position_and_png(tmp_path, capsys):
+    # reference: Newton's law for the point masses at position A (turn 30 deg) shifted along z, by _newton;
+    # the PNG signature from the PNG specification (ISO/IEC 15948, section 5.2)
     path = _write(tmp_path)
     png = tmp_path / "scan.png"
     assert main(["scan", path, "--shift", "z:0:20:10", "--position", "A", "--json", "--png", str(png),
@@ -104,6 +107,7 @@ def test_json_shift_from_a_position_and_png(tmp_path, capsys):
 
 
 def test_csv_file_and_bad_input(tmp_path, capsys):
+    # reference: the contract's bad-input rule (CONTRACT.md): exit 2 with one line, no traceback
     path = _write(tmp_path)
     out = tmp_path / "t.csv"
     assert main(["scan", path, "--turn", "0:10:10", "--csv", str(out), "--workers", "1"]) == 0

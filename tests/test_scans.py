@@ -53,6 +53,8 @@ SOURCE = [(1.2, (0.0, 0.08, 0.01)), (1.2, (0.0, -0.08, -0.01))]
 
 
 def test_parse_range_includes_stop_and_refuses_bad_steps():
+    # reference: the documented grid START, START + STEP, ... up to STOP included (CONTRACT.md), counted
+    # by hand
     assert parse_range("0:90:30", "--turn") == (0.0, 30.0, 60.0, 90.0)
     assert parse_range("0:359:1", "--turn")[-1] == 359.0 and len(parse_range("0:359:1", "--turn")) == 360
     assert parse_range("1:0:-0.5", "--turn") == (1.0, 0.5, 0.0)
@@ -112,6 +114,8 @@ def test_turning_the_pendulum_and_direct_integration_of_spheres():
 
 
 def test_shift_scan_and_overlapping_values():
+    # reference: Newton's law for uniform spheres (shell theorem), computed here; the last shift puts the
+    # source's centre 2 mm from a test sphere's, well inside the sum of their radii (by hand)
     source = [(1.2, (0.03, 0.08, 0.0))]
     sc = _scene(TEST, source, shape="sphere", radius=0.005)
     values = (-0.02, 0.0, 0.02, -0.078)  # the last brings the source sphere into a test sphere
@@ -126,6 +130,7 @@ def test_shift_scan_and_overlapping_values():
 
 
 def test_interleaved_regions_fall_back_to_direct_integration():
+    # reference: Newton's law for the two spheres (points outside themselves, shell theorem), computed here
     sc = _scene([(0.02, (0.05, 0.0, 0.0))], [(1.0, (0.0, 0.04, 0.0))])
     res = scan(sc, Sweep("turn", (0.0, 1.0), "attractor"), workers=1)
     assert res.method == "direct" and any("interleave" in n for n in res.notes)
@@ -135,6 +140,7 @@ def test_interleaved_regions_fall_back_to_direct_integration():
 
 
 def test_local_processes_and_a_dask_cluster_give_the_same_rows(tmp_path):
+    # reference: Newton's law for the spheres, computed here; and the three ways must agree bit for bit
     text = "\n".join(f'[[body]]\nname = "t{k}"\ngroup = "pendulum"\nshape = "sphere"\nradius = 0.004\nmass = {m}\n'
                      f'at = [{r[0]}, {r[1]}, {r[2]}]\n' for k, (m, r) in enumerate(TEST))
     text += "\n".join(f'[[body]]\nname = "s{k}"\ngroup = "attractor"\nshape = "sphere"\nradius = 0.02\nmass = {m}\n'
@@ -156,6 +162,7 @@ def test_local_processes_and_a_dask_cluster_give_the_same_rows(tmp_path):
 
 
 def test_bad_sweeps_are_refused():
+    # reference: the contract's rule for bad input (CONTRACT.md): an InputError, never a result
     sc = _scene(TEST, SOURCE)
     with pytest.raises(InputError):
         scan(sc, Sweep("turn", (0.0,), "nobody"))

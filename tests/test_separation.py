@@ -58,6 +58,8 @@ def _surface_samples(body, n=400):
 
 
 def test_farthest_is_at_least_every_sample_and_attained():
+    # reference: brute force, the largest distance to dense samples of each surface (for bodies of
+    # revolution the farthest point lies on a rim circle, which the samples cover to 2 pi / 400)
     sc = load_scene_text(SCENE)
     c = np.array([0.001, -0.002, 0.003])
     for b in sc.bodies:
@@ -69,6 +71,8 @@ def test_farthest_is_at_least_every_sample_and_attained():
 
 
 def test_nearest_point_of_an_ellipsoid_is_exact():
+    # reference: scipy.optimize.minimize (Nelder-Mead, three starts) of the distance over the
+    # ellipsoid's angle parametrisation; and no dense surface sample may lie nearer
     sc = load_scene_text(SCENE)
     b = sc.body("ell")
     c = np.array([0.001, -0.002, 0.003])

@@ -1,4 +1,4 @@
-"""Shapes: volumes, centroids and inertia tensors against handbook closed forms, exact polyhedron
+"""Shapes: volumes, centroids and inertia tensors against the standard closed forms (from memory), exact polyhedron
 formulas and trimesh; inside tests against Monte Carlo volume; size parameters."""
 
 import math
@@ -94,7 +94,7 @@ def test_frustum_centroid_formula(R1, R2, L):
 
 @pytest.mark.parametrize("R1,R2,L", [(0.04, 0.02, 0.1), (0.01, 0.03, 0.05)])
 def test_frustum_inertia_is_big_cone_minus_small_cone(R1, R2, L):
-    # a frustum is a whole cone minus the cone cut off its tip; each by the handbook cone formulas
+    # a frustum is a whole cone minus the cone cut off its tip; each by the standard cone formulas
     # (I_axis 3/10 m R^2, I_perp 3/80 m (4R^2 + h^2) about its centroid, from memory) and the
     # parallel-axis theorem.
     wide, narrow = max(R1, R2), min(R1, R2)
@@ -203,7 +203,7 @@ def test_cylinder_mesh_matches_polygon_prism(n):
 def test_cone_mesh_matches_polygon_pyramid(n):
     # pyramid on a regular n-gon base (area A, polar moment J), height h, slices scale by (1 - s/h):
     # V = A h / 3, centroid h/4 above the base, I_axis = J h / 5, I_perp(centroid) = J h / 10 + A h^3 / 80
-    # (derived by integrating the scaled slices; the circle limit gives the handbook 3/80 m (4R^2+h^2))
+    # (derived by integrating the scaled slices; the circle limit gives the cone's 3/80 m (4R^2+h^2), from memory)
     R, h = 0.03, 0.09
     tm = trimesh.creation.cone(radius=R, height=h, sections=n)
     mesh = mesh_of(tm)

@@ -52,6 +52,8 @@ def test_support_matches_a_fine_tessellation(kind):
 
 
 def test_support_of_a_mesh_is_its_largest_vertex_projection():
+    # reference: the definition of the support function of a polytope, max over vertices of n . v,
+    # computed here with numpy
     ico = trimesh.creation.icosphere(2, 0.01)
     body = placed(MeshShape(np.asarray(ico.vertices), np.asarray(ico.faces)), at=(0.0, 0.2, 0.0), rotvec=(0.1, 0.2, 0.3))
     n = np.array([[0.0, 1.0, 0.0], [0.6, 0.0, 0.8]])
@@ -60,6 +62,7 @@ def test_support_of_a_mesh_is_its_largest_vertex_projection():
 
 
 def test_two_balls_are_apart_by_their_distance():
+    # reference: the gap of two balls, |c_a - c_b| - r_a - r_b (elementary geometry; 3-4-5 triangles)
     a = placed(Sphere(0.02), at=(0.0, 0.0, 0.0))
     b = placed(Sphere(0.03), at=(0.03, 0.04, 0.0))  # centres 0.05 apart: gap 0
     c = placed(Sphere(0.03), at=(0.06, 0.08, 0.0))  # centres 0.10 apart: gap 0.05
@@ -69,6 +72,7 @@ def test_two_balls_are_apart_by_their_distance():
 
 def test_parallel_cylinders_side_by_side():
     # two upright cylinders 1 mm apart sideways: the gap is the distance of their axes less their radii
+    # (elementary geometry: axes 32 mm apart along a 3-4-5 direction, radii 6 + 25 mm)
     a = placed(Cylinder(0.006, 0.012), at=(0.052, 0.0, 0.0))
     b = placed(Cylinder(0.025, 0.05), at=(0.052 + 0.6 * 0.032, 0.8 * 0.032, 0.003))
     assert separation_gap(a, b) == pytest.approx(0.001, rel=1e-9)

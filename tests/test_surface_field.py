@@ -1,13 +1,13 @@
 """The general adaptive surface-integral field against closed forms of every shape.
 
-References, each a closed form tested on its own elsewhere or a textbook result:
+References, each a closed form tested on its own elsewhere or a published result:
 - box: the prism closed form (Nagy, Papp and Benedek 2000; integrate/field_prism.py, itself checked
   against scipy cubature and the Bouguer slab in tests/test_field_prism.py);
 - ellipsoid: the Carlson-form exterior field (integrate/field_ellipsoid.py, checked against scipy
   cubature in tests/test_field_ellipsoid.py);
 - sphere and shell: Newton's law and the shell theorem (a uniform shell's cavity is field-free);
 - mesh: the homogeneous polyhedron closed form (Werner and Scheeres 1997; field_polyhedron.py);
-- cylinder: the on-axis closed form (applied-geophysics textbooks) and ring fields integrated by
+- cylinder: the on-axis closed form (Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed., 1990, gravity chapter; from memory, equation number not checked) and ring fields integrated by
   scipy cubature off the axis (tests/engine_references.py).
 Each point is asked for a relative tolerance; the answer must meet it, and the returned error estimate
 must bound the difference from the reference.

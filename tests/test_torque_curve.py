@@ -1,5 +1,6 @@
 """Torque curves of a turned pendulum: engine samples against Newton's law for spheres, and the
-Hermite interpolant against its textbook remainder bound."""
+Hermite interpolant against its remainder bound (the Hermite interpolation error theorem, e.g. Burden
+and Faires, Numerical Analysis, 9th ed., sec. 3.4; from memory)."""
 
 from __future__ import annotations
 
@@ -58,7 +59,8 @@ def test_curve_through_engine_samples_matches_newton_between_them():
 
 def test_hermite_interpolant_obeys_its_remainder_bound():
     # f = sin: samples of value and slope; the Hermite remainder is f^(2m)(xi) / (2m)! prod (x - x_k)^2
-    # with |f^(2m)| <= 1 (textbook interpolation error formula)
+    # with |f^(2m)| <= 1 (Hermite interpolation error theorem, Burden and Faires, Numerical Analysis, 9th
+    # ed., sec. 3.4; from memory)
     nodes = (-0.3, 0.1, 0.4)
     samples = tuple(PoseSample(t, math.sin(t), -math.cos(t), 0.0, 0.0, 0.0, True) for t in nodes)
     curve = TorqueCurve("x", samples)

@@ -146,8 +146,9 @@ def test_png_shows_the_bodies_in_group_colours(tmp_path, capsys, can_render, hea
     image = np.asarray(Image.open(png).convert("RGB"))
     h, w, _ = image.shape
     background = np.all(image == 255, axis=2)
-    # not blank: a good part of the picture is drawn (the field plane alone covers much of it)
-    assert (~background).mean() > 0.2
+    # not blank: a good part of the picture is drawn (the field plane alone covers about a fifth of it,
+    # framed with the axes, which end on round ticks a little past the plane)
+    assert (~background).mean() > 0.15
     # the bodies show in their group colours, outside the legend box in the upper left corner
     legend = np.zeros((h, w), dtype=bool)
     legend[: int(0.3 * h), : int(0.35 * w)] = True
