@@ -10,6 +10,7 @@ in degrees and a shift in metres. The CSV's column names end in their units (`va
 
 from __future__ import annotations
 
+import math
 import sys
 
 import numpy as np
