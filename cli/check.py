@@ -23,7 +23,18 @@ def check_data(scene, overlaps: bool = True) -> dict:
                "com": b.com, "inertia_com": b.inertia_com} for b in scene.bodies]
     groups = {name: {"mass": t.mass, "com": t.com, "inertia_axis": t.inertia_axis}
               for name, t in all_group_totals(scene).items()}
-    return {"bodies": bodies, "groups": groups, "warnings": scene_warnings(scene, overlaps=overlaps)}
+    notes = []
+    for b, d in zip(scene.bodies, bodies):
+        if b.has_gradient:
+            d["uniform_mass"] = b.uniform_mass
+            d["density_gradient"] = (b.placement.rotation @ b.gradient).tolist()
+            stated = "stated mass" if b.spec is not None and b.spec.mass is not None else "density times volume"
+            notes.append(f"'{b.name}' has a density gradient: its {stated} ({b.uniform_mass:.6g} kg) is the mass of "
+                         f"the uniform part; the mass, centre of mass and inertia shown include the linear part")
+    out = {"bodies": bodies, "groups": groups, "warnings": scene_warnings(scene, overlaps=overlaps)}
+    if notes:
+        out["notes"] = notes
+    return out
 
 
 def _vec(v, factor: float) -> str:
@@ -66,6 +77,8 @@ def render(scene, data: dict) -> str:
         named = m.angle if m.method == "deflection" else m.period
         lines.append(f"measurement: {m.method} at positions {', '.join(named) or '-'}")
     lines.append("")
+    for note in data.get("notes", []):
+        lines.append(f"note: {note}")
     if data["warnings"]:
         lines.append(f"warnings ({len(data['warnings'])}):")
         lines.extend(f"  - {w}" for w in data["warnings"])

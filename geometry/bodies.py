@@ -46,6 +46,7 @@ class BodySpec:
     file: str | None = None
     file_units: str | None = None
     scene_file: str | None = None
+    density_gradient: tuple[Measured, Measured, Measured] | None = None
 
     def stated_density(self) -> Measured | None:
         """The density the scene states (directly or by material), without the hole sign; None if mass is given."""
@@ -58,8 +59,11 @@ class BodySpec:
 
 @dataclass(frozen=True, eq=False)
 class Body:
-    """A placed uniform body. `density` kg/m^3 (negative for a hole); for a `point` body the mass is
-    held in `point_mass` (kg, negative for a subtracted point) and `density` is 0."""
+    """A placed body. `density` kg/m^3 (negative for a hole) is its uniform part; for a `point` body the
+    mass is held in `point_mass` (kg, negative for a subtracted point) and `density` is 0.
+    `gradient` (3,) kg/m^4, in the body's LOCAL axes (so it turns with the body), or None: the density
+    is then density + gradient . x_local, x_local measured from the reference point (`at`); a hole's
+    gradient carries the hole's sign. Mass, centre of mass and inertia include the linear part."""
 
     name: str
     group: str
@@ -68,6 +72,7 @@ class Body:
     density: float
     spec: BodySpec | None = None
     point_mass: float = 0.0
+    gradient: np.ndarray | None = None
     _cache: dict = field(default_factory=dict, init=False, repr=False, compare=False)
 
     # --- intrinsic properties -------------------------------------------------------------
@@ -81,10 +86,36 @@ class Body:
         return float(self.shape.volume())
 
     @property
-    def mass(self) -> float:
-        """Signed mass (kg): negative for a hole."""
+    def has_gradient(self) -> bool:
+        return self.gradient is not None
+
+    def uniform_part(self) -> "Body":
+        """The body without its density gradient (the uniform part, density `density`)."""
+        return self if self.gradient is None else replace(self, gradient=None)
+
+    def _linear_moments(self):
+        """(mass (kg), first moment (3,) kg m, third-moment tensor (3, 3) kg m^2) of the linear part,
+        local axes about the reference point, by an exact polynomial volume rule (degree 3)."""
+        if "linear" not in self._cache:
+            from truepull.integrate.linear_density import linear_moments
+
+            self._cache["linear"] = linear_moments(self.shape, self.gradient)
+        return self._cache["linear"]
+
+    @property
+    def uniform_mass(self) -> float:
+        """Signed mass (kg) of the uniform part (the stated mass or density times volume)."""
         if isinstance(self.shape, Point):
             return float(self.point_mass)
+        return self.density * self.volume
+
+    @property
+    def mass(self) -> float:
+        """Signed mass (kg): negative for a hole; includes the linear density part."""
+        if isinstance(self.shape, Point):
+            return float(self.point_mass)
+        if self.gradient is not None:
+            return self.density * self.volume + self._linear_moments()[0]
         return self.density * self.volume
 
     @property
@@ -100,7 +131,14 @@ class Body:
     @property
     def com(self) -> np.ndarray:
         """Centre of mass in the world (m)."""
+        if self.gradient is not None:
+            return self.placement.apply(self._com_local())
         return self.placement.apply(self.shape.centroid())
+
+    def _com_local(self) -> np.ndarray:
+        m1, f1, _ = self._linear_moments()
+        m0 = self.density * self.volume
+        return (m0 * np.asarray(self.shape.centroid(), float) + f1) / (m0 + m1)
 
     @property
     def inertia_com(self) -> np.ndarray:
@@ -108,12 +146,26 @@ class Body:
         if "inertia_com" not in self._cache:
             if isinstance(self.shape, Point):
                 i = np.zeros((3, 3))
+            elif self.gradient is not None:
+                i = self.placement.apply_tensor(self._inertia_local_com())
+                i = 0.5 * (i + i.T)
             else:
                 i = self.placement.apply_tensor(self.density * self.shape.inertia_unit_density())
                 i = 0.5 * (i + i.T)
             i.setflags(write=False)
             self._cache["inertia_com"] = i
         return self._cache["inertia_com"].copy()
+
+    def _inertia_local_com(self) -> np.ndarray:
+        """Local-axes inertia about the centre of mass of uniform plus linear part (kg m^2)."""
+        eye = np.eye(3)
+        c = np.asarray(self.shape.centroid(), float)
+        m0 = self.density * self.volume
+        i0 = self.density * self.shape.inertia_unit_density() + m0 * (c @ c * eye - np.outer(c, c))
+        m1, _, m3 = self._linear_moments()
+        i_origin = i0 + np.trace(m3) * eye - m3
+        d = self._com_local()
+        return i_origin - (m0 + m1) * (d @ d * eye - np.outer(d, d))
 
     def inertia_tensor_about(self, point) -> np.ndarray:
         """Signed inertia tensor about `point` (world, m), world axes, by the parallel-axis theorem."""
@@ -174,7 +226,13 @@ def build_body(spec: BodySpec) -> Body:
         density = spec.stated_density().value
     if spec.subtract:
         density = -abs(density)
-    return Body(spec.name, spec.group, shape, placement, float(density), spec)
+    gradient = None
+    if spec.density_gradient is not None and any(c.value != 0 for c in spec.density_gradient):
+        # stated in scene (world) axes at the body's placement; kept in local axes, hole sign included
+        gw = np.array([c.value for c in spec.density_gradient], float)
+        gradient = (-1.0 if spec.subtract else 1.0) * (placement.rotation.T @ gw)
+        gradient.setflags(write=False)
+    return Body(spec.name, spec.group, shape, placement, float(density), spec, gradient=gradient)
 
 
 def density_parameter(spec: BodySpec) -> str:
@@ -194,6 +252,9 @@ def body_parameters(spec: BodySpec) -> dict[str, Measured]:
         out["mass"] = spec.mass
     else:
         out["density"] = spec.stated_density()
+    if spec.density_gradient is not None:
+        for c, m in zip("xyz", spec.density_gradient):
+            out[f"density_gradient.{c}"] = m
     return out
 
 
@@ -214,6 +275,11 @@ def spec_with(spec: BodySpec, param: str, value: float) -> BodySpec:
     if param == "density" and spec.mass is None and spec.shape_kind != "point":
         old = spec.stated_density()
         return replace(spec, density=Measured(value, old.u if old is not None else None), material=None)
+    if param.startswith("density_gradient.") and param[-1] in "xyz" and len(param) == 18:
+        i = "xyz".index(param[-1])
+        old = list(spec.density_gradient or (Measured(0.0),) * 3)
+        old[i] = Measured(value, old[i].u)
+        return replace(spec, density_gradient=tuple(old))
     if param == "mass" and spec.mass is not None:
         return replace(spec, mass=Measured(value, spec.mass.u))
     raise KeyError(f"body {spec.name} has no parameter '{param}' (has: {', '.join(body_parameters(spec))})")

@@ -26,6 +26,8 @@ KINDS = {
     "angular_rate": ("rad/s", "1 / [time]"),
     "dimensionless": ("", ""),
     "gravitational_constant": ("m^3/(kg s^2)", "[length] ** 3 / [mass] / [time] ** 2"),
+    "density_gradient": ("kg/m^4", "[mass] / [length] ** 4"),
+    "expansion": ("1/K", "1 / [temperature]"),
 }
 
 _MANTISSA = r"[-+]?(?:\d+\.?\d*|\.\d+)"
@@ -62,9 +64,12 @@ LIMITS = {
     "angular_rate": (1e6, 1e-30),
     "dimensionless": (1e30, 1e-30),
     "gravitational_constant": (1e10, 1e-30),
+    "density_gradient": (1e21, 1e-30),
+    "expansion": (1e-2, 1e-30),
 }
 _SI_NAMES = {"length": "m", "mass": "kg", "density": "kg/m^3", "angle": "rad", "time": "s",
-             "angular_rate": "rad/s", "dimensionless": "", "gravitational_constant": "m^3/(kg s^2)"}
+             "angular_rate": "rad/s", "dimensionless": "", "gravitational_constant": "m^3/(kg s^2)",
+             "density_gradient": "kg/m^4", "expansion": "1/K"}
 
 # pint's names of true angle units (after alias resolution); any prefixed radian (mrad, urad) too
 ANGLE_UNITS = ("radian", "degree", "arcminute", "arcsecond", "turn", "grade")

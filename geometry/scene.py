@@ -41,7 +41,8 @@ SCENE_KEYS = ("title", "G")
 FRAME_KEYS = ("pivot", "axis")
 POSITION_KEYS = ("name", "group", "turn", "shift")
 MEASUREMENT_KEYS = ("method", "angle", "period", "decrement", "fiber_q", "amplitude", "angle_correlation")
-BODY_COMMON_KEYS = ("name", "group", "shape", "at", "axis", "rotate", "density", "material", "mass", "subtract")
+BODY_COMMON_KEYS = ("name", "group", "shape", "at", "axis", "rotate", "density", "material", "mass", "subtract",
+                    "density_gradient")
 ROTATE_KEYS = ("axis", "angle")
 # shape -> {scene key: required?}; box `size` and ellipsoid `radii` are 3-vectors
 SHAPE_KEYS: dict[str, dict[str, bool]] = {
@@ -370,8 +371,9 @@ def _read_body(r: _Reader, raw, index: int) -> BodySpec:
 
     size, mesh, file, file_units = _read_size(r, t, kind, where)
     density, material, mass = _read_matter(r, t, kind, where)
+    gradient = _read_gradient(r, t, kind, where)
 
-    return BodySpec(name=name, group=group, shape_kind=kind, size=size, at=tuple(at), axis=axis,
+    return BodySpec(density_gradient=gradient, name=name, group=group, shape_kind=kind, size=size, at=tuple(at), axis=axis,
                     rotate_axis=rotate_axis, rotate_angle=rotate_angle, density=density, material=material,
                     mass=mass, subtract=subtract, mesh=mesh, file=file, file_units=file_units,
                     scene_file=r.file)
@@ -452,6 +454,17 @@ def _read_matter(r: _Reader, t: dict, kind: str, where: str):
         if not mass.value > 0:
             r.fail(f"{where}.mass", "mass must be greater than zero (for a hole use subtract = true)")
     return density, material, mass
+
+
+def _read_gradient(r: _Reader, t: dict, kind: str, where: str):
+    """density_gradient = [gx, gy, gz] in units.density per units.length (kg/m^4 in SI), or None."""
+    if "density_gradient" not in t:
+        return None
+    key = f"{where}.density_gradient"
+    if kind == "point":
+        r.fail(key, "a point body has no volume, so no density to vary")
+    unit = f"({r.units['density']})/({r.units['length']})"
+    return tuple(parse_vector(t["density_gradient"], "density_gradient", unit, r.file, key))
 
 
 def _read_positions(r: _Reader, raw, groups) -> tuple[Position, ...]:

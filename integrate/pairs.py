@@ -117,7 +117,13 @@ def tolerance_scales(test_body, source_body, pivot) -> np.ndarray:
 
 def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10, tol=None) -> PairResult:
     """The exact interaction of two non-overlapping uniform bodies (see the module docstring).
-    `tol` (8,), absolute tolerances on [F, torque, K, E], overrides rtol times the pair's point scale."""
+    `tol` (8,), absolute tolerances on [F, torque, K, E], overrides rtol times the pair's point scale.
+    A body with a density gradient goes to `linear_density.gradient_pair` (uniform parts here, plus
+    the linear parts by volume quadrature)."""
+    if getattr(test_body, "gradient", None) is not None or getattr(source_body, "gradient", None) is not None:
+        from truepull.integrate.linear_density import gradient_pair
+
+        return gradient_pair(test_body, source_body, pivot, axis, G, rtol, order, tol)
     pivot = np.asarray(pivot, float)
     axis = np.asarray(axis, float) / np.linalg.norm(axis)
     tk, sk = test_body.shape.kind, source_body.shape.kind
