@@ -47,6 +47,26 @@ class BodySpec:
     file_units: str | None = None
     scene_file: str | None = None
     density_gradient: tuple[Measured, Measured, Measured] | None = None
+    expansion: Measured | None = None
+    temperature: Measured | None = None
+    reference_temperature: float = 20.0
+    fixed_point: tuple[float, float, float] = (0.0, 0.0, 0.0)
+
+    def thermal_scale(self) -> float:
+        """s = 1 + alpha (T - T_ref): every length of the body scales by s about `fixed_point`
+        (1 without a temperature or an expansion coefficient). alpha 1/K, temperatures degC."""
+        if self.expansion is None or self.temperature is None:
+            return 1.0
+        return 1.0 + self.expansion.value * (self.temperature.value - self.reference_temperature)
+
+    def expansion_coefficient(self) -> Measured | None:
+        """The body's `expansion`, else its material's (with the table's u), else None."""
+        if self.expansion is not None:
+            return self.expansion
+        if self.material is not None:
+            m = MATERIALS[material_key(self.material)]
+            return Measured(m.alpha, m.u_alpha)
+        return None
 
     def stated_density(self) -> Measured | None:
         """The density the scene states (directly or by material), without the hole sign; None if mass is given."""
@@ -211,10 +231,26 @@ def build_shape(spec: BodySpec):
     return shape_from_size(spec.shape_kind, {k: v.value for k, v in spec.size.items()})
 
 
+def _scaled_shape(shape, s: float):
+    """The shape with every length times s."""
+    if s == 1.0 or isinstance(shape, Point):
+        return shape
+    if isinstance(shape, MeshShape):
+        return MeshShape(np.asarray(shape.vertices, float) * s, shape.faces, shape.file, shape.inverted)
+    return shape_from_size(shape.kind, {k: v * s for k, v in shape.size_params().items()})
+
+
 def build_body(spec: BodySpec) -> Body:
-    """Build a Body from its spec: shape, placement and density (mass given -> density = mass/volume)."""
-    shape = build_shape(spec)
-    placement = Placement.from_scene(spec.at, spec.axis, spec.rotate_axis, spec.rotate_angle.value)
+    """Build a Body from its spec: shape, placement and density (mass given -> density = mass/volume).
+    At a temperature other than the reference, sizes and the reference point scale by
+    s = spec.thermal_scale() about spec.fixed_point, the mass fixed (density / s^3, gradient / s^4)."""
+    s = spec.thermal_scale()
+    shape = _scaled_shape(build_shape(spec), s)
+    at = spec.at
+    if s != 1.0:
+        p = np.asarray(spec.fixed_point, float)
+        at = tuple(p + s * (np.array([float(a.value) if hasattr(a, "value") else float(a) for a in at]) - p))
+    placement = Placement.from_scene(at, spec.axis, spec.rotate_axis, spec.rotate_angle.value)
     sign = -1.0 if spec.subtract else 1.0
     if spec.shape_kind == "point":
         if spec.mass is None:
@@ -223,14 +259,14 @@ def build_body(spec: BodySpec) -> Body:
     if spec.mass is not None:
         density = spec.mass.value / shape.volume()
     else:
-        density = spec.stated_density().value
+        density = spec.stated_density().value / s**3
     if spec.subtract:
         density = -abs(density)
     gradient = None
     if spec.density_gradient is not None and any(c.value != 0 for c in spec.density_gradient):
         # stated in scene (world) axes at the body's placement; kept in local axes, hole sign included
         gw = np.array([c.value for c in spec.density_gradient], float)
-        gradient = (-1.0 if spec.subtract else 1.0) * (placement.rotation.T @ gw)
+        gradient = (-1.0 if spec.subtract else 1.0) * (placement.rotation.T @ gw) / s**4
         gradient.setflags(write=False)
     return Body(spec.name, spec.group, shape, placement, float(density), spec, gradient=gradient)
 
@@ -255,6 +291,8 @@ def body_parameters(spec: BodySpec) -> dict[str, Measured]:
     if spec.density_gradient is not None:
         for c, m in zip("xyz", spec.density_gradient):
             out[f"density_gradient.{c}"] = m
+    if spec.temperature is not None and spec.expansion is not None:
+        out["expansion"] = spec.expansion
     return out
 
 
@@ -280,6 +318,8 @@ def spec_with(spec: BodySpec, param: str, value: float) -> BodySpec:
         old = list(spec.density_gradient or (Measured(0.0),) * 3)
         old[i] = Measured(value, old[i].u)
         return replace(spec, density_gradient=tuple(old))
+    if param == "expansion" and spec.expansion is not None:
+        return replace(spec, expansion=Measured(value, spec.expansion.u))
     if param == "mass" and spec.mass is not None:
         return replace(spec, mass=Measured(value, spec.mass.u))
     raise KeyError(f"body {spec.name} has no parameter '{param}' (has: {', '.join(body_parameters(spec))})")
