@@ -236,7 +236,8 @@ def _scaled_shape(shape, s: float):
     if s == 1.0 or isinstance(shape, Point):
         return shape
     if isinstance(shape, MeshShape):
-        return MeshShape(np.asarray(shape.vertices, float) * s, shape.faces, shape.file, shape.inverted)
+        coarse = None if shape.coarse is None else _scaled_shape(shape.coarse, s)
+        return MeshShape(np.asarray(shape.vertices, float) * s, shape.faces, shape.file, shape.inverted, coarse)
     return shape_from_size(shape.kind, {k: v * s for k, v in shape.size_params().items()})
 
 

@@ -120,6 +120,10 @@ def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10
     `tol` (8,), absolute tolerances on [F, torque, K, E], overrides rtol times the pair's point scale.
     A body with a density gradient goes to `linear_density.gradient_pair` (uniform parts here, plus
     the linear parts by volume quadrature)."""
+    if getattr(test_body.shape, "coarse", None) is not None or getattr(source_body.shape, "coarse", None) is not None:
+        from truepull.integrate.tessellation import tessellated_pair
+
+        return tessellated_pair(test_body, source_body, pivot, axis, G, rtol, order, tol)
     if getattr(test_body, "gradient", None) is not None or getattr(source_body, "gradient", None) is not None:
         from truepull.integrate.linear_density import gradient_pair
 
