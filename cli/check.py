@@ -33,6 +33,11 @@ def check_data(scene, overlaps: bool = True) -> dict:
             stated = "stated mass" if b.spec is not None and b.spec.mass is not None else "density times volume"
             notes.append(f"'{b.name}' has a density gradient: its {stated} ({b.uniform_mass:.6g} kg) is the mass of "
                          f"the uniform part; the mass, centre of mass and inertia shown include the linear part")
+    for b in scene.bodies:
+        spec = b.spec
+        if spec is not None and spec.temperature is not None and spec.expansion is None:
+            notes.append(f"'{b.name}' has no expansion coefficient (no material, no expansion key): it is not "
+                         f"scaled to the temperature {spec.temperature.value:g} degC")
     out = {"bodies": bodies, "groups": groups, "warnings": scene_warnings(scene, overlaps=overlaps)}
     if notes:
         out["notes"] = notes

@@ -91,3 +91,14 @@ def test_temperature_enters_the_budget_inputs():
                         material="tungsten") + MEASURED
     names = [r.name for r in uncertain_inputs(load_scene_text(text))]
     assert "conditions.temperature" in names and "body[bob].expansion" in names
+
+
+def test_check_notes_a_body_without_expansion(tmp_path, capsys):
+    from truepull.cli.main import main
+
+    text = SCENE.format(conditions='[conditions]\ntemperature = 25', alpha="1e-6 1/K", material="lead")
+    text = text.replace('expansion = "1e-6 1/K"\n', "")
+    path = tmp_path / "s.toml"
+    path.write_text(text)
+    assert main(["check", str(path)]) == 0
+    assert "'bob' has no expansion coefficient" in capsys.readouterr().out
