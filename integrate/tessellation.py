@@ -2,7 +2,9 @@
 and at a coarser chord tolerance (`meshes.STEP_TOLERANCES`); the finer is the value, the change
 between the two is added to its error estimate (the polyhedron is exact for the polyhedron, not for
 the curved part). The error of a chord tessellation falls in proportion to the chord tolerance (the
-sagitta R theta^2 / 8), so the change overstates the finer one's error about 4 / 3 times over.
+sagitta R theta^2 / 8): with tolerances 4 apart the coarse error is about 4 times the fine one, so
+the change is about 3 times the fine error (a safe estimate; the README figure shows 1.35e-9 m^3
+change against a fine-volume deficit of 4.6e-10 m^3, the coarse one 1.81e-9).
 """
 
 from __future__ import annotations
