@@ -61,6 +61,23 @@ def _step_mesh(path, tolerance: float, where, key):
         raise InputError(where, key, f"cannot read '{Path(path).name}' as a STEP solid ({msg})") from None
 
 
+def _measured_hull(path, where, key):
+    """A measured surface: a CSV of surface points (header row with columns x, y, z, in the file's
+    units, e.g. from a coordinate-measuring machine) closed as the convex polyhedron through them.
+    Meant for convex parts (spheres, cylinders); a concave part's hollows would be bridged."""
+    import trimesh
+
+    try:
+        data = np.genfromtxt(path, delimiter=",", names=True, dtype=float, encoding="utf-8")
+        pts = np.stack([np.atleast_1d(data[c]) for c in ("x", "y", "z")], axis=1)
+    except Exception:
+        raise InputError(where, key, f"'{Path(path).name}': expected a CSV of surface points with a header row "
+                                     "naming columns x, y, z") from None
+    if len(pts) < 4 or not np.all(np.isfinite(pts)):
+        raise InputError(where, key, f"'{Path(path).name}': needs four or more finite surface points")
+    return trimesh.convex.convex_hull(pts)
+
+
 def _read_trimesh(path, file=None, key=None, tolerance=None):
     """Load a file as one trimesh.Trimesh (scene files are concatenated), refusing what is not a mesh.
     A STEP file is tessellated at the relative chord `tolerance` (default the finer STEP_TOLERANCES)."""
@@ -77,6 +94,8 @@ def _read_trimesh(path, file=None, key=None, tolerance=None):
             warnings.simplefilter("ignore")
             if is_step(path):
                 mesh = _step_mesh(path, tolerance or STEP_TOLERANCES[-1], where, key)
+            elif path.suffix.lower() == ".csv":
+                mesh = _measured_hull(path, where, key)
             else:
                 mesh = trimesh.load(str(path), force="mesh", process=False)
     except InputError:
