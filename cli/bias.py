@@ -21,7 +21,7 @@ from truepull.cli.options import show_progress
 from truepull.cli.output import fmt, format_table, print_json, save_figure_atomic
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
-from truepull.integrate.balance.sensitivity import (default_position, flatten_what_if, offset_what_if,
+from truepull.integrate.balance.sensitivity import (default_position, flatten_what_if, gradient_what_if, offset_what_if,
                                             sensitivities, void_what_if)
 
 HELP = "sensitivity of torque and G to each body's placement, size and density"
@@ -44,6 +44,9 @@ def add_arguments(parser) -> None:
     parser.add_argument("--void", action="append", default=[], metavar="BODY:radius:dx,dy,dz",
                         help="what if BODY had a spherical void of that radius at that offset, in the scene's "
                              "length unit or with units, e.g. 'bob:1 mm:0.5,0,0 mm'")
+    parser.add_argument("--gradient", action="append", default=[], metavar="GROUP:REL",
+                        help="what if each body of GROUP had a density gradient along z of REL of its density "
+                             "across its bounding diameter (e.g. attractor:1e-4)")
     parser.add_argument("--full-reduction", action="store_true",
                         help="what-ifs: reduce G in full before and after (slower) instead of the first-order "
                              "model")
@@ -101,6 +104,12 @@ def parse_what_ifs(scene, args) -> list[tuple]:
         radius = length(parts[1], scene, "--void")
         offset = length_vector(parts[2], scene, "--void")
         out.append(("void", _body_name(scene, parts[0], "--void"), (radius, offset)))
+    for text in args.gradient:
+        group, sep, rest = text.rpartition(":")
+        if not sep or group not in scene.groups():
+            raise InputError(scene.path, "--gradient", f"expected GROUP:REL with a group of the scene "
+                                                      f"({', '.join(scene.groups())}), got '{text}'")
+        out.append(("gradient", group, (_numbers(rest, 1, "--gradient", scene.path)[0],)))
     return out
 
 
@@ -110,6 +119,8 @@ def run_what_if(scene, item, **kw):
         return offset_what_if(scene, name, a[0], **kw)
     if kind == "flatten":
         return flatten_what_if(scene, name, a[0], a[1], **kw)
+    if kind == "gradient":
+        return gradient_what_if(scene, name, a[0], **kw)
     return void_what_if(scene, name, a[0], a[1], **kw)
 
 

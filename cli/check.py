@@ -11,7 +11,9 @@ HELP = "load and validate a scene; bodies, mass properties, group totals, warnin
 
 
 def add_arguments(parser) -> None:
-    add_scene(parser)
+    parser.add_argument("scene", metavar="SCENE", nargs="?", help="scene file (TOML)")
+    parser.add_argument("--materials", action="store_true",
+                        help="list the material table (density, expansion coefficient, sources) and stop")
     parser.add_argument("--no-overlaps", action="store_true",
                         help="skip the search for overlapping and touching bodies (faster)")
 
@@ -93,6 +95,8 @@ def render(scene, data: dict) -> str:
     lines.append("")
     lines.extend(stated_lines(scene, None))
     lines.append("")
+    for note in data.get("notes", []):
+        lines.append(f"note: {note}")
     if data["warnings"]:
         lines.append(f"warnings ({len(data['warnings'])}):")
         lines.extend(f"  - {w}" for w in data["warnings"])
@@ -101,9 +105,33 @@ def render(scene, data: dict) -> str:
     return "\n".join(lines)
 
 
+def render_materials(rows) -> str:
+    """The material table as text: density kg/m^3, expansion 1e-6/K with its u, and the sources."""
+    from truepull.geometry.materials import REFERENCE_TEMPERATURE
+
+    table = [[r["name"], fmt(r["density"]), f"{r['expansion'] * 1e6:.3g} +- {r['u_expansion'] * 1e6:.2g}",
+              ", ".join(r["aliases"]) or "-", r["density_source"] + "; " + r["expansion_source"]] for r in rows]
+    head = f"materials at {REFERENCE_TEMPERATURE:g} degC ({len(rows)}):"
+    return head + "\n" + format_table(["material", "density kg/m^3", "expansion 1e-6/K", "also", "sources"],
+                                      table, align="lrrll")
+
+
 def run(args) -> int:
     from truepull.api import check, load_scene
 
+    if args.materials:
+        from truepull.geometry.materials import material_rows
+
+        rows = material_rows()
+        if args.json:
+            print_json({"materials": rows})
+        else:
+            print(render_materials(rows))
+        return 0
+    if args.scene is None:
+        from truepull.geometry.errors import InputError
+
+        raise InputError(None, "SCENE", "check needs a scene file (or --materials)")
     scene = load_scene(args.scene)
     data = check(scene, overlaps=not args.no_overlaps).to_json()
     if args.json:

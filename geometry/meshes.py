@@ -27,8 +27,60 @@ from truepull.geometry.quantities import LIMITS, si_factor
 from truepull.geometry.shapes import MeshShape
 
 
-def _read_trimesh(path, file=None, key=None):
-    """Load a file as one trimesh.Trimesh (scene files are concatenated), refusing what is not a mesh."""
+STEP_SUFFIXES = (".step", ".stp")
+STEP_TOLERANCES = (1.6e-5, 4e-6)
+"""Chord (linear deflection) tolerances of a STEP part's tessellation, relative to each edge's length:
+the part is tessellated at both, the finer is the body, the change between them its tessellation
+error. A circle of radius R cut into chords of angle theta deviates by the sagitta R theta^2 / 8, so
+the volume (and field) error of a tessellated curved surface is proportional to the chord tolerance:
+the coarser one's error is about 4 times the finer one's. The GLB interchange (cascadio) stores
+float32 vertices, so no tessellation is better than about 1e-7 of the part's size."""
+
+
+def is_step(path) -> bool:
+    return Path(path).suffix.lower() in STEP_SUFFIXES
+
+
+def _step_mesh(path, tolerance: float, where, key):
+    """A STEP file tessellated by OpenCASCADE (cascadio) at the relative chord `tolerance`, in metres."""
+    import io
+
+    import trimesh
+
+    try:
+        import cascadio
+    except ImportError:
+        raise InputError(where, key, f"reading STEP ('{Path(path).name}') needs the optional CAD extra: "
+                                     "pip install truepull[cad]") from None
+    try:
+        glb = cascadio.load(Path(path).read_bytes(), file_type="step", tol_linear=tolerance, tol_angular=0.5,
+                            tol_relative=True)
+        return trimesh.load(io.BytesIO(glb), file_type="glb", force="mesh", process=False)
+    except Exception as exc:
+        msg = " ".join(str(exc).split())[:200] or type(exc).__name__
+        raise InputError(where, key, f"cannot read '{Path(path).name}' as a STEP solid ({msg})") from None
+
+
+def _measured_hull(path, where, key):
+    """A measured surface: a CSV of surface points (header row with columns x, y, z, in the file's
+    units, e.g. from a coordinate-measuring machine) closed as the convex polyhedron through them.
+    Meant for convex parts (spheres, cylinders); a concave part's hollows would be bridged."""
+    import trimesh
+
+    try:
+        data = np.genfromtxt(path, delimiter=",", names=True, dtype=float, encoding="utf-8")
+        pts = np.stack([np.atleast_1d(data[c]) for c in ("x", "y", "z")], axis=1)
+    except Exception:
+        raise InputError(where, key, f"'{Path(path).name}': expected a CSV of surface points with a header row "
+                                     "naming columns x, y, z") from None
+    if len(pts) < 4 or not np.all(np.isfinite(pts)):
+        raise InputError(where, key, f"'{Path(path).name}': needs four or more finite surface points")
+    return trimesh.convex.convex_hull(pts)
+
+
+def _read_trimesh(path, file=None, key=None, tolerance=None):
+    """Load a file as one trimesh.Trimesh (scene files are concatenated), refusing what is not a mesh.
+    A STEP file is tessellated at the relative chord `tolerance` (default the finer STEP_TOLERANCES)."""
     import trimesh
 
     path = Path(path)
@@ -40,7 +92,14 @@ def _read_trimesh(path, file=None, key=None):
     try:
         with warnings.catch_warnings(), np.errstate(all="ignore"):
             warnings.simplefilter("ignore")
-            mesh = trimesh.load(str(path), force="mesh", process=False)
+            if is_step(path):
+                mesh = _step_mesh(path, tolerance or STEP_TOLERANCES[-1], where, key)
+            elif path.suffix.lower() == ".csv":
+                mesh = _measured_hull(path, where, key)
+            else:
+                mesh = trimesh.load(str(path), force="mesh", process=False)
+    except InputError:
+        raise
     except Exception as exc:  # trimesh raises many types for unreadable files
         msg = " ".join(str(exc).split())[:200] or type(exc).__name__
         raise InputError(where, key, f"cannot read '{path.name}' as a mesh ({msg})") from None
@@ -97,12 +156,18 @@ def _check_shells(mesh, name, where, key):
                                      "(it would count as negative mass); fix its face orientation")
 
 
-def load_mesh(path, file_units: str = "m", file=None, key=None) -> MeshShape:
+def load_mesh(path, file_units: str = "m", file=None, key=None, tolerance=None) -> MeshShape:
     """Load a closed mesh from `path` with coordinates in `file_units` (a length unit) as a MeshShape
-    in metres. `file`/`key` name the scene file and key for error messages."""
-    factor = si_factor(file_units, "length", file, key)
+    in metres. `file`/`key` name the scene file and key for error messages. A STEP file carries its
+    own units (file_units is ignored) and is tessellated at each of STEP_TOLERANCES: the finest is the
+    shape, the one before it its `coarse` (for the tessellation error)."""
+    if is_step(path) and tolerance is None:
+        coarse = load_mesh(path, "m", file, key, STEP_TOLERANCES[0])
+        fine = load_mesh(path, "m", file, key, STEP_TOLERANCES[-1])
+        return MeshShape(fine.vertices, fine.faces, fine.file, fine.inverted, coarse)
+    factor = 1.0 if is_step(path) else si_factor(file_units, "length", file, key)
     where = file if file is not None else str(path)
-    mesh = _read_trimesh(path, file, key)
+    mesh = _read_trimesh(path, file, key, tolerance)
     name = Path(path).name
     if not mesh.is_watertight:
         f = np.asarray(mesh.faces)
@@ -144,7 +209,7 @@ def mesh_report(path, units: str = "m") -> dict:
     and (when closed) volume, centroid and inertia about the centroid for density 1, all in SI
     after scaling from `units`. Raises InputError if the file is missing or not a mesh, and for a
     closed part out of the length range or with overlapping shells (its mass properties would be wrong)."""
-    factor = si_factor(units, "length", str(path), "units")
+    factor = 1.0 if is_step(path) else si_factor(units, "length", str(path), "units")
     mesh = _read_trimesh(path)
     v = np.asarray(mesh.vertices, dtype=float) * factor
     report = {
@@ -162,6 +227,15 @@ def mesh_report(path, units: str = "m") -> dict:
         "inertia": None,
         "notes": [],
     }
+    if is_step(path):
+        coarse = _read_trimesh(path, tolerance=STEP_TOLERANCES[0])
+        vf, vc = abs(float(mesh.volume)), abs(float(coarse.volume))
+        report["units"] = "m"
+        report["tessellation"] = {"chord_tolerances": list(STEP_TOLERANCES), "volumes": [vc, vf],
+                                  "change": vf - vc}
+        report["notes"].append(f"STEP tessellated at relative chord tolerances {STEP_TOLERANCES[0]:g} and "
+                               f"{STEP_TOLERANCES[1]:g}: volume {vc:.9g} -> {vf:.9g} m^3 (change {vf - vc:.3g}, "
+                               "the tessellation error); lengths in metres from the file's own units")
     if report["watertight"] and report["winding_consistent"]:
         name = Path(path).name
         _check_extent(v, name, str(path), None)

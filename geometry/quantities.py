@@ -31,6 +31,8 @@ KINDS = {
     "torque": ("N*m", "[mass] * [length] ** 2 / [time] ** 2"),
     "voltage": ("V", "[mass] * [length] ** 2 / [time] ** 3 / [current]"),
     "torque_per_volt2": ("N*m/V^2", "[time] ** 4 * [current] ** 2 / [mass] / [length] ** 2"),
+    "density_gradient": ("kg/m^4", "[mass] / [length] ** 4"),
+    "expansion": ("1/K", "1 / [temperature]"),
 }
 
 _MANTISSA = r"[-+]?(?:\d+\.?\d*|\.\d+)"
@@ -73,10 +75,13 @@ LIMITS = {
     "torque": (1e10, 1e-40),
     "voltage": (1e7, 1e-12),
     "torque_per_volt2": (1e6, 1e-40),
+    "density_gradient": (1e21, 1e-30),
+    "expansion": (1e-2, 1e-30),
 }
 _SI_NAMES = {"length": "m", "mass": "kg", "density": "kg/m^3", "angle": "rad", "time": "s",
              "angular_rate": "rad/s", "dimensionless": "", "gravitational_constant": "m^3/(kg s^2)",
-             "angular_acceleration": "rad/s^2", "torque": "N m", "voltage": "V", "torque_per_volt2": "N m/V^2"}
+             "angular_acceleration": "rad/s^2", "torque": "N m", "voltage": "V", "torque_per_volt2": "N m/V^2",
+             "density_gradient": "kg/m^4", "expansion": "1/K"}
 
 # pint's names of true angle units (after alias resolution); any prefixed radian (mrad, urad) too
 ANGLE_UNITS = ("radian", "degree", "arcminute", "arcsecond", "turn", "grade")

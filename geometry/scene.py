@@ -44,7 +44,8 @@ METHODS = ("deflection", "swing", "acceleration", "servo")
 # in one period, so no period or equilibrium could have been read from such a swing
 MAX_DECREMENT = 10.0
 
-TOP_KEYS = ("scene", "units", "frame", "body", "position", "measurement")
+TOP_KEYS = ("scene", "units", "frame", "conditions", "body", "position", "measurement")
+CONDITIONS_KEYS = ("temperature", "reference_temperature", "fixed_point")
 SCENE_KEYS = ("title", "G")
 FRAME_KEYS = ("pivot", "axis")
 POSITION_KEYS = ("name", "group", "turn", "shift")
@@ -55,7 +56,8 @@ METHOD_KEYS = {"deflection": MEASUREMENT_KEYS, "swing": MEASUREMENT_KEYS,
                "servo": ("method", "torque", "voltage", "torque_per_volt2")}
 # the largest harmonic of the turn an acceleration measurement may name
 MAX_HARMONIC = 64
-BODY_COMMON_KEYS = ("name", "group", "shape", "at", "axis", "rotate", "density", "material", "mass", "subtract")
+BODY_COMMON_KEYS = ("name", "group", "shape", "at", "axis", "rotate", "density", "material", "mass", "subtract",
+                    "density_gradient", "expansion")
 ROTATE_KEYS = ("axis", "angle")
 # shape -> {scene key: required?}; box `size` and ellipsoid `radii` are 3-vectors
 SHAPE_KEYS: dict[str, dict[str, bool]] = {
@@ -238,7 +240,8 @@ class _Reader:
         self.units = dict(DEFAULT_UNITS)
         self.fixed_units = {"gravitational_constant": "m^3/(kg*s^2)", "dimensionless": "",
                             "angular_acceleration": "rad/s^2", "torque": "N*m", "voltage": "V",
-                            "torque_per_volt2": "N*m/V^2"}
+                            "torque_per_volt2": "N*m/V^2", "expansion": "1/K"}
+        self.conditions = {"temperature": None, "reference_temperature": 20.0, "fixed_point": (0.0, 0.0, 0.0)}
 
     def fail(self, key, reason):
         raise InputError(self.file, key, reason)
@@ -311,6 +314,7 @@ def load_scene_text(text: str, path_for_messages: str = "-", base_dir: str | Non
     _read_units(r, data.get("units", {}))
     title, G = _read_scene_section(r, data.get("scene", {}))
     frame = _read_frame(r, data.get("frame", {}))
+    r.conditions = _read_conditions(r, data.get("conditions", {}), frame)
 
     raw_bodies = data.get("body")
     if raw_bodies is None:
@@ -411,8 +415,10 @@ def _read_body(r: _Reader, raw, index: int) -> BodySpec:
 
     size, mesh, file, file_units = _read_size(r, t, kind, where)
     density, material, mass = _read_matter(r, t, kind, where)
+    gradient = _read_gradient(r, t, kind, where)
+    thermal = _read_thermal(r, t, material, where)
 
-    return BodySpec(name=name, group=group, shape_kind=kind, size=size, at=tuple(at), axis=axis,
+    return BodySpec(density_gradient=gradient, **thermal, name=name, group=group, shape_kind=kind, size=size, at=tuple(at), axis=axis,
                     rotate_axis=rotate_axis, rotate_angle=rotate_angle, density=density, material=material,
                     mass=mass, subtract=subtract, mesh=mesh, file=file, file_units=file_units,
                     scene_file=r.file)
@@ -493,6 +499,69 @@ def _read_matter(r: _Reader, t: dict, kind: str, where: str):
         if not mass.value > 0:
             r.fail(f"{where}.mass", "mass must be greater than zero (for a hole use subtract = true)")
     return density, material, mass
+
+
+def _read_gradient(r: _Reader, t: dict, kind: str, where: str):
+    """density_gradient = [gx, gy, gz] in units.density per units.length (kg/m^4 in SI), or None."""
+    if "density_gradient" not in t:
+        return None
+    key = f"{where}.density_gradient"
+    if kind == "point":
+        r.fail(key, "a point body has no volume, so no density to vary")
+    unit = f"({r.units['density']})/({r.units['length']})"
+    return tuple(parse_vector(t["density_gradient"], "density_gradient", unit, r.file, key))
+
+
+def read_temperature(raw, file, key) -> Measured:
+    """A temperature in degC: a number, or "21.3 +- 0.1 degC" (also "K", converted; u unchanged)."""
+    from truepull.geometry.quantities import _read_text
+
+    if isinstance(raw, bool) or not isinstance(raw, (int, float, str)):
+        raise InputError(file, key, "expected a temperature such as \"21.3 +- 0.1 degC\"")
+    if isinstance(raw, str):
+        value, u, unit = _read_text(raw, file, key)
+    else:
+        value, u, unit = float(raw), None, ""
+    unit = unit.strip()
+    if unit in ("K", "kelvin"):
+        value -= 273.15
+    elif unit not in ("", "degC", "°C", "C", "celsius"):
+        raise InputError(file, key, f"unknown temperature unit '{unit}' (use degC or K)")
+    if not (math.isfinite(value) and -273.15 <= value <= 1e4) or (u is not None and not (0 <= u < 1e4)):
+        raise InputError(file, key, f"not a usable temperature: {raw!r}")
+    return Measured(value, u)
+
+
+def _read_conditions(r: _Reader, raw, frame) -> dict:
+    """[conditions]: temperature (degC, +- allowed), reference_temperature (degC, default 20: the
+    temperature the scene's sizes and the material table refer to), fixed_point (units.length; the
+    point that stays put as parts expand; default the frame's pivot)."""
+    t = r.table(raw, "conditions")
+    r.check_keys(t, CONDITIONS_KEYS, "conditions", "[conditions]")
+    out = {"temperature": None, "reference_temperature": 20.0, "fixed_point": tuple(float(c) for c in frame.pivot)}
+    if "temperature" in t:
+        out["temperature"] = read_temperature(t["temperature"], r.file, "conditions.temperature")
+    if "reference_temperature" in t:
+        out["reference_temperature"] = read_temperature(t["reference_temperature"], r.file,
+                                                        "conditions.reference_temperature").value
+    if "fixed_point" in t:
+        out["fixed_point"] = tuple(c.value for c in r.vector(t["fixed_point"], "length", "conditions.fixed_point"))
+    return out
+
+
+def _read_thermal(r: _Reader, t: dict, material, where: str) -> dict:
+    """The body's expansion coefficient (its `expansion`, else its material's) and the conditions."""
+    c = r.conditions
+    expansion = None
+    if "expansion" in t:
+        expansion = r.scalar(t["expansion"], "expansion", f"{where}.expansion")
+    elif material is not None:
+        from truepull.geometry.materials import MATERIALS
+
+        m = MATERIALS[material]
+        expansion = Measured(m.alpha, m.u_alpha)
+    return {"expansion": expansion, "temperature": c["temperature"],
+            "reference_temperature": c["reference_temperature"], "fixed_point": c["fixed_point"]}
 
 
 def _read_positions(r: _Reader, raw, groups) -> tuple[Position, ...]:

@@ -313,12 +313,15 @@ class MeshShape(_ShapeBase):
     """A closed, outward-wound triangle mesh: `vertices` (V, 3) in metres in the local frame (the
     file's origin), `faces` (F, 3) vertex indices; `file` is where it came from. Arrays are stored
     read-only; equality and hashing are by identity. Mass properties from trimesh (density 1).
-    `inverted` records that the file was wound inside-out and its faces were reversed on loading."""
+    `inverted` records that the file was wound inside-out and its faces were reversed on loading.
+    `coarse`: for a tessellated CAD surface, the same part tessellated at a coarser chord tolerance
+    (the engine reports the change as the tessellation error), else None."""
 
     vertices: np.ndarray
     faces: np.ndarray
     file: str = ""
     inverted: bool = False
+    coarse: object = None
     _props: dict = field(default_factory=dict, init=False, repr=False, compare=False)
     kind: ClassVar[str] = "mesh"
 

@@ -162,7 +162,7 @@ def group_field_at_points(bodies, points, G, rtol=1e-9, gradient=True, source="g
     """U, g and (if `gradient`) T of `bodies` (placed Body objects) at world `points` (N, 3) m."""
     points = _as_points(points)
     n = len(points)
-    srcs = _source_fields(bodies, G)
+    srcs = _source_fields([b.uniform_part() for b in bodies], G)
     U = np.zeros(n)
     g = np.zeros((n, 3))
     T = np.zeros((n, 3, 3))
@@ -204,6 +204,13 @@ def group_field_at_points(bodies, points, G, rtol=1e-9, gradient=True, source="g
         T_d, eT_d = _differenced_gradient(differenced, points, rtol)
         T += T_d
         eT += eT_d
+    for b in bodies:
+        if b.has_gradient:  # the linear density part, by volume quadrature (outside the body)
+            from truepull.integrate.linear_density import linear_field
+
+            parts = linear_field(b, points, G, rtol)
+            U, g, T = U + parts[0], g + parts[1], T + parts[2]
+            eU, eg, eT = eU + parts[3], eg + parts[4], eT + parts[5]
     if not gradient:
         T = np.full((n, 3, 3), np.nan)
         eT = np.full(n, np.nan)

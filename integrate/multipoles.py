@@ -542,6 +542,8 @@ def interaction_series(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, de
     is under rtol * torque_scale (N m; default the point-model size G M_p M_a a / b^2), and the outer
     moments are converged so that their share of the torque error is under the same target."""
     frame = ExpansionFrame.of(pivot, axis)
+    if any(getattr(b, "gradient", None) is not None for b in (*test_bodies, *source_bodies)):
+        raise MultipoleRefused("a body has a density gradient (its moments are not formed here)")
     sep = regions(test_bodies, source_bodies, frame.pivot, frame.rotation[:, 2])
     if not sep.ok:
         raise MultipoleRefused(sep.reason)

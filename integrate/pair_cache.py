@@ -25,7 +25,8 @@ def body_key(body) -> tuple:
         geom = (shape.kind, tuple(sorted(shape.size_params().items())))
     pl = body.placement
     return (geom, np.asarray(pl.rotation, float).tobytes(), np.asarray(pl.translation, float).tobytes(),
-            float(body.density), float(getattr(body, "point_mass", 0.0)))
+            float(body.density), float(getattr(body, "point_mass", 0.0)),
+            None if getattr(body, "gradient", None) is None else np.asarray(body.gradient, float).tobytes())
 
 
 def pair_key(test_body, source_body, *args) -> tuple:

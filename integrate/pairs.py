@@ -120,7 +120,17 @@ def tolerance_scales(test_body, source_body, pivot) -> np.ndarray:
 def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10, tol=None) -> PairResult:
     """The exact interaction of two non-overlapping uniform bodies (see the module docstring).
     `tol` (8,), absolute tolerances on [F, torque, K, E], overrides rtol times the pair's point scale.
-    Its kernels run on one thread while the machine's cores are busy (`threads`)."""
+    Its kernels run on one thread while the machine's cores are busy (`threads`). A body with a
+    density gradient goes to `linear_density.gradient_pair` (uniform parts here, plus the linear
+    parts by volume quadrature); a tessellated CAD part to `tessellation.tessellated_pair`."""
+    if getattr(test_body.shape, "coarse", None) is not None or getattr(source_body.shape, "coarse", None) is not None:
+        from truepull.integrate.tessellation import tessellated_pair
+
+        return tessellated_pair(test_body, source_body, pivot, axis, G, rtol, order, tol)
+    if getattr(test_body, "gradient", None) is not None or getattr(source_body, "gradient", None) is not None:
+        from truepull.integrate.linear_density import gradient_pair
+
+        return gradient_pair(test_body, source_body, pivot, axis, G, rtol, order, tol)
     with kernel_threads(PARALLEL_MIN_WORK):
         return _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol)
 

@@ -169,7 +169,21 @@ def check(scene, overlaps: bool = True) -> CheckResult:
                "com": b.com, "inertia_com": b.inertia_com} for b in scene.bodies]
     groups = {name: {"mass": t.mass, "com": t.com, "inertia_axis": t.inertia_axis}
               for name, t in all_group_totals(scene).items()}
-    return CheckResult(scene, bodies, groups, scene_warnings(scene, overlaps=overlaps), stated_uncertainties(scene))
+    notes = []
+    for b, d in zip(scene.bodies, bodies):
+        if b.has_gradient:
+            d["uniform_mass"] = b.uniform_mass
+            d["density_gradient"] = (b.placement.rotation @ b.gradient).tolist()
+            stated = "stated mass" if b.spec is not None and b.spec.mass is not None else "density times volume"
+            notes.append(f"'{b.name}' has a density gradient: its {stated} ({b.uniform_mass:.6g} kg) is the mass of "
+                         f"the uniform part; the mass, centre of mass and inertia shown include the linear part")
+    for b in scene.bodies:
+        spec = b.spec
+        if spec is not None and spec.temperature is not None and spec.expansion is None:
+            notes.append(f"'{b.name}' has no expansion coefficient (no material, no expansion key): it is not "
+                         f"scaled to the temperature {spec.temperature.value:g} degC")
+    return CheckResult(scene, bodies, groups, scene_warnings(scene, overlaps=overlaps), stated_uncertainties(scene),
+                       notes)
 
 
 def compare(scene, test: str = "pendulum", source: str = "attractor", position: str | None = None,

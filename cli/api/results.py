@@ -41,6 +41,8 @@ class CheckResult:
         Overlaps, touching bodies, implausible densities, mesh scales.
     stated : list of truepull.geometry.stated.Stated
         Every value stated with a standard uncertainty (`+-`), as read, in SI.
+    notes : list of str
+        What the numbers include (a density gradient's uniform mass, a body not scaled to temperature).
     """
 
     scene: object
@@ -48,11 +50,15 @@ class CheckResult:
     groups: dict
     warnings: list
     stated: list
+    notes: list = field(default_factory=list)
 
     def to_json(self) -> dict:
-        """The `check --json` object."""
-        return to_jsonable({"bodies": self.bodies, "groups": self.groups, "warnings": self.warnings,
-                            "stated": [s.to_json() for s in self.stated]})
+        """The `check --json` object (`notes` only where there are notes)."""
+        out = {"bodies": self.bodies, "groups": self.groups, "warnings": self.warnings,
+               "stated": [s.to_json() for s in self.stated]}
+        if self.notes:
+            out["notes"] = self.notes
+        return to_jsonable(out)
 
     def table(self) -> list[dict]:
         """One dict per body: name, group, shape, mass, volume, com_x, com_y, com_z (SI)."""

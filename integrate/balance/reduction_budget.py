@@ -65,7 +65,8 @@ MEASURED_UNITS = {"angle": "rad", "period": "s", "amplitude": "rad", "accelerati
 # methods whose model is their own module's geometry_terms and g_from_terms
 OWN_MODEL_METHODS = ("acceleration", "servo")
 
-_UNITS = {"at": "m", "density": "kg/m^3", "mass": "kg", "rotate": "rad", "turn": "rad", "shift": "m"}
+_UNITS = {"at": "m", "density": "kg/m^3", "mass": "kg", "rotate": "rad", "turn": "rad", "shift": "m",
+          "density_gradient": "kg/m^4", "expansion": "1/K"}
 
 
 @dataclass(frozen=True)
@@ -97,6 +98,11 @@ def uncertain_inputs(scene, test: str = "pendulum", source: str = "attractor",
         if spec.rotate_axis is not None and spec.rotate_angle.u:
             refs.append(InputRef(f"body[{body.name}].rotate.angle", "rotate", body.name, "angle",
                                  spec.rotate_angle.value, spec.rotate_angle.u, "rad"))
+    thermal = [b.spec for b in scene.bodies if b.spec is not None and b.spec.temperature is not None
+               and b.spec.expansion is not None]
+    if thermal and thermal[0].temperature.u:  # one temperature for every part: a single input
+        T = thermal[0].temperature
+        refs.append(InputRef("conditions.temperature", "conditions", "", "temperature", T.value, T.u, "degC"))
     for c, u, value in zip("xyz", scene.frame.pivot_u, scene.frame.pivot):
         if u:
             refs.append(InputRef(f"frame.pivot.{c}", "frame", "", c, float(value), float(u), "m"))
@@ -138,6 +144,11 @@ def apply_inputs(scene, refs, x) -> tuple[object, dict[str, float]]:
         elif ref.kind == "body":
             spec = specs.get(ref.target, scene.body(ref.target).spec)
             specs[ref.target] = spec_with(spec, ref.param, value)
+        elif ref.kind == "conditions":  # the temperature of every part
+            for b in scene.bodies:
+                spec = specs.get(b.name, b.spec)
+                if spec is not None and spec.temperature is not None:
+                    specs[b.name] = replace(spec, temperature=Measured(value, spec.temperature.u))
         elif ref.kind == "rotate":
             spec = specs.get(ref.target, scene.body(ref.target).spec)
             specs[ref.target] = replace(spec, rotate_angle=Measured(value, spec.rotate_angle.u))

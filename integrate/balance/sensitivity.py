@@ -624,3 +624,20 @@ def void_what_if(scene, name, radius, offset, **kw) -> WhatIfResult:
     off = np.asarray(offset, float)
     desc = f"void of radius {radius:.6g} m in '{name}' at offset ({', '.join(f'{x:.6g}' for x in off)}) m"
     return what_if(scene, "void", name, new, desc, **kw)
+
+
+def gradient_what_if(scene, group: str, relative: float, **kw) -> WhatIfResult:
+    """Every body of `group` (not points) given a density gradient along the scene z axis of
+    `relative` times its density per its bounding diameter (so its density changes by about
+    `relative` of itself from bottom to top), on top of any gradient it has."""
+    from dataclasses import replace
+
+    bodies = []
+    for b in scene.bodies:
+        if b.group == group and b.shape.kind != "point":
+            gz = float(relative) * abs(b.density) / (2.0 * b.bounding_sphere()[1])
+            extra = b.placement.rotation.T @ np.array([0.0, 0.0, gz]) * (-1.0 if b.is_hole else 1.0)
+            b = replace(b, gradient=extra if b.gradient is None else b.gradient + extra)
+        bodies.append(b)
+    desc = f"a {relative:g} relative density gradient along z in each {group} body"
+    return what_if(scene, "gradient", group, scene.with_bodies(bodies), desc, **kw)
