@@ -100,7 +100,7 @@ def test_bias_offsets_with_units_equal_the_same_offset_in_scene_units():
     from truepull.cli.bias import parse_what_ifs
 
     scene = load_scene_text(SCENE_MM, "s.toml")
-    ns = argparse.Namespace(offset=["bob:0.1,0,0", "bob:100,0,0 um"], flatten=[], void=["bob:1 mm:0.5,0,0"])
+    ns = argparse.Namespace(offset=["bob:0.1,0,0", "bob:100,0,0 um"], flatten=[], void=["bob:1 mm:0.5,0,0"], gradient=[])
     items = parse_what_ifs(scene, ns)
     assert items[0][2][0] == pytest.approx(items[1][2][0], rel=1e-15)
     assert items[2][2] == (pytest.approx(1e-3), pytest.approx([5e-4, 0, 0]))
