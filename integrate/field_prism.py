@@ -16,7 +16,9 @@ How the closed form is evaluated so that it stays accurate:
   a 50-digit mpmath evaluation, about 1e-14 for a cube out to 8 half-diagonals, 1e-13..1e-12 for
   100:1 plates and rods near the prism, 1e-11 for a 2e4:1 slab; the terms of the corner sums are
   about (distance / size)^2 times larger than their sum. So once a point is more than 1.5 largest
-  half-sizes away and a tensor Gauss-Legendre rule of at most _MAX_POINTS nodes has a proven
+  half-sizes away and a tensor Gauss-Legendre rule of at most _MAX_POINTS nodes (_MAX_POINTS_FEW
+  for calls with at most _FEW points, as the one-point pairs make; field, gradient and their bounds
+  follow the same rule for the same points) has a proven
   truncation bound below 10^-_DIGITS of the field's scale there (the integrand is analytic in
   Bernstein ellipses clear of its singularities, whose size grows with distance / half-size:
   `_axis_truncation`), the defining volume integral is summed by that rule instead: a sum of
@@ -35,7 +37,14 @@ from truepull.geometry.errors import InputError
 
 _DIGITS = 15.0              # far-field quadrature: truncation bound below 10^-_DIGITS of the scale
 _MAX_ORDER = 32
-_MAX_POINTS = 2048
+_MAX_POINTS = 512           # nodes of the far-field rule, calls with many points (speed)
+_MAX_POINTS_FEW = 2048      # ... calls with at most _FEW points (one-point pairs: accuracy)
+_FEW = 16
+
+
+def _max_points(n_points):
+    """Largest far-field rule for a call with n_points points (the same for field, gradient and bounds)."""
+    return _MAX_POINTS_FEW if n_points <= _FEW else _MAX_POINTS
 _CHUNK = 64                 # points per parallel work item (scratch arrays are per item)
 _GL_NODES = np.zeros((_MAX_ORDER + 1, _MAX_ORDER))
 _GL_WEIGHTS = np.zeros((_MAX_ORDER + 1, _MAX_ORDER))
@@ -202,13 +211,26 @@ def _axis_truncation(dist, far, h, n):
 def _gl_order(dist, far, h):
     """Least Gauss-Legendre order along an axis of half-length h whose truncation bound
     (_axis_truncation) is below 10^-_DIGITS / 3 of the scales 1/dist, 1/dist^2, sqrt(6)/dist^3 of the
-    potential, field and gradient; _MAX_ORDER + 1 if none up to _MAX_ORDER is."""
+    potential, field and gradient (solved for n per ellipse, the least taken); _MAX_ORDER + 1 if none
+    up to _MAX_ORDER is."""
     target = 10.0 ** (-_DIGITS) / 3.0
-    for n in range(1, _MAX_ORDER + 1):
-        tu, tg, tt = _axis_truncation(dist, far, h, n)
-        if tu * dist <= target and tg * dist * dist <= target and tt * dist ** 3 <= np.sqrt(6.0) * target:
-            return n
-    return _MAX_ORDER + 1
+    best = _MAX_ORDER + 1
+    for f in _ELLIPSE_FRACTIONS:
+        b = f * dist
+        rho = (b + np.sqrt(h * h + b * b)) / h
+        c = (32.0 / 15.0) / (1.0 - rho ** -2.0)
+        gap = dist - b
+        top = far + 2.0 * b
+        need = max(c / gap * dist, c * top / gap ** 3 * dist * dist,
+                   c * (3.0 + np.sqrt(3.0)) * top * top / gap ** 5 * dist ** 3 / np.sqrt(6.0)) / target
+        n = 1
+        if need > 1.0:
+            n = int(np.ceil(np.log(need) / (2.0 * np.log(rho))))
+            # guard against rounding of the logarithms: the bound itself decides
+            while n <= _MAX_ORDER and c * rho ** (-2.0 * n) * need / c > 1.0:
+                n += 1
+        best = min(best, max(n, 1))
+    return best
 
 
 @njit(cache=True)
@@ -224,10 +246,10 @@ def _distances(px, py, pz, hx, hy, hz):
 
 
 @njit(cache=True)
-def _choose_rule(px, py, pz, hx, hy, hz):
+def _choose_rule(px, py, pz, hx, hy, hz, max_points):
     """Per-axis Gauss-Legendre orders (nx, ny, nz) if the quadrature is to be used at this point,
     else (0, 0, 0) for the closed form. The quadrature is used once the point is at least
-    1.5 largest half-sizes away and a rule of at most _MAX_POINTS nodes has a truncation bound below
+    1.5 largest half-sizes away and a rule of at most max_points nodes has a truncation bound below
     10^-_DIGITS of the field's scale: there the closed form's corner terms are (distance / size)^2
     times larger than their sum, and the rule's positive terms are not."""
     dist, far = _distances(px, py, pz, hx, hy, hz)
@@ -236,7 +258,7 @@ def _choose_rule(px, py, pz, hx, hy, hz):
     nx = _gl_order(dist, far, hx)
     ny = _gl_order(dist, far, hy)
     nz = _gl_order(dist, far, hz)
-    if nx > _MAX_ORDER or ny > _MAX_ORDER or nz > _MAX_ORDER or nx * ny * nz > _MAX_POINTS:
+    if nx > _MAX_ORDER or ny > _MAX_ORDER or nz > _MAX_ORDER or nx * ny * nz > max_points:
         return 0, 0, 0
     return nx, ny, nz
 
@@ -285,7 +307,7 @@ def _quadrature_point(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights):
 
 
 @njit(cache=True, parallel=True)
-def _prism_field_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights):
+def _prism_field_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights, max_points):
     n = points.shape[0]
     U = np.empty(n)
     g = np.empty((n, 3))
@@ -304,7 +326,7 @@ def _prism_field_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, wei
             pz = points[i, 2]
             nx, ny, nz = 0, 0, 0
             if allow_quadrature:
-                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz)
+                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
             if nx > 0:
                 pot, jx, jy, jz = _quadrature_point(px, py, pz, hx, hy, hz, nx, ny, nz,
                                                     nodes, weights)
@@ -361,7 +383,7 @@ def _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t):
 
 
 @njit(cache=True, parallel=True)
-def _prism_gradient_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights):
+def _prism_gradient_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights, max_points):
     n = points.shape[0]
     T = np.zeros((n, 3, 3))
     scale = G * rho
@@ -381,7 +403,7 @@ def _prism_gradient_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, 
             t[:, :] = 0.0
             nx, ny, nz = 0, 0, 0
             if allow_quadrature:
-                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz)
+                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
             if nx > 0:
                 _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t)
             else:
@@ -423,7 +445,7 @@ def prism_field(points, half_sizes, rho, G):
     `points` (N,3) in m in the prism's frame. Finite and continuous everywhere."""
     p, h = _check(points, half_sizes)
     return _prism_field_kernel(p, h[0], h[1], h[2], float(rho), float(G), True,
-                               _GL_NODES, _GL_WEIGHTS)
+                               _GL_NODES, _GL_WEIGHTS, _max_points(p.shape[0]))
 
 
 def prism_gradient(points, half_sizes, rho, G):
@@ -432,7 +454,7 @@ def prism_gradient(points, half_sizes, rho, G):
     on edges and vertices (logarithmic singularity)."""
     p, h = _check(points, half_sizes)
     return _prism_gradient_kernel(p, h[0], h[1], h[2], float(rho), float(G), True,
-                                  _GL_NODES, _GL_WEIGHTS)
+                                  _GL_NODES, _GL_WEIGHTS, _max_points(p.shape[0]))
 
 
 def prism_error_estimate(half_sizes):
@@ -563,7 +585,7 @@ def prism_rounding_bounds(points, half_sizes, rho, G, position_error=0.0):
         eT += 2.0 * np.pi * s * near_face
     # far-field quadrature points: rounding of the nested sums of positive-weight terms, bounded by
     # the sums of |integrand| over the nodes (at most G|rho| V / dist^k), plus the rule's truncation
-    n_add, dist, tU, tg, tT = _far_rule_bounds(p, hx, hy, hz)
+    n_add, dist, tU, tg, tT = _far_rule_bounds(p, hx, hy, hz, _max_points(n))
     far = n_add > 0
     if np.any(far):
         m = s * 8.0 * hx * hy * hz
@@ -579,7 +601,7 @@ def prism_rounding_bounds(points, half_sizes, rho, G, position_error=0.0):
 
 
 @njit(cache=True)
-def _far_rule_bounds(points, hx, hy, hz):
+def _far_rule_bounds(points, hx, hy, hz, max_points):
     """For each point: (nx + ny + nz of the far-field rule, 0 where the closed form is used; distance
     to the box; truncation bounds of potential, field and gradient per unit G |rho| V)."""
     n = points.shape[0]
@@ -592,7 +614,7 @@ def _far_rule_bounds(points, hx, hy, hz):
         px, py, pz = points[i, 0], points[i, 1], points[i, 2]
         d, far = _distances(px, py, pz, hx, hy, hz)
         dist[i] = d
-        nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz)
+        nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
         if nx == 0:
             continue
         n_add[i] = nx + ny + nz

@@ -333,8 +333,8 @@ def test_far_field_rule_bounds_a_slender_box_at_the_demo_distance_and_a_sweep():
     U, g = prism_field(pts, DEMO_BEAM, ALUMINIUM, G)
     T = prism_gradient(pts, DEMO_BEAM, ALUMINIUM, G)
     eU, eg, eT = prism_rounding_bounds(pts, DEMO_BEAM, ALUMINIUM, G)
-    from truepull.integrate.field_prism import _choose_rule
-    rule = np.array([_choose_rule(*p, *DEMO_BEAM)[0] > 0 for p in pts])
+    from truepull.integrate.field_prism import _choose_rule, _max_points
+    rule = np.array([_choose_rule(*p, *DEMO_BEAM, _max_points(len(pts)))[0] > 0 for p in pts])
     assert rule[0] and rule[-1]           # the demo's "far" turn and the far sweep take the rule
     worst = 0.0
     for i, p in enumerate(pts):
