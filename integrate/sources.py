@@ -4,8 +4,9 @@ Exact closed forms where physics gives them: point, sphere and shell (shell theo
 closed form), mesh (homogeneous polyhedron), ellipsoid (Carlson symmetric integrals). Cylinders,
 tubes and cones use the surface-integral form of `surface_field`, adaptively refined per point.
 Closed forms carry a rounding-level error estimate: the box's and mesh's kernels give rigorous
-bounds at every point (cancellation of their terms included); point, shell and ellipsoid
-CLOSED_FORM_RTOL of the size.
+bounds at every point (cancellation of their terms included; for meshes of more than
+MESH_BOUND_TERMS edges + faces only at a few points, else their relative estimate); point, shell and
+ellipsoid CLOSED_FORM_RTOL of the size.
 """
 
 from __future__ import annotations
@@ -22,6 +23,10 @@ brute-force quadrature); the prism and polyhedron kernels state their own bounds
 
 EPS = np.finfo(float).eps
 BOUND_CHUNK_TERMS = 200_000
+BOUND_FEW_POINTS = 16
+MESH_BOUND_TERMS = 400
+"""A mesh with more edges + faces than this, at more than BOUND_FEW_POINTS points, gets the relative
+error estimate instead of the rigorous rounding bounds (those cost ~1 microsecond per point and edge)."""
 """Points x (edges + faces) per chunk of the mesh's rounding bounds (memory of its numpy arrays)."""
 
 CLOSED_FORM_KINDS = ("point", "sphere", "shell", "box", "mesh", "ellipsoid")
@@ -101,8 +106,16 @@ class SourceField:
         elif kind == "mesh":
             from truepull.integrate.field_polyhedron import polyhedron_field
 
-            U, gl = polyhedron_field(self._local(points), self.poly(), b.density, self.G)
+            local = self._local(points)
+            data = self.poly()
+            U, gl = polyhedron_field(local, data, b.density, self.G)
             g = self._world_field(gl)
+            if len(points) > BOUND_FEW_POINTS and len(data.edges) + len(data.faces) > MESH_BOUND_TERMS:
+                # a large mesh at many points: the rigorous bounds (numpy over points x edges) would
+                # cost ~100 times the field; the relative estimate, which does not cover cancellation
+                from truepull.integrate.field_polyhedron import polyhedron_error_estimate
+
+                return self._closed(U, g, polyhedron_error_estimate(local, data))
             eU, eg = self._kernel_bounds(points)
             return U, g, np.zeros_like(U), np.zeros_like(g), eU, eg + 4.0 * EPS * np.linalg.norm(g, axis=1)
         elif kind == "ellipsoid":
