@@ -14,11 +14,15 @@ How the closed form is evaluated so that it stays accurate:
 - Terms whose coefficient vanishes (x ln x type limits on faces, edges and vertices) are dropped.
 - Even so the outer differences lose digits with distance and with aspect ratio: measured against
   a 50-digit mpmath evaluation, about 1e-14 for a cube out to 8 half-diagonals, 1e-13..1e-12 for
-  100:1 plates and rods near the prism, 1e-11 for a 2e4:1 slab. So once a point is more than 1.5
-  largest half-sizes away and a tensor Gauss-Legendre rule of at most _MAX_POINTS nodes reaches
-  double precision there, the defining volume integral is summed by that rule instead; its per-axis
-  order comes from the distance (the integrand is analytic in a Bernstein ellipse whose size grows
-  with distance / half-size), and it was measured at 1e-15 against long-double quadrature.
+  100:1 plates and rods near the prism, 1e-11 for a 2e4:1 slab; the terms of the corner sums are
+  about (distance / size)^2 times larger than their sum. So once a point is more than 1.5 largest
+  half-sizes away and a tensor Gauss-Legendre rule of at most _MAX_POINTS nodes (_MAX_POINTS_FEW
+  for calls with at most _FEW points, as the one-point pairs make; field, gradient and their bounds
+  follow the same rule for the same points) has a proven
+  truncation bound below 10^-_DIGITS of the field's scale there (the integrand is analytic in
+  Bernstein ellipses clear of its singularities, whose size grows with distance / half-size:
+  `_axis_truncation`), the defining volume integral is summed by that rule instead: a sum of
+  positive-weight terms of one size, nested axis by axis, whose rounding stays at a few tens of ulps.
 The potential and field are finite and continuous everywhere (inside, on faces, edges, vertices). The
 gradient tensor jumps across faces (Poisson) and diverges logarithmically at edges; on a face it is
 the average of the two sides, on an edge or vertex it is not finite.
@@ -31,9 +35,16 @@ from numba import njit, prange
 
 from truepull.geometry.errors import InputError
 
-_DIGITS = 17.0              # target of the far-field quadrature: error below 10^-_DIGITS
-_MAX_ORDER = 16
-_MAX_POINTS = 512
+_DIGITS = 15.0              # far-field quadrature: truncation bound below 10^-_DIGITS of the scale
+_MAX_ORDER = 32
+_MAX_POINTS = 512           # nodes of the far-field rule, calls with many points (speed)
+_MAX_POINTS_FEW = 2048      # ... calls with at most _FEW points (one-point pairs: accuracy)
+_FEW = 16
+
+
+def _max_points(n_points):
+    """Largest far-field rule for a call with n_points points (the same for field, gradient and bounds)."""
+    return _MAX_POINTS_FEW if n_points <= _FEW else _MAX_POINTS
 _CHUNK = 64                 # points per parallel work item (scratch arrays are per item)
 _GL_NODES = np.zeros((_MAX_ORDER + 1, _MAX_ORDER))
 _GL_WEIGHTS = np.zeros((_MAX_ORDER + 1, _MAX_ORDER))
@@ -42,6 +53,9 @@ for _n in range(1, _MAX_ORDER + 1):
     _GL_NODES[_n, :_n] = _x
     _GL_WEIGHTS[_n, :_n] = _w
 del _n, _x, _w
+_ELLIPSE_FRACTIONS = np.array([0.3, 0.5, 0.65, 0.8, 0.88, 0.94, 0.97, 0.985])
+"""Semi-minor axes of the Bernstein ellipses tried in the truncation bound, as fractions of the
+point's distance to the box (the bound is the least over them)."""
 
 
 @njit(cache=True, inline="always")
@@ -164,67 +178,136 @@ def _closed_form_point(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R):
     return pot, -jx, -jy, -jz
 
 
-@njit(cache=True, inline="always")
-def _gl_order(dist, h):
-    """Gauss-Legendre order along an axis of half-length h for a point at distance `dist` from the
-    prism, so that the rule's error is below double precision. Along a fibre the integrand's
-    singularities lie at least `dist` from the segment, so outside the Bernstein ellipse of
-    semi-minor axis dist/h, parameter rho = delta + sqrt(delta^2 + 1); the error falls as
-    rho^(-2n) (Trefethen, Approximation Theory and Approximation Practice, ch. 19)."""
-    delta = dist / h
-    rho = delta + np.sqrt(delta * delta + 1.0)
-    n = int(np.ceil(_DIGITS / (2.0 * np.log10(rho)))) + 1
-    if n > _MAX_ORDER:
-        n = _MAX_ORDER
-    return n
+@njit(cache=True)
+def _axis_truncation(dist, far, h, n):
+    """Bounds (tU, tg, tT), per unit G |rho| V, on the error that an n-point Gauss-Legendre rule along
+    one axis of half-length h adds to the tensor rule for the potential, field (vector norm) and
+    gradient (Frobenius norm), at a point `dist` from the box and at most `far` from any of its points.
+
+    Gauss-Legendre on [-1, 1] errs by at most (64/15) M rho^(-2n) / (1 - rho^-2) for an integrand
+    analytic with |f| <= M in the Bernstein ellipse E_rho (Trefethen, Approximation Theory and
+    Approximation Practice, 2013, Theorem 19.3); over the box's other two axes this is multiplied by
+    their extent, so each axis adds (32/15) V M rho^(-2n) / (1 - rho^-2). Take the ellipse of
+    semi-minor axis b < dist (physical units): its points lie within b of the segment, the
+    singularities of 1/r (complex x' with r^2 = 0) at least dist from it, so |r| >= dist - b there,
+    and |d| <= far + 2 b. Then M is 1 / (dist - b) for 1/r, (far + 2b) / (dist - b)^3 for d / r^3 and
+    (3 + sqrt 3) (far + 2b)^2 / (dist - b)^5 for (3 d d^T - r^2 I) / r^5; the least over a few b."""
+    tu = np.inf
+    tg = np.inf
+    tt = np.inf
+    for f in _ELLIPSE_FRACTIONS:
+        b = f * dist
+        rho = (b + np.sqrt(h * h + b * b)) / h
+        c = (32.0 / 15.0) * rho ** (-2.0 * n) / (1.0 - rho ** -2.0)
+        gap = dist - b
+        top = far + 2.0 * b
+        tu = min(tu, c / gap)
+        tg = min(tg, c * top / gap ** 3)
+        tt = min(tt, c * (3.0 + np.sqrt(3.0)) * top * top / gap ** 5)
+    return tu, tg, tt
 
 
-@njit(cache=True, inline="always")
-def _choose_rule(px, py, pz, hx, hy, hz):
-    """Per-axis Gauss-Legendre orders (nx, ny, nz) if the quadrature is to be used at this point,
-    else (0, 0, 0) for the closed form. The quadrature is used once the point is at least
-    1.5 largest half-sizes away and the rule has at most _MAX_POINTS nodes."""
+@njit(cache=True)
+def _gl_order(dist, far, h):
+    """Least Gauss-Legendre order along an axis of half-length h whose truncation bound
+    (_axis_truncation) is below 10^-_DIGITS / 3 of the scales 1/dist, 1/dist^2, sqrt(6)/dist^3 of the
+    potential, field and gradient (solved for n per ellipse, the least taken); _MAX_ORDER + 1 if none
+    up to _MAX_ORDER is."""
+    target = 10.0 ** (-_DIGITS) / 3.0
+    best = _MAX_ORDER + 1
+    for f in _ELLIPSE_FRACTIONS:
+        b = f * dist
+        rho = (b + np.sqrt(h * h + b * b)) / h
+        c = (32.0 / 15.0) / (1.0 - rho ** -2.0)
+        gap = dist - b
+        top = far + 2.0 * b
+        need = max(c / gap * dist, c * top / gap ** 3 * dist * dist,
+                   c * (3.0 + np.sqrt(3.0)) * top * top / gap ** 5 * dist ** 3 / np.sqrt(6.0)) / target
+        n = 1
+        if need > 1.0:
+            n = int(np.ceil(np.log(need) / (2.0 * np.log(rho))))
+            # guard against rounding of the logarithms: the bound itself decides
+            while n <= _MAX_ORDER and c * rho ** (-2.0 * n) * need / c > 1.0:
+                n += 1
+        best = min(best, max(n, 1))
+    return best
+
+
+@njit(cache=True)
+def _distances(px, py, pz, hx, hy, hz):
+    """(distance from the point to the box, distance to its farthest corner), in the box's units."""
     ex = max(abs(px) - hx, 0.0)
     ey = max(abs(py) - hy, 0.0)
     ez = max(abs(pz) - hz, 0.0)
-    dist = np.sqrt(ex * ex + ey * ey + ez * ez)
+    fx = abs(px) + hx
+    fy = abs(py) + hy
+    fz = abs(pz) + hz
+    return np.sqrt(ex * ex + ey * ey + ez * ez), np.sqrt(fx * fx + fy * fy + fz * fz)
+
+
+@njit(cache=True)
+def _choose_rule(px, py, pz, hx, hy, hz, max_points):
+    """Per-axis Gauss-Legendre orders (nx, ny, nz) if the quadrature is to be used at this point,
+    else (0, 0, 0) for the closed form. The quadrature is used once the point is at least
+    1.5 largest half-sizes away and a rule of at most max_points nodes has a truncation bound below
+    10^-_DIGITS of the field's scale: there the closed form's corner terms are (distance / size)^2
+    times larger than their sum, and the rule's positive terms are not."""
+    dist, far = _distances(px, py, pz, hx, hy, hz)
     if dist < 1.5 * max(hx, max(hy, hz)):
         return 0, 0, 0
-    nx = _gl_order(dist, hx)
-    ny = _gl_order(dist, hy)
-    nz = _gl_order(dist, hz)
-    if nx * ny * nz > _MAX_POINTS:
+    nx = _gl_order(dist, far, hx)
+    ny = _gl_order(dist, far, hy)
+    nz = _gl_order(dist, far, hz)
+    if nx > _MAX_ORDER or ny > _MAX_ORDER or nz > _MAX_ORDER or nx * ny * nz > max_points:
         return 0, 0, 0
     return nx, ny, nz
 
 
 @njit(cache=True)
 def _quadrature_point(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights):
-    """(I, Jx, Jy, Jz) as in _closed_form_point, by an nx*ny*nz tensor Gauss-Legendre rule."""
+    """(I, Jx, Jy, Jz) as in _closed_form_point, by an nx*ny*nz tensor Gauss-Legendre rule. Summed
+    axis by axis (inner sums first), so each term passes through at most nx + ny + nz additions."""
     pot = 0.0
     jx = 0.0
     jy = 0.0
     jz = 0.0
     for a in range(nx):
         dx = hx * nodes[nx, a] - px
+        pa = 0.0
+        xa = 0.0
+        ya = 0.0
+        za = 0.0
         for b in range(ny):
             dy = hy * nodes[ny, b] - py
-            wab = weights[nx, a] * weights[ny, b]
+            pb = 0.0
+            xb = 0.0
+            yb = 0.0
+            zb = 0.0
             for c in range(nz):
                 dz = hz * nodes[nz, c] - pz
-                w = wab * weights[nz, c]
+                w = weights[nz, c]
                 inv_r = 1.0 / np.sqrt(dx * dx + dy * dy + dz * dz)
-                pot += w * inv_r
+                pb += w * inv_r
                 s = w * inv_r * inv_r * inv_r
-                jx += s * dx
-                jy += s * dy
-                jz += s * dz
+                xb += s * dx
+                yb += s * dy
+                zb += s * dz
+            wb = weights[ny, b]
+            pa += wb * pb
+            xa += wb * xb
+            ya += wb * yb
+            za += wb * zb
+        wa = weights[nx, a]
+        pot += wa * pa
+        jx += wa * xa
+        jy += wa * ya
+        jz += wa * za
     vol = hx * hy * hz
     return pot * vol, jx * vol, jy * vol, jz * vol
 
 
 @njit(cache=True, parallel=True)
-def _prism_field_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights):
+def _prism_field_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights, max_points):
     n = points.shape[0]
     U = np.empty(n)
     g = np.empty((n, 3))
@@ -243,7 +326,7 @@ def _prism_field_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, wei
             pz = points[i, 2]
             nx, ny, nz = 0, 0, 0
             if allow_quadrature:
-                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz)
+                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
             if nx > 0:
                 pot, jx, jy, jz = _quadrature_point(px, py, pz, hx, hy, hz, nx, ny, nz,
                                                     nodes, weights)
@@ -258,44 +341,49 @@ def _prism_field_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, wei
 
 @njit(cache=True)
 def _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t):
-    """t += integral (3 d d^T - r^2 I) / r^5 dV by a tensor Gauss-Legendre rule (d = x' - p)."""
+    """t += integral (3 d d^T - r^2 I) / r^5 dV by a tensor Gauss-Legendre rule (d = x' - p), summed
+    axis by axis like _quadrature_point."""
     vol = hx * hy * hz
-    sxx = 0.0
-    syy = 0.0
-    szz = 0.0
-    sxy = 0.0
-    sxz = 0.0
-    syz = 0.0
+    acc = np.zeros(6)       # xx, yy, zz, xy, xz, yz
+    acc_b = np.zeros(6)
+    acc_c = np.zeros(6)
     for a in range(nx):
         dx = hx * nodes[nx, a] - px
+        acc_b[:] = 0.0
         for b in range(ny):
             dy = hy * nodes[ny, b] - py
-            wab = weights[nx, a] * weights[ny, b]
+            acc_c[:] = 0.0
             for c in range(nz):
                 dz = hz * nodes[nz, c] - pz
                 r2 = dx * dx + dy * dy + dz * dz
                 inv_r2 = 1.0 / r2
-                s = wab * weights[nz, c] * inv_r2 / np.sqrt(r2)
+                s = weights[nz, c] * inv_r2 / np.sqrt(r2)
                 s3 = 3.0 * s * inv_r2
-                sxx += s3 * dx * dx - s
-                syy += s3 * dy * dy - s
-                szz += s3 * dz * dz - s
-                sxy += s3 * dx * dy
-                sxz += s3 * dx * dz
-                syz += s3 * dy * dz
-    t[0, 0] += vol * sxx
-    t[1, 1] += vol * syy
-    t[2, 2] += vol * szz
-    t[0, 1] += vol * sxy
-    t[1, 0] += vol * sxy
-    t[0, 2] += vol * sxz
-    t[2, 0] += vol * sxz
-    t[1, 2] += vol * syz
-    t[2, 1] += vol * syz
+                acc_c[0] += s3 * dx * dx - s
+                acc_c[1] += s3 * dy * dy - s
+                acc_c[2] += s3 * dz * dz - s
+                acc_c[3] += s3 * dx * dy
+                acc_c[4] += s3 * dx * dz
+                acc_c[5] += s3 * dy * dz
+            wb = weights[ny, b]
+            for k in range(6):
+                acc_b[k] += wb * acc_c[k]
+        wa = weights[nx, a]
+        for k in range(6):
+            acc[k] += wa * acc_b[k]
+    t[0, 0] += vol * acc[0]
+    t[1, 1] += vol * acc[1]
+    t[2, 2] += vol * acc[2]
+    t[0, 1] += vol * acc[3]
+    t[1, 0] += vol * acc[3]
+    t[0, 2] += vol * acc[4]
+    t[2, 0] += vol * acc[4]
+    t[1, 2] += vol * acc[5]
+    t[2, 1] += vol * acc[5]
 
 
 @njit(cache=True, parallel=True)
-def _prism_gradient_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights):
+def _prism_gradient_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights, max_points):
     n = points.shape[0]
     T = np.zeros((n, 3, 3))
     scale = G * rho
@@ -315,7 +403,7 @@ def _prism_gradient_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, 
             t[:, :] = 0.0
             nx, ny, nz = 0, 0, 0
             if allow_quadrature:
-                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz)
+                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
             if nx > 0:
                 _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t)
             else:
@@ -357,7 +445,7 @@ def prism_field(points, half_sizes, rho, G):
     `points` (N,3) in m in the prism's frame. Finite and continuous everywhere."""
     p, h = _check(points, half_sizes)
     return _prism_field_kernel(p, h[0], h[1], h[2], float(rho), float(G), True,
-                               _GL_NODES, _GL_WEIGHTS)
+                               _GL_NODES, _GL_WEIGHTS, _max_points(p.shape[0]))
 
 
 def prism_gradient(points, half_sizes, rho, G):
@@ -366,7 +454,7 @@ def prism_gradient(points, half_sizes, rho, G):
     on edges and vertices (logarithmic singularity)."""
     p, h = _check(points, half_sizes)
     return _prism_gradient_kernel(p, h[0], h[1], h[2], float(rho), float(G), True,
-                                  _GL_NODES, _GL_WEIGHTS)
+                                  _GL_NODES, _GL_WEIGHTS, _max_points(p.shape[0]))
 
 
 def prism_error_estimate(half_sizes):
@@ -422,8 +510,9 @@ def prism_rounding_bounds(points, half_sizes, rho, G, position_error=0.0):
     angle is itself good to a few ulps), plus the effect of rounding the point's coordinates
     (delta = eps (|p| + h) per axis) through the size of each term's gradient: near an edge the
     log steps and solid angles change like 1/distance, which is where the gradient loses digits.
-    Where the far-field quadrature is used, the same sums are taken over its nodes' sizes
-    (G|rho|V/d^k with d the distance to the box) and the rule's own 10^-17 relative error added.
+    Where the far-field quadrature is used: (nx + ny + nz + 32) eps times the sums of its terms' sizes
+    (at most G|rho|V/d^k, d the distance to the box; each term passes through its own few roundings
+    and one addition per nested sum), plus the rule's proven truncation bound (`_axis_truncation`).
     Within 2 delta of a face's plane the gradient's jump there (4 pi G rho) is added: the point may be
     on either side of it. Infinite on an edge or vertex for eT (the gradient is not finite there). `position_error` (m):
     how far the point itself may be off by rounding before it got here (the frame change)."""
@@ -494,16 +583,44 @@ def prism_rounding_bounds(points, half_sizes, rho, G, position_error=0.0):
         near_face = ((on_plane[0] & inside[1] & inside[2]) | (on_plane[1] & inside[0] & inside[2])
                      | (on_plane[2] & inside[0] & inside[1]))
         eT += 2.0 * np.pi * s * near_face
-    # far-field quadrature points: sums of |integrand| over the nodes
-    ex = np.maximum(np.abs(p) - h, 0.0)
-    dist = np.linalg.norm(ex, axis=1)
-    far = np.array([_choose_rule(q[0], q[1], q[2], hx, hy, hz)[0] > 0 for q in p], dtype=bool)
+    # far-field quadrature points: rounding of the nested sums of positive-weight terms, bounded by
+    # the sums of |integrand| over the nodes (at most G|rho| V / dist^k), plus the rule's truncation
+    n_add, dist, tU, tg, tT = _far_rule_bounds(p, hx, hy, hz, _max_points(n))
+    far = n_add > 0
     if np.any(far):
-        vol8 = 8.0 * hx * hy * hz
-        m = s * vol8
+        m = s * 8.0 * hx * hy * hz
         dq = dist[far]
-        quad_rel = C * eps + 10.0 ** -_DIGITS
-        eU[far] = quad_rel * m / dq + 2.0 * delta[far] * m / dq ** 2
-        eg[far] = quad_rel * m / dq ** 2 + 4.0 * delta[far] * m / dq ** 3
-        eT[far] = 3.0 * quad_rel * m / dq ** 3 + 12.0 * delta[far] * m / dq ** 4
+        # each term: its own few roundings (sqrt, divisions, weights, offsets: 32 ulps) and one per
+        # addition on its way through the three nested sums
+        rel = (n_add[far] + 32.0) * eps
+        dl = delta[far]
+        eU[far] = rel * m / dq + m * tU[far] + 2.0 * dl * m / dq ** 2
+        eg[far] = rel * m / dq ** 2 + m * tg[far] + 4.0 * dl * m / dq ** 3
+        eT[far] = (3.0 + np.sqrt(3.0)) * rel * m / dq ** 3 + m * tT[far] + 12.0 * dl * m / dq ** 4
     return eU, eg, eT
+
+
+@njit(cache=True)
+def _far_rule_bounds(points, hx, hy, hz, max_points):
+    """For each point: (nx + ny + nz of the far-field rule, 0 where the closed form is used; distance
+    to the box; truncation bounds of potential, field and gradient per unit G |rho| V)."""
+    n = points.shape[0]
+    n_add = np.zeros(n)
+    dist = np.zeros(n)
+    tU = np.zeros(n)
+    tg = np.zeros(n)
+    tT = np.zeros(n)
+    for i in range(n):
+        px, py, pz = points[i, 0], points[i, 1], points[i, 2]
+        d, far = _distances(px, py, pz, hx, hy, hz)
+        dist[i] = d
+        nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
+        if nx == 0:
+            continue
+        n_add[i] = nx + ny + nz
+        for h, order in ((hx, nx), (hy, ny), (hz, nz)):
+            u, g, t = _axis_truncation(d, far, h, order)
+            tU[i] += u
+            tg[i] += g
+            tT[i] += t
+    return n_add, dist, tU, tg, tT

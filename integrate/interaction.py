@@ -158,7 +158,10 @@ def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, to
                 result = replace(result, test=t.name, source=s.name)
             pairs.append(result)
     values = np.sum([p.values for p in pairs], axis=0) if pairs else np.zeros(8)
+    # absolute pair errors add; so does the rounding of summing the pairs, n ulps of the sum of their
+    # sizes (which covers a total that cancels across pairs)
     errors = np.sum([p.errors for p in pairs], axis=0) if pairs else np.zeros(8)
+    errors = errors + len(pairs) * np.finfo(float).eps * _parts(pairs)
     return values, errors, pairs, all(p.reached for p in pairs)
 
 

@@ -11,8 +11,8 @@ K follows from turning the body by theta about the axis: r x N turns with it, it
 
 The surface is refined adaptively: each cell's Gauss value is compared with rules two and four points
 smaller on the same cell; cells whose estimate is within their share (by area) of the tolerance are
-kept, the others split in four. Rule differences plus the propagated field differences and rounding
-form the error estimate.
+kept, the others split in four. Rule differences plus the propagated field differences, the field's
+rounding bounds and the sums' rounding form the error estimate.
 """
 
 from __future__ import annotations
@@ -104,9 +104,10 @@ def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np
     with the order x order Gauss rule and with the rules two and four points smaller; a cell whose
     estimate (the nearer difference where the three converge clearly, else the wider one) is within its
     share (by area) of the tolerance is kept, the others are split in four. The error estimate adds
-    three parts: the kept cells' rule differences (summed in magnitude), the field's refinement carried
-    through the integral with its signs (the same integral of dU, dg), and rounding (independent from
-    node to node, so added in quadrature). `distance(points) -> (N,)`, when given, is the distance (m)
+    four parts: the kept cells' rule differences (summed in magnitude), the field's refinement carried
+    through the integral with its signs (the same integral of dU, dg), the field's rounding bounds at
+    the nodes weighted by the integrands' |coefficients| (a bound, summed linearly), and ROUNDING_ULPS
+    ulps of the sum of |node terms| (the sums' own rounding, where the terms cancel). `distance(points) -> (N,)`, when given, is the distance (m)
     from world points to the source's surface; cells that reach toward it are judged by the wider rule
     difference (see NEAR_RATIO).
     """
@@ -151,7 +152,9 @@ def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np
         trusted = (e1 <= 0.1 * e2) & ~reaches_source(X)[:, None]
         diff = np.where(trusted, e1, np.maximum(e1, e2))
         d = per_cell(_node_values(X, W, dU[:m], dg[:m], rho, pivot, axis, centroid), order)
-        r = per_cell(_node_values(X, W, rU[:m], rg[:m], rho, pivot, axis, centroid, magnitude=True) ** 2, order)
+        # the source's rounding bounds at the nodes, weighted by |coefficients| (a bound of a weighted
+        # sum is the weighted sum of |weights| times the node bounds)
+        r = per_cell(_node_values(X, W, rU[:m], rg[:m], rho, pivot, axis, centroid, magnitude=True), order)
         area = np.linalg.norm(W, axis=1).reshape(-1, order * order).sum(axis=1)
         return v, diff, d, r, noise, area, ml + Xs.shape[0]
 
@@ -160,6 +163,7 @@ def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np
     rule = np.zeros(N_QUANTITIES)
     field_diff = np.zeros(N_QUANTITIES)
     rounding = np.zeros(N_QUANTITIES)
+    summing = np.zeros(N_QUANTITIES)
     reached = True
     level = 0
     nev = 0
@@ -179,6 +183,8 @@ def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np
         total += val[done].sum(axis=0)
         rule += diff[done].sum(axis=0)
         field_diff += fdiff[done].sum(axis=0)
-        rounding += rnd[done].sum(axis=0)  # sums of squares
+        rounding += rnd[done].sum(axis=0)
+        summing += noise[done].sum(axis=0)
         cp, cd = split_cells(cp[~done], cd[~done])
-    return SurfaceResult(total, rule + np.abs(field_diff) + np.sqrt(rounding), reached, nev, level)
+    # the sums' own rounding: ROUNDING_ULPS ulps of the sum of |node terms| (covers their cancellation)
+    return SurfaceResult(total, rule + np.abs(field_diff) + rounding + summing, reached, nev, level)

@@ -269,11 +269,11 @@ def test_quadrature_switch_is_seamless():
     # and both exact to ~1e-13 by the tests above).
     diag = np.linalg.norm(H)
     pts = np.array([[k * diag, 0.3 * diag, 0.1 * diag] for k in np.linspace(1.5, 12, 40)])
-    Uc, gc = fp._prism_field_kernel(pts, *H, RHO, G, False, fp._GL_NODES, fp._GL_WEIGHTS)
+    Uc, gc = fp._prism_field_kernel(pts, *H, RHO, G, False, fp._GL_NODES, fp._GL_WEIGHTS, fp._MAX_POINTS)
     Uq, gq = prism_field(pts, H, RHO, G)
     np.testing.assert_allclose(Uq, Uc, rtol=1e-12)
     assert np.all(np.linalg.norm(gq - gc, axis=1) < 1e-12 * np.linalg.norm(gc, axis=1))
-    Tc = fp._prism_gradient_kernel(pts, *H, RHO, G, False, fp._GL_NODES, fp._GL_WEIGHTS)
+    Tc = fp._prism_gradient_kernel(pts, *H, RHO, G, False, fp._GL_NODES, fp._GL_WEIGHTS, fp._MAX_POINTS)
     Tq = prism_gradient(pts, H, RHO, G)
     assert np.all(np.abs(Tq - Tc).max(axis=(1, 2)) < 1e-11 * np.abs(Tc).max(axis=(1, 2)))
 
