@@ -209,3 +209,20 @@ def write_cube_mesh(path, edge: float = 20.0) -> None:
     import trimesh
 
     trimesh.creation.box(extents=(edge, edge, edge)).export(path)
+
+
+def small_cylinders_scene(n: int = 50) -> str:
+    """`n` small cylinders (radius 3 mm, length 6 mm, tungsten): half on a 40 mm ring about the
+    fiber (pendulum), half on a 100 mm ring (attractor), two positions turning the attractor."""
+    import math
+
+    parts = ['[units]\nlength = "mm"\n']
+    half = n // 2
+    for k in range(n):
+        group, ring, m = ("pendulum", 40.0, half) if k < half else ("attractor", 100.0, n - half)
+        phi = 2 * math.pi * (k % half if k < half else k - half) / m
+        z = 8.0 * ((k % 3) - 1)
+        parts.append(f'[[body]]\nname = "c{k}"\ngroup = "{group}"\nshape = "cylinder"\nradius = 3\nlength = 6\n'
+                     f'material = "tungsten"\nat = [{ring * math.cos(phi):.6f}, {ring * math.sin(phi):.6f}, {z}]\n')
+    parts.append('[[position]]\nname = "A"\ngroup = "attractor"\nturn = 3\n')
+    return "\n".join(parts)
