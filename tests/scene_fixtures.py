@@ -213,16 +213,21 @@ def write_cube_mesh(path, edge: float = 20.0) -> None:
 
 def small_cylinders_scene(n: int = 50) -> str:
     """`n` small cylinders (radius 3 mm, length 6 mm, tungsten): half on a 40 mm ring about the
-    fiber (pendulum), half on a 100 mm ring (attractor), two positions turning the attractor."""
+    fiber (pendulum), half in a block of rows 12 mm apart centred 100 mm out along +y (attractor),
+    one position turning the attractor by 3 deg."""
     import math
 
     parts = ['[units]\nlength = "mm"\n']
     half = n // 2
+    side = max(1, math.ceil(math.sqrt(n - half)))
     for k in range(n):
-        group, ring, m = ("pendulum", 40.0, half) if k < half else ("attractor", 100.0, n - half)
-        phi = 2 * math.pi * (k % half if k < half else k - half) / m
-        z = 8.0 * ((k % 3) - 1)
+        if k < half:
+            group, phi = "pendulum", 2 * math.pi * k / half
+            x, y, z = 40.0 * math.cos(phi), 40.0 * math.sin(phi), 0.0
+        else:
+            group, m = "attractor", k - half
+            x, y, z = 12.0 * (m % side - (side - 1) / 2), 100.0 + 12.0 * (m // side), 0.0
         parts.append(f'[[body]]\nname = "c{k}"\ngroup = "{group}"\nshape = "cylinder"\nradius = 3\nlength = 6\n'
-                     f'material = "tungsten"\nat = [{ring * math.cos(phi):.6f}, {ring * math.sin(phi):.6f}, {z}]\n')
+                     f'material = "tungsten"\nat = [{x:.6f}, {y:.6f}, {z}]\n')
     parts.append('[[position]]\nname = "A"\ngroup = "attractor"\nturn = 3\n')
     return "\n".join(parts)
