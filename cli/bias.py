@@ -9,6 +9,9 @@ change of G (first-order model, see truepull.integrate.balance.sensitivity). Wha
   --void BODY:radius:dx,dy,dz      an off-centre spherical void of that radius (scene length unit) at
                                    that offset from the body's reference point (world axes)
 Each may be given more than once.
+Exit 3 (after the whole output) when the engine missed the tolerance for any value shown: the scene's
+torque, a row (its difference stencil or its pairs) or a what-if; the text, the JSON (`reached`,
+`not_reached`) and the warning on stderr name which.
 """
 
 from __future__ import annotations
@@ -18,7 +21,7 @@ import sys
 import numpy as np
 
 from truepull.cli.options import show_progress
-from truepull.cli.output import fmt, format_table, print_json, save_figure_atomic
+from truepull.cli.output import fmt, format_table, not_reached_exit, print_json, save_figure_atomic
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
 from truepull.integrate.balance.sensitivity import (default_position, flatten_what_if, gradient_what_if, offset_what_if,
@@ -134,6 +137,21 @@ def what_if_rows(what_ifs) -> list[list[str]]:
             for w in what_ifs]
 
 
+def not_reached(result, what_ifs) -> list[str]:
+    """Names of the values that missed the tolerance: "torque", "BODY PARAMETER", "what-if N" (1-based)."""
+    names = list(result.not_reached) if result is not None else []
+    return names + [f"what-if {i + 1}" for i, w in enumerate(what_ifs) if not w.reached]
+
+
+NAMES_SHOWN = 8
+
+
+def named(names: list[str]) -> str:
+    """At most NAMES_SHOWN names, then how many more."""
+    more = len(names) - NAMES_SHOWN
+    return ", ".join(names[:NAMES_SHOWN]) + (f" and {more} more" if more > 0 else "")
+
+
 def render(scene, result, what_ifs) -> str:
     lines = []
     if result is not None:
@@ -158,6 +176,13 @@ def render(scene, result, what_ifs) -> str:
         lines.append("what if")
         headers = ["change", "torque before (N m)", "after (N m)", "torque ppm", "G ppm"]
         lines.append(format_table(headers, what_if_rows(what_ifs), "lrrrr"))
+    missed = not_reached(result, what_ifs)
+    rtol = result.rtol if result is not None else None
+    lines.append("")
+    if missed:
+        lines.append(f"tolerance NOT reached for: {named(missed)}; their error estimates say what was reached")
+    else:
+        lines.append("tolerance reached" + (f" ({rtol:g})" if rtol else "") + " for every value above")
     return "\n".join(lines)
 
 
@@ -233,12 +258,14 @@ def run(args) -> int:
                             full_reduction=args.full_reduction) for it in items]
     if args.png:
         write_png(args.png, result, what_ifs, scene.title or "")
+    missed = not_reached(result, what_ifs)
     if args.json:
         data = result.to_json() if result is not None else {"rows": []}
         data["what_if"] = [w.to_json() for w in what_ifs]
+        data["reached"], data["not_reached"] = not missed, missed
         print_json(data)
     else:
         print(render(scene, result, what_ifs))
         if args.png:
             sys.stderr.write(f"truepull bias: wrote {args.png}\n")
-    return 0
+    return not_reached_exit("bias", not missed, f"for {named(missed)}" if missed else "")

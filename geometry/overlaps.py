@@ -80,8 +80,12 @@ def _pair_function(a, b):
     return f
 
 
-def deepest_common_point(a, b, samples: int = 1024, starts: int = 6, seed: int = 0) -> tuple[float, np.ndarray]:
-    """(min over p of max(d_a, d_b), the point) for two bodies, in m; negative = interpenetration depth."""
+def deepest_common_point(a, b, samples: int = 1024, starts: int = 6, seed: int = 0,
+                         enough: float | None = None) -> tuple[float, np.ndarray]:
+    """(min over p of max(d_a, d_b), the point) for two bodies, in m; negative = interpenetration depth.
+    `enough` (m): stop at the first point found at least this deep inside both (a witness that they
+    overlap; the value returned is then that point's, not the minimum). A few obvious points (the
+    centres of mass, their midpoint, the middle of the common box) are tried before the sample."""
     f = _pair_function(a, b)
     lo_a, hi_a = world_bounds(a)
     lo_b, hi_b = world_bounds(b)
@@ -90,12 +94,18 @@ def deepest_common_point(a, b, samples: int = 1024, starts: int = 6, seed: int =
     lo, hi = np.maximum(lo_a, lo_b) - pad, np.minimum(hi_a, hi_b) + pad
     if np.any(lo > hi):  # separate boxes: start between the bodies
         lo, hi = np.minimum(lo, hi), np.maximum(lo, hi)
+    obvious = np.vstack([a.com, b.com, (a.com + b.com) / 2, (lo + hi) / 2])
+    first = f(obvious)
+    k = int(np.argmin(first))
+    if enough is not None and first[k] <= -enough:
+        return float(first[k]), obvious[k]
     sob = _sobol(samples, seed)
-    candidates = np.vstack([lo + sob * (hi - lo), a.com, b.com, (a.com + b.com) / 2,
-                            (lo + hi) / 2])
-    values = f(candidates)
+    candidates = np.vstack([lo + sob * (hi - lo), obvious])
+    values = np.concatenate([f(candidates[:-len(obvious)]), first])
     order = np.argsort(values)
     best_val, best_p = float(values[order[0]]), candidates[order[0]]
+    if enough is not None and best_val <= -enough:
+        return best_val, best_p
     tol = TOUCH_RTOL * scale * 1e-2
     from scipy.optimize import minimize
 
@@ -108,7 +118,7 @@ def deepest_common_point(a, b, samples: int = 1024, starts: int = 6, seed: int =
                                 "maxfev": 8000})
         if res.fun < best_val:
             best_val, best_p = float(res.fun), np.asarray(res.x)
-        if best_val < -1e3 * TOUCH_RTOL * scale:
+        if best_val < -1e3 * TOUCH_RTOL * scale or (enough is not None and best_val <= -enough):
             break
     return best_val, best_p
 
@@ -149,7 +159,7 @@ def bodies_overlap(a, b, touch_rtol: float = TOUCH_RTOL) -> str | None:
         return "overlap" if gap < -tol else ("touch" if gap <= tol else None)
     convex = all(isinstance(x.shape, CONVEX) or (isinstance(x.shape, Cylinder) and x.shape.inner_radius == 0)
                  or (isinstance(x.shape, MeshShape) and x.shape.is_convex()) for x in (a, b))
-    depth, _ = deepest_common_point(a, b, starts=2 if convex else 6)
+    depth, _ = deepest_common_point(a, b, starts=2 if convex else 6, enough=1e3 * tol)
     if depth < -tol:
         return "overlap"
     if depth <= tol:

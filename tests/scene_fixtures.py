@@ -159,3 +159,124 @@ length = 60
 density = 11340
 at = [-56, -41, 0]
 """
+
+
+# one body of every shape: pendulum of a point, a sphere, a solid cylinder and a box beam about the
+# fiber; attractor of a shell, a tube, a frustum, an ellipsoid and a mesh (a 20 mm cube from
+# `write_cube_mesh`) on a ring about 110 mm out, all clear of each other (gaps of 20 mm or more).
+# Two positions turn the attractor by +-30 deg and a deflection measurement names both.
+def all_shapes_scene(mesh_name: str = "cube.stl") -> str:
+    return f"""
+[units]
+length = "mm"
+[[body]]
+name = "beam"
+group = "pendulum"
+shape = "box"
+size = ["60 +- 0.01", 6, 4]
+material = "aluminium"
+at = [0, 0, 0]
+[[body]]
+name = "bob"
+group = "pendulum"
+shape = "sphere"
+radius = "8 +- 0.002"
+material = "tungsten"
+at = ["45 +- 0.01", 0, 0]
+[[body]]
+name = "plug"
+group = "pendulum"
+shape = "cylinder"
+radius = 6
+length = "12 +- 0.002"
+density = "18000 +- 20"
+at = [-45, 0, 0]
+[[body]]
+name = "weight"
+group = "pendulum"
+shape = "point"
+mass = "0.005 +- 1e-6"
+at = [0, 0, 15]
+[[body]]
+name = "shell"
+group = "attractor"
+shape = "shell"
+radius = "20 +- 0.005"
+inner_radius = 15
+material = "lead"
+at = [110, 0, 0]
+[[body]]
+name = "tube"
+group = "attractor"
+shape = "cylinder"
+radius = 15
+inner_radius = 8
+length = 30
+material = "brass"
+at = [0, 110, 0]
+[[body]]
+name = "frustum"
+group = "attractor"
+shape = "cone"
+radius = 15
+radius_top = 8
+length = 30
+material = "copper"
+at = [-110, 0, 0]
+[[body]]
+name = "egg"
+group = "attractor"
+shape = "ellipsoid"
+radii = [18, 12, 10]
+material = "tungsten"
+at = [0, -110, 0]
+[[body]]
+name = "cube"
+group = "attractor"
+shape = "mesh"
+file = "{mesh_name}"
+file_units = "mm"
+material = "brass"
+at = [78, 78, 0]
+[[position]]
+name = "A"
+group = "attractor"
+turn = 30
+[[position]]
+name = "B"
+group = "attractor"
+turn = -30
+[measurement]
+method = "deflection"
+angle = {{ A = "0.002 rad", B = "-0.002 rad" }}
+period = "300 +- 0.1 s"
+"""
+
+
+def write_cube_mesh(path, edge: float = 20.0) -> None:
+    """A closed cube mesh of `edge` (file units), centred on its file origin, written as STL."""
+    import trimesh
+
+    trimesh.creation.box(extents=(edge, edge, edge)).export(path)
+
+
+def small_cylinders_scene(n: int = 50) -> str:
+    """`n` small cylinders (radius 3 mm, length 6 mm, tungsten): half on a 40 mm ring about the
+    fiber (pendulum), half in a block of rows 12 mm apart centred 100 mm out along +y (attractor),
+    one position turning the attractor by 3 deg."""
+    import math
+
+    parts = ['[units]\nlength = "mm"\n']
+    half = n // 2
+    side = max(1, math.ceil(math.sqrt(n - half)))
+    for k in range(n):
+        if k < half:
+            group, phi = "pendulum", 2 * math.pi * k / half
+            x, y, z = 40.0 * math.cos(phi), 40.0 * math.sin(phi), 0.0
+        else:
+            group, m = "attractor", k - half
+            x, y, z = 12.0 * (m % side - (side - 1) / 2), 100.0 + 12.0 * (m // side), 0.0
+        parts.append(f'[[body]]\nname = "c{k}"\ngroup = "{group}"\nshape = "cylinder"\nradius = 3\nlength = 6\n'
+                     f'material = "tungsten"\nat = [{x:.6f}, {y:.6f}, {z}]\n')
+    parts.append('[[position]]\nname = "A"\ngroup = "attractor"\nturn = 3\n')
+    return "\n".join(parts)

@@ -111,3 +111,42 @@ def test_bad_what_ifs_exit_2(tmp_path, capsys):
         assert main(["bias", path, "--no-table", "--workers", "1", *argv]) == 2
         err = capsys.readouterr().err
         assert err.count("\n") == 1 and "Traceback" not in err
+
+
+UNREACHABLE = """
+[units]
+length = "mm"
+[[body]]
+name = "bob"
+group = "pendulum"
+shape = "point"
+mass = "0.02 +- 0.0001"
+at = [50, 0, 0]
+[[body]]
+name = "big"
+group = "attractor"
+shape = "cylinder"
+radius = 40
+length = 80
+density = 8000
+at = [0, 120, 0]
+"""
+
+
+def test_unreached_tolerance_exits_3_naming_what(tmp_path, capsys):
+    path = _write(tmp_path, UNREACHABLE)
+    # 1e-15 is below what double precision quadrature of a cylinder can reach (rounding ~1e-16 per
+    # term), as in compare's own exit-3 test
+    code = main(["bias", path, "--json", "--workers", "1", "--body", "bob", "--rtol", "1e-15"])
+    out, err = capsys.readouterr()
+    assert code == 3
+    data = json.loads(out)
+    assert data["reached"] is False and "torque" in data["not_reached"]
+    assert all("reached" in r for r in data["rows"])
+    assert err.count("\n") == 1 and "tolerance not reached for torque" in err
+    code = main(["bias", path, "--workers", "1", "--body", "bob", "--rtol", "1e-15"])
+    out, err = capsys.readouterr()
+    assert code == 3 and "tolerance NOT reached for: torque" in out
+    assert main(["bias", path, "--json", "--workers", "1", "--body", "bob", "--rtol", "1e-8"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["reached"] is True and data["not_reached"] == [] and all(r["reached"] for r in data["rows"])

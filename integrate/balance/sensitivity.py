@@ -79,13 +79,14 @@ class SensitivityRow:
     d_G: float | None
     G_ppm: float | None
     method: str
+    reached: bool = True
 
     def to_json(self) -> dict:
         return {"body": self.body, "parameter": self.parameter, "value": self.value,
                 "d_torque_axis": self.d_torque_axis, "u": self.u, "torque_ppm": self.torque_ppm,
                 "d_G": self.d_G, "G_ppm": self.G_ppm, "d_error": self.d_error,
                 "error_d_torque_axis": self.d_error, "step": self.step,
-                "method": self.method}
+                "method": self.method, "reached": self.reached}
 
 
 @dataclass(frozen=True)
@@ -102,6 +103,7 @@ class WhatIfResult:
     G_ppm: float | None
     error_torque: float
     G_method: str | None = None
+    reached: bool = True
 
     @property
     def d_torque_axis(self) -> float:
@@ -112,13 +114,15 @@ class WhatIfResult:
                 "torque_before": self.torque_before, "torque_after": self.torque_after,
                 "d_torque_axis": self.d_torque_axis, "torque_ppm": self.torque_ppm, "G_ppm": self.G_ppm,
                 "error_torque": self.error_torque, "error_torque_axis": self.error_torque,
-                "G_method": self.G_method}
+                "G_method": self.G_method, "reached": self.reached}
 
 
 @dataclass(frozen=True)
 class BiasResult:
     """Ranked rows (largest |ppm| first, then largest |d * step|), the torque they refer to (N m) at
-    `position`, the G model used (None without a measurement) and notes."""
+    `position`, the G model used (None without a measurement) and notes. `torque_reached`: whether the
+    engine reached the tolerance for the torques of the scene itself (at every position used); each
+    row says the same for the evaluations it was made from."""
 
     rows: tuple[SensitivityRow, ...]
     torque_axis: float
@@ -129,13 +133,24 @@ class BiasResult:
     rtol: float
     step_factor: float
     notes: tuple[str, ...] = field(default_factory=tuple)
+    torque_reached: bool = True
+
+    @property
+    def not_reached(self) -> tuple[str, ...]:
+        """What missed the tolerance: "torque" for the scene's own torque, "BODY PARAMETER" per row."""
+        return (("torque",) if not self.torque_reached else ()) + \
+            tuple(f"{r.body} {r.parameter}" for r in self.rows if not r.reached)
+
+    @property
+    def reached(self) -> bool:
+        return not self.not_reached
 
     def to_json(self) -> dict:
         return {"rows": [r.to_json() for r in self.rows], "torque_axis": self.torque_axis,
                 "torque_error": self.torque_error, "error_torque_axis": self.torque_error,
                 "position": self.position, "G": self.G,
                 "G_model": self.G_model, "rtol": self.rtol, "step_factor": self.step_factor,
-                "notes": list(self.notes)}
+                "notes": list(self.notes), "reached": self.reached, "not_reached": list(self.not_reached)}
 
 
 # ------------------------------------------------------------------------------------------------
@@ -156,28 +171,54 @@ def placed(scene, body: Body, position) -> Body:
     return body.moved(move) if group == body.group else body
 
 
-def body_pairs(scene, body: Body, position, test: str, source: str, rtol: float) -> np.ndarray:
-    """[torque_axis, K, err_torque, err_K] of the pairs of the (drawn) `body` with the other group, at
-    `position`; zeros for a body of neither group."""
+def body_tolerances(scene, body: Body, position, test: str, source: str, rtol: float) -> np.ndarray | None:
+    """Absolute tolerances of the (drawn) `body`'s pairs with the other group at `position`, as the whole
+    scene sets them (`interaction.pair_tolerances` of both groups): shape (1, n_source, 8) for a test
+    body, (n_test, 1, 8) for a source body, None for a body of neither group. Each pair's tolerance is
+    thus held to the scene's totals, as in `compare`, not to the body's own share (which may cancel by
+    symmetry, e.g. a beam centred on the axis, and would ask for needless digits)."""
+    from truepull.integrate.interaction import pair_tolerances
+
+    if body.group not in (test, source):
+        return None
+    sc = scene.at_position(position) if position is not None else scene
+    tb, sb = sc.group(test), sc.group(source)
+    tols = pair_tolerances(tb, sb, sc.frame.pivot, sc.frame.axis, sc.G.value, rtol)
+    if body.group == test:
+        i = [b.name for b in tb].index(body.name)
+        return tols[i:i + 1]
+    j = [b.name for b in sb].index(body.name)
+    return tols[:, j:j + 1]
+
+
+def body_pairs(scene, body: Body, position, test: str, source: str, rtol: float,
+               tols: np.ndarray | None = None) -> tuple[np.ndarray, bool]:
+    """([torque_axis, K, err_torque, err_K], reached) of the pairs of the (drawn) `body` with the other
+    group, at `position`; zeros (and reached) for a body of neither group. `tols`: the pairs' absolute
+    tolerances (default `body_tolerances` of `body` itself)."""
     from truepull.integrate.interaction import interaction_totals
 
+    if body.group not in (test, source):
+        return np.zeros(4), True
     sc = scene.at_position(position) if position is not None else scene
     b = placed(scene, body, position)
     if body.group == test:
         tb, sb = [b], [x for x in sc.group(source)]
-    elif body.group == source:
-        tb, sb = [x for x in sc.group(test)], [b]
     else:
-        return np.zeros(4)
+        tb, sb = [x for x in sc.group(test)], [b]
+    if tols is None:
+        tols = body_tolerances(scene, body, position, test, source, rtol)
     e = sc.frame.axis
-    v, err, _, _ = interaction_totals(tb, sb, sc.frame.pivot, e, sc.G.value, rtol)
-    return np.array([v[3:6] @ e, v[6], err[3:6] @ np.abs(e), err[6]])
+    v, err, _, reached = interaction_totals(tb, sb, sc.frame.pivot, e, sc.G.value, rtol, tols=tols)
+    return np.array([v[3:6] @ e, v[6], err[3:6] @ np.abs(e), err[6]]), bool(reached)
 
 
 @dataclass(frozen=True)
 class StencilJob:
     """What a worker needs to evaluate one perturbed body: the scene (re-loaded from `scene_path`
-    when given), positions, groups and tolerance."""
+    when given), positions, groups, tolerance and, per body name, the pair tolerances of the body as
+    drawn at each position (`body_tolerances`; the perturbed body keeps them, so that the stencil's
+    values differ by the change alone and not by a changed quadrature)."""
 
     scene_path: str | None
     scene: object
@@ -185,15 +226,18 @@ class StencilJob:
     test: str
     source: str
     rtol: float
+    tolerances: dict = field(default_factory=dict)
 
 
-def stencil_value(job: StencilJob, item) -> np.ndarray:
-    """(n_positions, 4) body-pair values for one item (body name, parameter, value)."""
+def stencil_value(job: StencilJob, item) -> tuple[np.ndarray, bool]:
+    """((n_positions, 4) body-pair values, all reached) for one item (body name, parameter, value)."""
     name, param, value = item
     scene = scene_from(job.scene_path, job.scene)
     body = scene.body(name)
     new = build_body(spec_with(body.spec, param, value))
-    return np.array([body_pairs(scene, new, p, job.test, job.source, job.rtol) for p in job.positions])
+    tols = job.tolerances.get(name) or (None,) * len(job.positions)
+    out = [body_pairs(scene, new, p, job.test, job.source, job.rtol, t) for p, t in zip(job.positions, tols)]
+    return np.array([v for v, _ in out]), all(r for _, r in out)
 
 
 # ------------------------------------------------------------------------------------------------
@@ -388,9 +432,13 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
                              f"'{test}' or '{source}' group")
 
     # the engine's relative error on each body's pair torques sets its step (at most rtol)
+    tolerances = {b.name: tuple(body_tolerances(scene, b, p, test, source, rtol) for p in positions)
+                  for b in chosen}
+    centres = {b.name: [body_pairs(scene, b, p, test, source, rtol, t) for p, t in zip(positions, tolerances[b.name])]
+               for b in chosen}
     noise = {}
     for b in chosen:
-        share = body_pairs(scene, b, positions[0], test, source, rtol)
+        share = centres[b.name][0][0]
         noise[b.name] = min(rtol, max(share[2] / max(abs(share[0]), 1e-300), NOISE_FLOOR))
 
     # stencils for placement and size parameters, all in one parallel map
@@ -406,7 +454,7 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
             h = choose_step(scene, b, param, meas.value, positions, test, source, rtol, noise[b.name])
             plan.append((b, param, meas, h, len(items)))
             items += [(b.name, param, meas.value + k * h) for k in OFFSETS]
-    job = StencilJob(scene_path, None if scene_path else scene, positions, test, source, rtol)
+    job = StencilJob(scene_path, None if scene_path else scene, positions, test, source, rtol, tolerances)
     values = map_parallel(partial(stencil_value, job), items, workers=workers, scheduler=scheduler,
                           progress=progress, desc="sensitivities")
 
@@ -414,8 +462,9 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
     pos_i = {p: i for i, p in enumerate(positions)}
     model_i = [pos_i[p] for p in model.positions] if model else []
     for b, param, meas, h, start in plan:
-        block = np.array(values[start:start + len(OFFSETS)])  # (4, n_pos, 4)
-        centre = np.array([body_pairs(scene, b, p, test, source, rtol) for p in positions])
+        block = np.array([v for v, _ in values[start:start + len(OFFSETS)]])  # (4, n_pos, 4)
+        reached = all(r for _, r in values[start:start + len(OFFSETS)])
+        centre = np.array([v for v, _ in centres[b.name]])
         noise = np.max(block[:, :, 2:4], axis=0)  # engine error estimates per position
         d = np.zeros((len(positions), 2))
         de = np.zeros((len(positions), 2))
@@ -435,7 +484,7 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
                   - placed(scene, Im, mp0).inertia_about(scene.frame.pivot, scene.frame.axis)) / (2 * hI)
         lnG = dlnG(dI, d[model_i, q_index]) if model else None
         rows.append(_row(b.name, param, meas, d[0, 0], de[0, 0], h, tau0, lnG, G,
-                         "central differences (Richardson, steps h and 2h)"))
+                         "central differences (Richardson, steps h and 2h)", reached))
 
     # density and mass: linear, exact
     for b in chosen:
@@ -446,7 +495,8 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
         meas = params[key]
         if meas is None or not meas.value:
             continue
-        share = np.array([body_pairs(scene, b, p, test, source, rtol) for p in positions])
+        share = np.array([v for v, _ in centres[b.name]])
+        reached = all(r for _, r in centres[b.name])
         d_all = share[:, 0:2] / meas.value
         err = share[0, 2] / abs(meas.value)
         dI = 0.0
@@ -454,7 +504,7 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
             dI = placed(scene, b, model.positions[0]).inertia_about(scene.frame.pivot, scene.frame.axis) / meas.value
         lnG = dlnG(dI, d_all[model_i, q_index]) if model else None
         rows.append(_row(b.name, key, meas, d_all[0, 0], err, None, tau0, lnG, G,
-                         "exact: the torque is linear in the " + key))
+                         "exact: the torque is linear in the " + key, reached))
 
     # turns: each position that turns the test or source group about the frame axis (its own stated
     # uncertainty); without positions, the source group's turn as drawn
@@ -474,7 +524,8 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
             lnG = dlnG(0.0, dq)
         err = comps[pname].error.stiffness_axis if pname == position else 0.0
         rows.append(_row(grp, label, meas, d_here, err, None, tau0, lnG, G,
-                         f"exact: d(torque)/d(turn) = {'+' if sign > 0 else '-'}stiffness at that position"))
+                         f"exact: d(torque)/d(turn) = {'+' if sign > 0 else '-'}stiffness at that position",
+                         comps[pname].reached))
 
     notes = []
     if model is not None:
@@ -483,18 +534,22 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
                  f"smaller, e the engine's relative error on the body's pairs (at most rtol = {rtol:g}, so at most "
                  f"{step_factor(rtol):.3g}); halved until the displaced body keeps clear")
     rows.sort(key=_rank_key)
+    unreached = [p if isinstance(p, str) else "the scene as drawn" for p in positions if not comps[p].reached]
+    if unreached:
+        notes.append(f"tolerance {rtol:g} not reached for the torque at {', '.join(unreached)}")
     return BiasResult(tuple(rows), tau0, c0.error.torque_axis, position if isinstance(position, str) else None,
-                      G, model.description if model else None, rtol, step_factor(rtol), tuple(notes))
+                      G, model.description if model else None, rtol, step_factor(rtol), tuple(notes),
+                      torque_reached=all(c.reached for c in comps.values()))
 
 
-def _row(body, param, meas, d, err, h, tau0, lnG, G, method) -> SensitivityRow:
+def _row(body, param, meas, d, err, h, tau0, lnG, G, method, reached=True) -> SensitivityRow:
     u = meas.u if meas is not None else None
     u = float(u) if u else None
     ppm = 1e6 * d * u / tau0 if (u is not None and tau0 != 0) else None
     dG = G * lnG if lnG is not None else None
     Gppm = 1e6 * lnG * u if (lnG is not None and u is not None) else None
     return SensitivityRow(body, param, float(meas.value) if meas is not None else 0.0, float(d), float(err),
-                          None if h is None else float(h), u, ppm, dG, Gppm, method)
+                          None if h is None else float(h), u, ppm, dG, Gppm, method, bool(reached))
 
 
 def _rank_key(r: SensitivityRow):
@@ -562,14 +617,15 @@ def void_sphere(scene, name: str, radius: float, offset) -> Body:
 
 
 def _state(scene, positions, test, source, rtol):
-    """(per-position torque, stiffness, torque error) of the whole scene."""
+    """((per-position torque, stiffness, torque error), all reached) of the whole scene."""
     from truepull.integrate.interaction import compare_groups
 
-    out = []
+    out, reached = [], True
     for p in positions:
         c = compare_groups(scene, test, source, p, rtol)
         out.append((c.exact.torque_axis, c.exact.stiffness_axis, c.error.torque_axis))
-    return np.array(out)
+        reached = reached and c.reached
+    return np.array(out), reached
 
 
 def what_if(scene, kind: str, body: str, new_scene, description: str, test="pendulum", source="attractor",
@@ -580,17 +636,18 @@ def what_if(scene, kind: str, body: str, new_scene, description: str, test="pend
         position = default_position(scene)
     model = g_model(scene, test)
     positions = [position] + ([p for p in model.positions if p != position] if model else [])
-    before = _state(scene, positions, test, source, rtol)
-    after = _state(new_scene, positions, test, source, rtol)
+    before, reached_before = _state(scene, positions, test, source, rtol)
+    after, reached_after = _state(new_scene, positions, test, source, rtol)
     t0, t1 = before[0, 0], after[0, 0]
     ppm = 1e6 * (t1 - t0) / t0 if t0 != 0 else float("nan")
     G_ppm, how = None, None
     if model is not None and full_reduction:
         from truepull.integrate.balance.reduction import reduce_measurement
 
-        g0 = reduce_measurement(scene, test=test, source=source, rtol=rtol).G
-        g1 = reduce_measurement(new_scene, test=test, source=source, rtol=rtol).G
-        G_ppm, how = 1e6 * (g1 / g0 - 1.0), "full reduction"
+        r0 = reduce_measurement(scene, test=test, source=source, rtol=rtol)
+        r1 = reduce_measurement(new_scene, test=test, source=source, rtol=rtol)
+        G_ppm, how = 1e6 * (r1.G / r0.G - 1.0), "full reduction"
+        reached_after = reached_after and r0.reached and r1.reached
     elif model is not None:
         idx = [positions.index(p) for p in model.positions]
         qi = 1 if model.quantity == "stiffness" else 0
@@ -599,7 +656,7 @@ def what_if(scene, kind: str, body: str, new_scene, description: str, test="pend
         G_ppm = 1e6 * math.expm1(model.log_change(I0, I1, before[idx, qi], after[idx, qi]))
         how = model.description
     return WhatIfResult(kind, body, description, float(t0), float(t1), float(ppm), G_ppm,
-                        float(before[0, 2] + after[0, 2]), how)
+                        float(before[0, 2] + after[0, 2]), how, reached_before and reached_after)
 
 
 def offset_what_if(scene, name, vector, **kw) -> WhatIfResult:
