@@ -160,8 +160,8 @@ def render(scene, result, what_ifs) -> str:
                      f"(+- {fmt(result.torque_error, 2)})")
         if result.G_model:
             lines.append(f"G model: {result.G_model}")
-        headers = ["body", "parameter", "value", "d torque / d parameter", "u", "torque ppm", "d G / d parameter",
-                   "G ppm"]
+        headers = ["body", "parameter", "value (SI)", "d torque / d parameter (N m per SI unit)", "u (SI)",
+                   "torque (ppm)", "d G / d parameter (per SI unit)", "G (ppm)"]
         rows = [[r.body, r.parameter, fmt(r.value, 6), fmt(r.d_torque_axis, 6), fmt(r.u, 3) if r.u else "-",
                  _ppm(r.torque_ppm), fmt(r.d_G, 4) if r.d_G is not None else "-", _ppm(r.G_ppm)]
                 for r in result.rows]
@@ -174,7 +174,7 @@ def render(scene, result, what_ifs) -> str:
     if what_ifs:
         lines.append("")
         lines.append("what if")
-        headers = ["change", "torque before (N m)", "after (N m)", "torque ppm", "G ppm"]
+        headers = ["change", "torque before (N m)", "after (N m)", "torque (ppm)", "G (ppm)"]
         lines.append(format_table(headers, what_if_rows(what_ifs), "lrrrr"))
     missed = not_reached(result, what_ifs)
     rtol = result.rtol if result is not None else None

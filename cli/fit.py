@@ -184,8 +184,8 @@ def table_text(fits: tuple[SegmentFit, ...], time_unit: str, angle_unit: str) ->
     tf = si_factor(time_unit, "time", None, "--time-unit")
     af = _angle_factor(angle_unit)
     tu, au = _unit_label(time_unit), _unit_label(angle_unit)
-    headers = ["#", "position", f"from [{tu}]", f"to [{tu}]", "points", f"period [{tu}]", "decrement",
-               f"equilibrium [{au}]", f"amplitude [{au}]", f"drift [{au}/{tu}]", f"residual rms [{au}]",
+    headers = ["#", "position", f"from ({tu})", f"to ({tu})", "points", f"period ({tu})", "decrement",
+               f"equilibrium ({au})", f"amplitude ({au})", f"drift ({au}/{tu})", f"residual rms ({au})",
                "lag-1", "Durbin-Watson"]
     rows = []
     for k, f in enumerate(fits, start=1):
@@ -492,7 +492,7 @@ def run_text(run: RunFit, time_unit: str, angle_unit: str) -> str:
              f"equation of motion: {run.eom_order}; {run.n_points} points, {run.n_parameters} parameters"]
     if run.bic:
         lines.append("  BIC by drift order: " + ", ".join(f"{k}: {v:.1f}" for k, v in run.bic.items()))
-    headers = ["position", f"equilibrium [{au}]", f"period [{tu}]", "decrement", "segments"]
+    headers = ["position", f"equilibrium ({au})", f"period ({tu})", "decrement", "segments"]
     rows = []
     for i, p in enumerate(run.positions):
         rows.append([p, _pm(run.equilibria[i], run.u_equilibria[i], af), _pm(run.period[i], run.u_period[i], tf),

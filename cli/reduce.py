@@ -266,7 +266,7 @@ def method_lines(data: dict) -> list[str]:
     if data["method"] == "acceleration":
         rows = [[str(h["harmonic"]), fmt(h["amplitude"], 9), fmt(h["amplitude_point"], 9),
                  f"{math.degrees(h['phase']):.4f}"] for h in t["harmonics"]]
-        return [format_table(["harmonic", "|T_n| per unit G", "point model", "phase deg"], rows, align="rrrr"),
+        return [format_table(["harmonic", "|T_n| per unit G (kg^2 m^-1)", "point model", "phase (deg)"], rows, align="rrrr"),
                 f"|T_{t['harmonic']}| = {t['amplitude']:.12g} +- {t['amplitude_error']:.2g} kg^2 m^-1 ({t['route']})"]
     prow = [[p["position"], fmt(p["equilibrium"] * 1e3, 9), fmt(p["torque_axis"], 6), fmt(p["stiffness_axis"], 6),
              "-" if p["period_ratio"] is None else fmt(p["period_ratio"], 12),
@@ -274,10 +274,10 @@ def method_lines(data: dict) -> list[str]:
     if data["method"] == "servo":
         rows = [[p["position"], fmt(tau, 9), fmt(g, 9), fmt(p["torque_axis"], 9)]
                 for p, tau, g in zip(data["positions"], t["servo_torque"], t["gamma_per_G"])]
-        return [format_table(["position", "servo torque N m", "Gamma per unit G", "G Gamma N m"], rows, align="lrrr"),
+        return [format_table(["position", "servo torque (N m)", "Gamma per unit G (kg^2 m^-1)", "G Gamma (N m)"], rows, align="lrrr"),
                 f"common torque offset {t['offset_torque']:.6g} N m (cancels)"]
-    return [format_table(["position", "equilibrium mrad", "torque N m", "stiffness N m/rad",
-                          "T(A)/T(0)", "engine turns mrad"], prow, align="lrrrrl")]
+    return [format_table(["position", "equilibrium (mrad)", "torque (N m)", "stiffness (N m/rad)",
+                          "T(A)/T(0)", "engine turns (mrad)"], prow, align="lrrrrl")]
 
 
 def inertia_line(data: dict) -> str:
@@ -291,7 +291,7 @@ def comparison_lines(data: dict) -> list[str]:
         return []
     rows = [[r["method"], f"{r['G']:.9g}", "-" if r["u_G"] is None else f"{r['u_G']:.3g}",
              "-" if r["u_G"] is None else f"{r['u_G'] / r['G'] * 1e6:.3g}"] for r in data["methods"]]
-    out = ["methods side by side:", format_table(["method", f"G {G_UNIT}", "u(G)", "u ppm"], rows, align="lrrr")]
+    out = ["methods side by side:", format_table(["method", f"G ({G_UNIT})", "u(G)", "u (ppm)"], rows, align="lrrr")]
     for c in data["comparison"]:
         a, b = c["methods"]
         line = f"{a} - {b}: {c['difference']:.3g} ({c['difference_ppm']:+.3g} ppm)"

@@ -91,7 +91,7 @@ def test_table_with_a_measurement_has_g_columns(tmp_path, capsys):
     png = tmp_path / "bias.png"
     assert main(["bias", path, "--workers", "1", "--body", "ball", "--flatten", "ball:0.02", "--png", str(png)]) == 0
     out = capsys.readouterr().out
-    assert "G ppm" in out and "G model: first order (deflection)" in out and "what if" in out
+    assert "G (ppm)" in out and "G model: first order (deflection)" in out and "what if" in out
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     only_what_ifs = tmp_path / "what-if.png"
     assert main(["bias", path, "--no-table", "--offset", "ball:1,0,0", "--png", str(only_what_ifs)]) == 0

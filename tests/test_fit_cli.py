@@ -117,7 +117,7 @@ def test_segments_by_position_column(tmp_path, capsys):
     # the text table names its units
     assert main(["fit", data, "--angle-unit", "mrad"]) == 0
     text = capsys.readouterr().out
-    assert "period [s]" in text and "equilibrium [mrad]" in text and "far" in text
+    assert "period (s)" in text and "equilibrium (mrad)" in text and "far" in text
 
 
 def test_units_at_the_edge(tmp_path, capsys):
