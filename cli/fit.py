@@ -394,6 +394,11 @@ def measured_scene_text(scene_path: str, args, fits, run, out_dir: Path) -> tupl
                              f"position '{name}' is not a [[position]] of {scene_path} "
                              f"(positions there: {', '.join(map(str, known)) or 'none'})")
     old = data.get("measurement", {})
+    if isinstance(old, list):
+        # replacing them all by one [measurement] would drop the other methods' tables without a word
+        raise InputError(scene_path, "measurement",
+                         f"the scene has {len(old)} [[measurement]] tables; --into fills a single [measurement] "
+                         f"table: give it a scene with one (or none) and reduce the others from their own file")
     keep = {k: old[k] for k in ("fiber_q",) if isinstance(old, dict) and isinstance(old.get(k), (str, int, float))}
     block, notes = measurement_block(tuple(named), getattr(args, "method", None), Path(args.data).name, keep, run)
     new_text = replace_table(text, "measurement", block, file=scene_path)

@@ -314,3 +314,19 @@ def test_run_fit_in_json_states_the_model_and_finds_the_generator_drift(capsys):
     assert run3["model"]["drift_order"] == 3 and run3["model"]["drift_criterion"] == "given"
     assert len(run3["drift"]["coefficients"]) == 3
     assert main(["fit", str(demo_run_path()), "--drift-order", "-1"]) == 2
+
+
+def test_into_refuses_a_scene_with_several_measurement_tables(tmp_path, capsys):
+    # one [measurement] cannot stand for several [[measurement]] tables: refused, nothing written
+    text = SCENE.replace('[measurement]    # to be replaced\nmethod = "deflection"\n'
+                         'angle = { near = 0.1, far = 0.2 }\nperiod = 400\nfiber_q = 2500\n',
+                         '[[measurement]]\nmethod = "deflection"\nangle = { near = 0.1, far = 0.2 }\nperiod = 400\n'
+                         '[[measurement]]\nmethod = "swing"\nperiod = { near = 400, far = 401 }\n')
+    assert text != SCENE
+    scene = tmp_path / "two.toml"
+    scene.write_text(text)
+    _, data = _scene_and_data(tmp_path)
+    new = tmp_path / "filled.toml"
+    msg = run_bad(capsys, ["fit", data, "--into", str(scene), "--out", str(new)])
+    assert "[[measurement]]" in msg and "two.toml" in msg and not new.exists()
+    assert scene.read_text() == text
