@@ -330,7 +330,10 @@ def load_scene_text(text: str, path_for_messages: str = "-", base_dir: str | Non
         if spec.name in seen:
             r.fail(f"body[{spec.name}].name", f"duplicate body name '{spec.name}'")
         seen.add(spec.name)
-        bodies.append(build_body(spec))
+        body = build_body(spec)
+        if body.has_gradient:
+            _check_density_stays_positive(r, body)
+        bodies.append(body)
     groups = tuple(dict.fromkeys(b.group for b in bodies))
 
     positions = _read_positions(r, data.get("position", []), groups)
@@ -499,6 +502,23 @@ def _read_matter(r: _Reader, t: dict, kind: str, where: str):
         if not mass.value > 0:
             r.fail(f"{where}.mass", "mass must be greater than zero (for a hole use subtract = true)")
     return density, material, mass
+
+
+def _check_density_stays_positive(r: _Reader, body) -> None:
+    """Refuse a density gradient that takes the density through zero inside the body: the lowest
+    density is |rho0| - |g| (h(-g/|g|) + (g/|g|) . at), h the body's support function (m)."""
+    from truepull.geometry.support import support
+
+    sign = -1.0 if body.density < 0 else 1.0
+    g = sign * (body.placement.rotation @ body.gradient)
+    size = float(np.linalg.norm(g))
+    n = g / size
+    reach = float(support(body, -n)[0] + n @ body.placement.translation)
+    lowest = abs(body.density) - size * reach
+    if lowest < 0:
+        r.fail(f"body[{body.name}].density_gradient",
+               f"takes the density below zero inside the body ({lowest:.4g} kg/m^3 at its far side, "
+               f"{abs(body.density):.6g} kg/m^3 at its reference point): a linear density must stay positive")
 
 
 def _read_gradient(r: _Reader, t: dict, kind: str, where: str):

@@ -171,3 +171,34 @@ density_gradient = [0, 0, "2e-5 +- 1e-5"]
     bad = text.replace('shape = "sphere"\nradius = 20\ndensity = 11.34', 'shape = "point"\nmass = 1')
     with pytest.raises(InputError, match="density_gradient"):
         load_scene_text(bad)
+
+
+def test_a_gradient_that_takes_the_density_below_zero_is_refused():
+    """rho = rho0 + g z over a ball of radius R is lowest at z = -R (for g along +z): positive when
+    g R < rho0 (the linear form's minimum over the ball, elementary). 11.34 g/cm^3 over 20 mm allows
+    g up to 0.567 g/cm^3 per mm: 0.56 loads, 0.57 is refused naming the key, also turned and as a hole."""
+    import pytest
+
+    from truepull.geometry.errors import InputError
+    from truepull.geometry.scene import load_scene_text
+
+    def scene(g, extra=""):
+        return f"""
+[units]
+length = "mm"
+density = "g/cm^3"
+[[body]]
+name = "s"
+group = "attractor"
+shape = "sphere"
+radius = 20
+density = 11.34
+density_gradient = [0, {g}, 0]
+{extra}
+"""
+
+    load_scene_text(scene(0.56))
+    load_scene_text(scene(-0.56, 'rotate = { axis = [0, 0, 1], angle = 90 }'))
+    for g, extra in [(0.57, ""), (-0.57, 'rotate = { axis = [0, 0, 1], angle = 90 }'), (0.57, "subtract = true")]:
+        with pytest.raises(InputError, match=r"body\[s\]\.density_gradient.*below zero"):
+            load_scene_text(scene(g, extra))
