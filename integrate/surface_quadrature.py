@@ -75,6 +75,23 @@ def _node_values(X, W, U, g, rho, pivot, axis, centroid, magnitude=False):
     return vals
 
 
+def _term_magnitudes(X, W, U, g, rho, pivot, axis, centroid):
+    """Per-node magnitudes (M, 8) of the factors each integrand is made of, before they cancel: |U| |r| |W|
+    for a torque component (r x W can be pure rounding where r and W are parallel), and likewise for
+    the stiffness and energy; the rounding of forming and summing the terms is a few ulps of these."""
+    r = np.linalg.norm(X - pivot, axis=1)
+    q = np.linalg.norm(X - centroid, axis=1)
+    w = np.linalg.norm(W, axis=1)
+    gm = np.linalg.norm(np.asarray(g).reshape(X.shape[0], -1), axis=1)
+    au = abs(rho) * np.abs(U)
+    vals = np.empty((X.shape[0], N_QUANTITIES))
+    vals[:, 0:3] = au[:, None] * np.abs(W)
+    vals[:, 3:6] = (au * r * w)[:, None]
+    vals[:, 6] = abs(rho) * gm * r * r * w
+    vals[:, 7] = (abs(rho) / 3.0) * (np.abs(U) * q * w + 0.5 * q * q * w * gm)
+    return vals
+
+
 def field_tolerances(patchset: PatchSet, rho, pivot, axis, centroid, tol, order=8):
     """Absolute tolerances on U and |g| at the test nodes so that field errors use at most a tenth of
     the tolerance `tol` (8,) of the surface integrals."""
@@ -140,7 +157,7 @@ def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np
         U, g, dU, dg, rU, rg = field(np.concatenate([X, Xl, Xs]))
         nv = _node_values(X, W, U[:m], g[:m], rho, pivot, axis, centroid)
         v = per_cell(nv, order)
-        noise = ROUNDING_ULPS * EPS * per_cell(np.abs(nv), order)
+        noise = ROUNDING_ULPS * EPS * per_cell(_term_magnitudes(X, W, U[:m], g[:m], rho, pivot, axis, centroid), order)
         vl = per_cell(_node_values(Xl, Wl, U[m:ml], g[m:ml], rho, pivot, axis, centroid), order - 2)
         vs = per_cell(_node_values(Xs, Ws, U[ml:], g[ml:], rho, pivot, axis, centroid), order - 4)
         e1 = np.abs(v - vl)
@@ -174,8 +191,10 @@ def integrate_surface(patchset: PatchSet, rho: float, field: Callable, pivot: np
         if total_area is None:
             total_area = area.sum()
         share = (area / total_area)[:, None] * tol[None, :]
-        # a difference at the rounding level of the cell's own terms cannot be refined away
-        done = np.all(diff <= np.maximum(share, noise), axis=1)
+        # a difference at the rounding level of the cell's own terms, or within the rounding bound of
+        # the source's field at its nodes, cannot be refined away: splitting the cell would only
+        # multiply the evaluations (both bounds are part of the stated error)
+        done = np.all(diff <= np.maximum(share, np.maximum(noise, rnd)), axis=1)
         level += 1
         if level >= max_levels or 4 * np.count_nonzero(~done) > MAX_ACTIVE_CELLS:
             reached = bool(np.all(diff <= share))
