@@ -158,6 +158,19 @@ def _differenced_gradient(srcs, points, rtol):
     return T, trunc + noise
 
 
+def _refuse_inside_gradient_body(body, points):
+    """InputError for the first point inside (or on) a body with a density gradient: the field of its
+    linear density part is a volume quadrature of 1/r, which holds only outside the body."""
+    from truepull.geometry.distance import signed_distance
+
+    inside = signed_distance(body.shape, body.to_local(points)) <= 0.0
+    if np.any(inside):
+        i = int(np.flatnonzero(inside)[0])
+        raise InputError(None, "points", f"point {i + 1} {points[i].tolist()} m lies inside or on body "
+                         f"'{body.name}', which has a density gradient: its field is computed only outside "
+                         "such a body (the uniform density alone is defined inside)")
+
+
 def group_field_at_points(bodies, points, G, rtol=1e-9, gradient=True, source="group") -> PointField:
     """U, g and (if `gradient`) T of `bodies` (placed Body objects) at world `points` (N, 3) m."""
     points = _as_points(points)
@@ -208,6 +221,7 @@ def group_field_at_points(bodies, points, G, rtol=1e-9, gradient=True, source="g
         if b.has_gradient:  # the linear density part, by volume quadrature (outside the body)
             from truepull.integrate.linear_density import linear_field
 
+            _refuse_inside_gradient_body(b, points)
             parts = linear_field(b, points, G, rtol)
             U, g, T = U + parts[0], g + parts[1], T + parts[2]
             eU, eg, eT = eU + parts[3], eg + parts[4], eT + parts[5]

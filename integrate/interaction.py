@@ -254,23 +254,9 @@ def compare_positions(scene, test="pendulum", source="attractor", rtol=1e-9, pos
 
 def group_field(bodies, points, G, rtol=1e-9):
     """Potential U (J/kg) and field g (m/s^2) of a group of bodies at world points (N, 3), with
-    absolute error estimates (err_U, err_g); the same source fields the engine integrates."""
-    from truepull.integrate.sources import SourceField
+    absolute error estimates (err_U, err_g): field_at_points' values without the gradient tensor, so
+    density gradients are included (and points inside a gradient body refused)."""
+    from truepull.integrate.field_at_points import group_field_at_points
 
-    points = np.ascontiguousarray(points, float).reshape(-1, 3)
-    U = np.zeros(len(points))
-    g = np.zeros((len(points), 3))
-    eU = np.zeros(len(points))
-    eg = np.zeros(len(points))
-    for b in bodies:
-        src = SourceField(b, G)
-        # tolerances relative to the body's point field at each point's distance
-        d = np.maximum(np.linalg.norm(points - b.com, axis=1), b.bounding_sphere()[1] * 1e-3)
-        scale_u = G * abs(b.mass) / d.max()
-        scale_g = G * abs(b.mass) / d.max() ** 2
-        u_i, g_i, eu_i, eg_i = src.field(points, rtol * scale_u, rtol * scale_g)
-        U += u_i
-        g += g_i
-        eU += eu_i
-        eg += eg_i
-    return U, g, eU, eg
+    f = group_field_at_points(bodies, points, G, rtol, gradient=False)
+    return f.U, f.g, f.err_U, f.err_g

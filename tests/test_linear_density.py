@@ -202,3 +202,26 @@ density_gradient = [0, {g}, 0]
     for g, extra in [(0.57, ""), (-0.57, 'rotate = { axis = [0, 0, 1], angle = 90 }'), (0.57, "subtract = true")]:
         with pytest.raises(InputError, match=r"body\[s\]\.density_gradient.*below zero"):
             load_scene_text(scene(g, extra))
+
+
+def test_view_field_includes_the_gradient_and_refuses_points_inside():
+    """The 3-D view's field (interaction.group_field) carries the linear density part: a gradient
+    ball's field against the monopole-plus-dipole closed form (potential theory, as above); a point
+    inside the ball is refused rather than given the exterior formula's value."""
+    import pytest
+
+    from truepull.geometry.errors import InputError
+    from truepull.integrate.interaction import group_field
+
+    R, rho0, grad = 0.03, 8000.0, np.array([0.0, 400.0, -250.0])
+    c = np.array([0.0, 0.0, 0.0])
+    ball = gbody("ball", Sphere(R), c, rho0, grad)
+    M, p = rho0 * 4 / 3 * math.pi * R**3, grad * 4 * math.pi * R**5 / 15
+    pts = np.array([[0.07, 0.01, 0.0], [0.0, 0.0, -0.05]])
+    U, g, eU, eg = group_field([ball], pts, G, 1e-10)
+    for i, x in enumerate(pts):
+        u_ref, g_ref, _ = ball_reference(x, c, M, p)
+        assert abs(U[i] - u_ref) <= max(eU[i], 1e-13 * abs(u_ref))
+        assert np.linalg.norm(g[i] - g_ref) <= max(eg[i], 1e-13 * np.linalg.norm(g_ref))
+    with pytest.raises(InputError, match="inside or on body 'ball'"):
+        group_field([ball], np.array([[0.01, 0.0, 0.0]]), G, 1e-10)
