@@ -474,6 +474,20 @@ def prism_mp(point, half, rho, G=G, dps=40):
         return U, g, Tm
 
 
+def placed_field_mp(local_field, placement, point, dps=40):
+    """(U, g (3x1), T (3x3), mpmath matrices) at world `point` (doubles) of a body placed by
+    `placement` whose field in its own frame is `local_field(local point, 3 mpf) -> (U, g, T)`: the
+    change to the body's frame, local = R^T (p - t), and the rotation back, g = R g_local and
+    T = R T_local R^T, are done in mpmath from the doubles, so the result is the exact answer to the
+    question asked of the engine."""
+    with mp.workdps(dps):
+        R = mp.matrix([[mp.mpf(float(x)) for x in row] for row in placement.rotation])
+        d = mp.matrix([mp.mpf(float(point[i])) - mp.mpf(float(placement.translation[i])) for i in range(3)])
+        local = R.T * d
+        u, gl, Tl = local_field([local[i] for i in range(3)])
+        return u, R * mp.matrix(gl), R * mp.matrix(Tl) * R.T
+
+
 # ------------------------------------------------------------------------------------------
 # the homogeneous polyhedron at 40 digits (mpmath), independent of integrate/field_polyhedron.py
 # ------------------------------------------------------------------------------------------

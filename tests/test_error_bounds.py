@@ -30,7 +30,7 @@ import mpmath as mp
 import numpy as np
 import pytest
 import trimesh
-from engine_references import G, body, prism_mp
+from engine_references import G, body, placed_field_mp, prism_mp
 from scipy.spatial.transform import Rotation
 
 from truepull.geometry.errors import InputError
@@ -61,22 +61,20 @@ def box_mesh(half, subdivide=0):
 
 
 def mp_reference(bodies, point, pivot, axis):
-    """(U, g, T, F, tau, K, E) in mpmath for a point mass MASS at world `point` in the field of the
-    prisms `bodies` (box or box-mesh bodies, each with half-sizes in `half`), all from the doubles."""
+    """(U, g, T, F, tau, K, E) in mpmath for a point mass MASS at world `point` in the field of
+    `bodies`, pairs (body, half-sizes) of prisms (box or box-mesh bodies) or (body, f) with f(local
+    point) -> (U, g, T) the body's field in its frame at DPS digits, all from the doubles."""
     with mp.workdps(DPS):
-        P = [mp.mpf(float(c)) for c in point]
         U = mp.mpf(0)
         g = mp.matrix(3, 1)
         T = mp.matrix(3, 3)
         for b, half in bodies:
-            R = mp.matrix([[mp.mpf(float(x)) for x in row] for row in b.placement.rotation])
-            t = [mp.mpf(float(c)) for c in b.placement.translation]
-            d = mp.matrix([P[i] - t[i] for i in range(3)])
-            local = R.T * d                       # (p - t) @ R
-            u, gl, Tl = prism_mp([local[i] for i in range(3)], half, b.density, G, DPS)
+            local_field = half if callable(half) else \
+                (lambda local, b=b, half=half: prism_mp(local, half, b.density, G, DPS))
+            u, gw, Tw = placed_field_mp(local_field, b.placement, point, DPS)
             U += u
-            g += R * mp.matrix(gl)
-            T += R * mp.matrix(Tl) * R.T
+            g += gw
+            T += Tw
         r = mp.matrix([P[i] - mp.mpf(float(pivot[i])) for i in range(3)])
         e = mp.matrix([mp.mpf(float(c)) for c in axis])
         m = mp.mpf(MASS)
