@@ -102,9 +102,10 @@ def _closed_gradient(src, points):
 
             rel = max(rel, prism_error_estimate(0.5 * np.asarray(b.shape.size, float)))
         elif src.kind == "mesh":
-            from truepull.integrate.field_polyhedron import polyhedron_error_estimate
-
-            rel = np.maximum(rel, polyhedron_error_estimate(src._local(points), src._poly))
+            # the polyhedron kernel's rigorous bound (cancellation and the jump on a face included);
+            # it depends on T alone, so U and g are not needed (zeros)
+            n = len(points)
+            return T, src.rounding_bounds(points, np.zeros(n), np.zeros((n, 3)), T)[2]
     # rounding relative to the tensor's size, or to the interior scale 4 pi G |rho| where T cancels
     scale = np.linalg.norm(T, axis=(1, 2)) + 4.0 * np.pi * src.G * abs(b.density)
     return T, 10.0 * rel * scale

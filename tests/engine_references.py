@@ -24,6 +24,9 @@ general-purpose library routine it rests on; the engine tests compare against th
   mesh's volume cut into tetrahedra with a collapsed (Duffy) numpy Gauss-Legendre rule.
 - `plate_on_axis`: field on the axis of a uniform rectangular slab (solid angle of a rectangle,
   from memory), integrated over the thickness with scipy.integrate.quad.
+- `prism_mp`, `PolyhedronMP`: the prism corner sums of Nagy, Papp and Benedek (2000) and the
+  homogeneous polyhedron of Werner and Scheeres (1997, Celest. Mech. Dyn. Astron. 65:313) at 40
+  digits with mpmath, written from the papers' formulas, independent of the numba kernels.
 
 The stiffness convention is the engine's (CONTRACT.md): K = -d(torque . e)/d(theta) for a right-handed
 turn theta of the TEST body about the line through the pivot along e. For a body of mass element dm at
@@ -469,3 +472,109 @@ def prism_mp(point, half, rho, G=G, dps=40):
             b = (a + 1) % 3
             Tm[a][b] = Tm[b][a] = -k * T[a][b]
         return U, g, Tm
+
+
+def placed_field_mp(local_field, placement, point, dps=40):
+    """(U, g (3x1), T (3x3), mpmath matrices) at world `point` (doubles) of a body placed by
+    `placement` whose field in its own frame is `local_field(local point, 3 mpf) -> (U, g, T)`: the
+    change to the body's frame, local = R^T (p - t), and the rotation back, g = R g_local and
+    T = R T_local R^T, are done in mpmath from the doubles, so the result is the exact answer to the
+    question asked of the engine."""
+    with mp.workdps(dps):
+        R = mp.matrix([[mp.mpf(float(x)) for x in row] for row in placement.rotation])
+        d = mp.matrix([mp.mpf(float(point[i])) - mp.mpf(float(placement.translation[i])) for i in range(3)])
+        local = R.T * d
+        u, gl, Tl = local_field([local[i] for i in range(3)])
+        return u, R * mp.matrix(gl), R * mp.matrix(Tl) * R.T
+
+
+# ------------------------------------------------------------------------------------------
+# the homogeneous polyhedron at 40 digits (mpmath), independent of integrate/field_polyhedron.py
+# ------------------------------------------------------------------------------------------
+
+class PolyhedronMP:
+    """Potential, field and gradient of a homogeneous closed triangle mesh (outward-wound) at `dps`
+    digits, by the closed form of Werner and Scheeres (1997, Celest. Mech. Dyn. Astron. 65:313,
+    eqs. 15-16 and 27-28): with r_e, r_f the vectors from the point to any point of edge e / face f,
+    U = -(G rho / 2)(sum_e r_e.E_e.r_e L_e - sum_f r_f.F_f.r_f w_f), g = -grad U
+    = -G rho sum_e E_e r_e L_e + G rho sum_f F_f r_f w_f, T = dg/dx = G rho (sum_e E_e L_e - sum_f F_f w_f),
+    F_f = n_f n_f^T, E_e = n_A n_A12^T + n_B n_B21^T (face normals times the outward in-plane edge
+    normals of the two faces sharing edge e), L_e = ln((a + b + e)/(a + b - e)) and w_f the signed
+    solid angle 2 atan2(r_1.(r_2 x r_3), r_1 r_2 r_3 + r_1 r_2.r_3 + r_2 r_3.r_1 + r_3 r_1.r_2)
+    (Van Oosterom and Strackee 1983). Every quantity is formed in mpmath from the doubles given; a
+    point must not lie on an edge (there L is infinite and its zero coefficient is not separated)."""
+
+    def __init__(self, vertices, faces, dps=40):
+        self.dps = dps
+        with mp.workdps(dps):
+            self.v = [[mp.mpf(float(c)) for c in row] for row in np.asarray(vertices, float)]
+            self.faces = [tuple(int(i) for i in f) for f in np.asarray(faces)]
+            self.normals = []
+            owner = {}
+            for k, (i, j, l) in enumerate(self.faces):
+                n = _mp_cross(_mp_sub(self.v[j], self.v[i]), _mp_sub(self.v[l], self.v[i]))
+                self.normals.append(_mp_scale(n, 1 / mp.sqrt(_mp_dot(n, n))))
+                for a, b in ((i, j), (j, l), (l, i)):
+                    owner[(a, b)] = k
+            self.edges = []      # (vertex a, vertex b, length, dyad as 3x3 lists)
+            for (a, b), fa in owner.items():
+                if a > b:
+                    continue
+                fb = owner[(b, a)]
+                d = _mp_sub(self.v[b], self.v[a])
+                length = mp.sqrt(_mp_dot(d, d))
+                u = _mp_scale(d, 1 / length)
+                na, nb = self.normals[fa], self.normals[fb]
+                ea = _mp_cross(u, na)                       # in face A's plane, out of face A (a -> b in A)
+                eb = _mp_cross(_mp_scale(u, -1), nb)        # face B runs b -> a
+                E = [[na[r] * ea[c] + nb[r] * eb[c] for c in range(3)] for r in range(3)]
+                self.edges.append((a, b, length, E))
+
+    def field(self, point, rho, G):
+        """(U, g (3,), T (3x3 lists)) as mpf at `point` (3 doubles or mpf, the mesh's frame)."""
+        with mp.workdps(self.dps):
+            p = [mp.mpf(c) for c in point]
+            r = [_mp_sub(v, p) for v in self.v]
+            rn = [mp.sqrt(_mp_dot(x, x)) for x in r]
+            SU = mp.mpf(0)
+            Sg = [mp.mpf(0)] * 3
+            ST = [[mp.mpf(0)] * 3 for _ in range(3)]
+            for (i, j, l), n in zip(self.faces, self.normals):
+                r1, r2, r3 = r[i], r[j], r[l]
+                a, b, c = rn[i], rn[j], rn[l]
+                num = _mp_dot(r1, _mp_cross(r2, r3))
+                den = a * b * c + a * _mp_dot(r2, r3) + b * _mp_dot(r3, r1) + c * _mp_dot(r1, r2)
+                w = 2 * mp.atan2(num, den) if num != 0 else mp.mpf(0)
+                h = _mp_dot(n, r1)
+                SU -= h * h * w
+                for k in range(3):
+                    Sg[k] += n[k] * h * w
+                    for m in range(3):
+                        ST[k][m] -= n[k] * n[m] * w
+            for ia, ib, length, E in self.edges:
+                ra = r[ia]
+                L = mp.log((rn[ia] + rn[ib] + length) / (rn[ia] + rn[ib] - length))
+                Er = [_mp_dot(E[k], ra) for k in range(3)]
+                SU += _mp_dot(ra, Er) * L
+                for k in range(3):
+                    Sg[k] -= Er[k] * L
+                    for m in range(3):
+                        ST[k][m] += E[k][m] * L
+            s = mp.mpf(float(G)) * mp.mpf(float(rho))
+            return -s * SU / 2, [s * x for x in Sg], [[s * x for x in row] for row in ST]
+
+
+def _mp_sub(a, b):
+    return [a[0] - b[0], a[1] - b[1], a[2] - b[2]]
+
+
+def _mp_dot(a, b):
+    return a[0] * b[0] + a[1] * b[1] + a[2] * b[2]
+
+
+def _mp_cross(a, b):
+    return [a[1] * b[2] - a[2] * b[1], a[2] * b[0] - a[0] * b[2], a[0] * b[1] - a[1] * b[0]]
+
+
+def _mp_scale(a, s):
+    return [a[0] * s, a[1] * s, a[2] * s]

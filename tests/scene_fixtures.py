@@ -280,3 +280,30 @@ def small_cylinders_scene(n: int = 50) -> str:
                      f'material = "tungsten"\nat = [{x:.6f}, {y:.6f}, {z}]\n')
     parts.append('[[position]]\nname = "A"\ngroup = "attractor"\nturn = 3\n')
     return "\n".join(parts)
+
+
+def symmetric_tube(r_inner: float, r_outer: float, half_height: float, per_octant: int = 6):
+    """(vertices (4N, 3) m, faces (8N, 3)) of a closed outward-wound tube (N = 8 per_octant sides) whose
+    double-precision vertices are exactly symmetric under the quarter turn about z and the mirrors
+    x -> -x, y -> -y, z -> -z: the first octant's angles come from cos and sin, the rest by swapping and
+    negating coordinates (exact), so the field of this polyhedron vanishes exactly at its centre."""
+    import numpy as np
+
+    t = np.arange(per_octant + 1) * (np.pi / 4.0) / per_octant
+    c, s = np.cos(t), np.sin(t)
+    c[-1] = s[-1]                                   # 45 deg: the same value twice
+    quarter = np.concatenate([np.c_[c, s], np.c_[s[-2::-1], c[-2::-1]]])[:-1]     # 0 <= angle < 90 deg
+    ring = np.concatenate([quarter, quarter @ [[0.0, 1.0], [-1.0, 0.0]],          # (x, y) -> (-y, x)
+                           -quarter, quarter @ [[0.0, -1.0], [1.0, 0.0]]])        # ... by quarter turns
+    n = len(ring)
+    z = np.full((n, 1), half_height)
+    v = np.vstack([np.c_[r_outer * ring, z], np.c_[r_outer * ring, -z],
+                   np.c_[r_inner * ring, z], np.c_[r_inner * ring, -z]])
+    ot, ob, it, ib = (np.arange(n) + k * n for k in range(4))
+    nx = lambda a: np.roll(a, -1)                    # the next side round the axis
+    faces = np.concatenate([
+        np.c_[ob, nx(ob), nx(ot)], np.c_[ob, nx(ot), ot],          # outer wall, normal outward
+        np.c_[ib, nx(it), nx(ib)], np.c_[ib, it, nx(it)],          # inner wall, normal toward the axis
+        np.c_[it, ot, nx(ot)], np.c_[it, nx(ot), nx(it)],          # top, normal +z
+        np.c_[ib, nx(ob), ob], np.c_[ib, nx(ib), nx(ob)]])         # bottom, normal -z
+    return v, faces
