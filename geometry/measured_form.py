@@ -113,10 +113,14 @@ class FormReport:
         c00, u00 = f.coefficient(0, 0)
         k = 1.0 / math.sqrt(4.0 * math.pi)
         v, uv = f.volume()
+        terms = sorted(((l, m) for l in range(1, f.degree + 1) for m in range(-l, l + 1)),
+                       key=lambda lm: -abs(f.coefficient(*lm)[0]))[:3]
+        largest = ", ".join(f"Y{l},{m} {f.coefficient(l, m)[0] / (c00 * k):+.3g} +- {f.coefficient(l, m)[1] / (c00 * k):.2g}"
+                            for l, m in terms)
         return (f"'{name}' measured form ({Path(self.file).name}): {f.n_points} points, real spherical-harmonic "
                 f"fit of the radius to degree {f.degree} ({(f.degree + 1) ** 2} coefficients), RMS residual "
                 f"{f.rms:.3g} m (largest {f.max_residual:.3g} m); mean radius {c00 * k:.9g} +- {u00 * k:.2g} m, "
-                f"fitted volume {v:.9g} +- {uv:.2g} m^3; body: polyhedron of {self.triangles} triangles through "
+                f"fitted volume {v:.9g} +- {uv:.2g} m^3; largest terms eps_lm in r = R (1 + sum eps_lm Y_lm): {largest}; body: polyhedron of {self.triangles} triangles through "
                 f"the fitted surface, radii scaled by 1 {self.volume_scale - 1:+.3g} to the fitted volume, chord "
                 f"height up to {self.chord_height:.3g} m; each pair adds its change against {self.coarse_triangles} "
                 f"triangles to its error estimate")

@@ -264,6 +264,10 @@ def mesh_report(path, units: str = "m") -> dict:
         report["notes"].append(f"STEP tessellated at relative chord tolerances {STEP_TOLERANCES[0]:g} and "
                                f"{STEP_TOLERANCES[1]:g}: volume {vc:.9g} -> {vf:.9g} m^3 (change {vf - vc:.3g}, "
                                "the tessellation error); lengths in metres from the file's own units")
+    if is_measured(path):
+        report["notes"].append("a measured form (CSV): x, y, z points are closed as their convex hull; directions "
+                               "and radii are fitted by spherical harmonics to the degree the point count gives and "
+                               "tessellated (a scene's fit_degree sets the degree; `truepull check` states the fit)")
     if report["watertight"] and report["winding_consistent"]:
         name = Path(path).name
         _check_extent(v, name, str(path), None)
