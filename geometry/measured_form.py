@@ -65,8 +65,8 @@ class MeasuredPoints:
 
 @dataclass(frozen=True)
 class FormFit:
-    """Least-squares real spherical-harmonic fit of r(u) (m) to `degree`: coefficients (in the order of
-    `harmonic_indices`), their covariance (m^2), RMS and largest residual (m), point count."""
+    """Least-squares real spherical-harmonic fit of r(u) (m) to `degree`: coefficients (column l^2 + l + m
+    of `real_harmonics`), their covariance (m^2), RMS and largest residual (m), point count."""
 
     degree: int
     coefficients: np.ndarray
@@ -96,11 +96,11 @@ class FormFit:
 
 @dataclass(frozen=True)
 class FormReport:
-    """What the measured form is and how well it is known: the fit (None for a hull), the file, the
-    body's triangle count, the common radius scale that matched the volume, the chord height (m)."""
+    """What the measured form is and how well it is known: the fit, the file, the body's triangle count,
+    the common radius scale that matched the volume, the chord height (m), the coarse triangle count."""
 
     file: str
-    fit: FormFit | None
+    fit: FormFit
     triangles: int
     volume_scale: float
     chord_height: float
@@ -108,19 +108,19 @@ class FormReport:
 
     def note(self, name: str) -> str:
         f = self.fit
-        if f is None:
-            return f"'{name}' measured form ({Path(self.file).name}): convex hull of the points"
         c00, u00 = f.coefficient(0, 0)
         k = 1.0 / math.sqrt(4.0 * math.pi)
         v, uv = f.volume()
         terms = sorted(((l, m) for l in range(1, f.degree + 1) for m in range(-l, l + 1)),
                        key=lambda lm: -abs(f.coefficient(*lm)[0]))[:3]
-        largest = ", ".join(f"Y{l},{m} {f.coefficient(l, m)[0] / (c00 * k):+.3g} +- {f.coefficient(l, m)[1] / (c00 * k):.2g}"
+        mean = c00 * k
+        largest = ", ".join(f"Y{l},{m} {f.coefficient(l, m)[0] / mean:+.3g} +- {f.coefficient(l, m)[1] / mean:.2g}"
                             for l, m in terms)
         return (f"'{name}' measured form ({Path(self.file).name}): {f.n_points} points, real spherical-harmonic "
                 f"fit of the radius to degree {f.degree} ({(f.degree + 1) ** 2} coefficients), RMS residual "
-                f"{f.rms:.3g} m (largest {f.max_residual:.3g} m); mean radius {c00 * k:.9g} +- {u00 * k:.2g} m, "
-                f"fitted volume {v:.9g} +- {uv:.2g} m^3; largest terms eps_lm in r = R (1 + sum eps_lm Y_lm): {largest}; body: polyhedron of {self.triangles} triangles through "
+                f"{f.rms:.3g} m (largest {f.max_residual:.3g} m); mean radius {mean:.9g} +- {u00 * k:.2g} m, "
+                f"fitted volume {v:.9g} +- {uv:.2g} m^3; largest terms eps_lm in r = R (1 + sum eps_lm Y_lm): "
+                f"{largest}; body: polyhedron of {self.triangles} triangles through "
                 f"the fitted surface, radii scaled by 1 {self.volume_scale - 1:+.3g} to the fitted volume, chord "
                 f"height up to {self.chord_height:.3g} m; each pair adds its change against {self.coarse_triangles} "
                 f"triangles to its error estimate")

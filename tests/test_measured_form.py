@@ -30,7 +30,7 @@ from truepull.geometry.measured_form import (MeasuredPoints, chord_height, defau
                                              real_harmonics, sphere_rule)
 from truepull.geometry.meshes import load_mesh
 from truepull.geometry.placement import Placement
-from truepull.geometry.shapes import Point, Sphere
+from truepull.geometry.shapes import Point
 from truepull.integrate.sources import SourceField
 
 G = 6.6743e-11
@@ -272,4 +272,19 @@ def test_ideal_sphere_is_refused_for_other_bodies(tmp_path):
     scene = load_scene(tmp_path / "s.toml")
     with pytest.raises(InputError, match="not a fitted measured form"):
         ideal_sphere(scene, "ball")
-    assert isinstance(Sphere(1.0), Sphere)
+
+
+def test_the_three_column_sets_fit_the_same_form(tmp_path):
+    """x, y, z (with fit_degree), theta, phi, r and ux, uy, uz, r of the same noiseless r = R (1 + eps Y20):
+    each fit returns c00 = R sqrt(4 pi) and c20 = R eps (Y00 = 1 / sqrt(4 pi)) to rounding."""
+    R, eps = 0.02, 3e-3
+    u = _points(200)
+    r_mm = 1e3 * R * (1 + eps * _y20(u))
+    files = [_write(tmp_path / "p.csv", u * (r_mm[:, None] / 1e3)), _write_directions(tmp_path / "d.csv", u, r_mm)]
+    np.savetxt(tmp_path / "u.csv", np.column_stack([u, r_mm]), delimiter=",", header="ux,uy,uz,r", comments="")
+    files.append(tmp_path / "u.csv")
+    for path in files:
+        fit = load_mesh(path, "mm", fit_degree=2).form.fit
+        assert fit.coefficient(0, 0)[0] == pytest.approx(R * math.sqrt(4 * math.pi), rel=1e-9)
+        assert fit.coefficient(2, 0)[0] == pytest.approx(R * eps, rel=1e-6)
+        assert fit.rms < 1e-12

@@ -707,7 +707,7 @@ def ideal_sphere(scene, name: str) -> Body:
 
     b = scene.body(name)
     form = getattr(b.shape, "form", None)
-    if form is None or form.fit is None:
+    if form is None:
         raise InputError(scene.path, "--measured-form", f"'{name}' is not a fitted measured form (a mesh body "
                                                         "read from a CSV of directions and radii, or of points "
                                                         "with fit_degree)")
