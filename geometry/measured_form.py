@@ -147,7 +147,7 @@ def read_measured(path, file_units_factor: float, where, key) -> MeasuredPoints:
     path = Path(path)
     name = path.name
     try:
-        text = path.read_text(encoding="utf-8")
+        text = path.read_text(encoding="utf-8-sig")  # a byte-order mark some spreadsheets write is dropped
     except (OSError, UnicodeDecodeError) as exc:
         raise InputError(where, key, f"cannot read '{name}' ({getattr(exc, 'strerror', None) or exc})") from None
     rows = [(i + 1, row) for i, row in enumerate(csv.reader(text.splitlines())) if any(c.strip() for c in row)]
