@@ -8,6 +8,8 @@ change of G (first-order model, see truepull.integrate.balance.sensitivity). Wha
                                    polar axis along (ax, ay, az) (default: the frame axis)
   --void BODY:radius:dx,dy,dz      an off-centre spherical void of that radius (scene length unit) at
                                    that offset from the body's reference point (world axes)
+  --measured-form BODY             a fitted measured form (geometry/measured_form.py) against the ideal
+                                   sphere of its mass and centre of mass
 Each may be given more than once.
 Exit 3 (after the whole output) when the engine missed the tolerance for any value shown: the scene's
 torque, a row (its difference stencil or its pairs) or a what-if; the text, the JSON (`reached`,
@@ -24,8 +26,9 @@ from truepull.cli.options import show_progress
 from truepull.cli.output import fmt, format_table, not_reached_exit, print_json, save_figure_atomic
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
-from truepull.integrate.balance.sensitivity import (default_position, flatten_what_if, gradient_what_if, offset_what_if,
-                                            sensitivities, void_what_if)
+from truepull.integrate.balance.sensitivity import (default_position, flatten_what_if, gradient_what_if,
+                                                    measured_form_what_if, offset_what_if, sensitivities,
+                                                    void_what_if)
 
 HELP = "sensitivity of torque and G to each body's placement, size and density"
 
@@ -50,6 +53,9 @@ def add_arguments(parser) -> None:
     parser.add_argument("--gradient", action="append", default=[], metavar="GROUP:REL",
                         help="what if each body of GROUP had a density gradient along z of REL of its density "
                              "across its bounding diameter (e.g. attractor:1e-4)")
+    parser.add_argument("--measured-form", action="append", default=[], metavar="BODY",
+                        help="what the measured form of BODY (a mesh body fitted from a CSV) does beside the ideal "
+                             "sphere of its mass and centre of mass")
     parser.add_argument("--full-reduction", action="store_true",
                         help="what-ifs: reduce G in full before and after (slower) instead of the first-order "
                              "model")
@@ -113,6 +119,8 @@ def parse_what_ifs(scene, args) -> list[tuple]:
             raise InputError(scene.path, "--gradient", f"expected GROUP:REL with a group of the scene "
                                                       f"({', '.join(scene.groups())}), got '{text}'")
         out.append(("gradient", group, (_numbers(rest, 1, "--gradient", scene.path)[0],)))
+    for name in getattr(args, "measured_form", ()):
+        out.append(("measured-form", _body_name(scene, name, "--measured-form"), ()))
     return out
 
 
@@ -124,6 +132,8 @@ def run_what_if(scene, item, **kw):
         return flatten_what_if(scene, name, a[0], a[1], **kw)
     if kind == "gradient":
         return gradient_what_if(scene, name, a[0], **kw)
+    if kind == "measured-form":
+        return measured_form_what_if(scene, name, **kw)
     return void_what_if(scene, name, a[0], a[1], **kw)
 
 

@@ -61,21 +61,43 @@ def _step_mesh(path, tolerance: float, where, key):
         raise InputError(where, key, f"cannot read '{Path(path).name}' as a STEP solid ({msg})") from None
 
 
+def is_measured(path) -> bool:
+    """A CSV file: a measured form (geometry/measured_form.py)."""
+    return Path(path).suffix.lower() == ".csv"
+
+
 def _measured_hull(path, where, key):
-    """A measured surface: a CSV of surface points (header row with columns x, y, z, in the file's
-    units, e.g. from a coordinate-measuring machine) closed as the convex polyhedron through them.
-    Meant for convex parts (spheres, cylinders); a concave part's hollows would be bridged."""
+    """A measured surface read as a trimesh in the file's units: x, y, z points (e.g. from a
+    coordinate-measuring machine) closed as the convex polyhedron through them (meant for convex parts,
+    spheres and cylinders; a concave part's hollows would be bridged); directions and radii as the
+    polyhedron through their fitted surface (measured_form, degree chosen by the data count)."""
     import trimesh
 
-    try:
-        data = np.genfromtxt(path, delimiter=",", names=True, dtype=float, encoding="utf-8")
-        pts = np.stack([np.atleast_1d(data[c]) for c in ("x", "y", "z")], axis=1)
-    except Exception:
-        raise InputError(where, key, f"'{Path(path).name}': expected a CSV of surface points with a header row "
-                                     "naming columns x, y, z") from None
-    if len(pts) < 4 or not np.all(np.isfinite(pts)):
-        raise InputError(where, key, f"'{Path(path).name}': needs four or more finite surface points")
-    return trimesh.convex.convex_hull(pts)
+    from truepull.geometry.measured_form import fitted_shape, read_measured
+
+    points = read_measured(path, 1.0, where, key)
+    if points.columns != ("x", "y", "z"):
+        shape = fitted_shape(points, None, where, key)
+        return trimesh.Trimesh(vertices=np.array(shape.vertices), faces=np.array(shape.faces), process=False)
+    return trimesh.convex.convex_hull(points.points)
+
+
+def _measured_form(path, file_units, file, key, fit_degree):
+    """The fitted measured form of a CSV (a MeasuredMesh in metres), or None for x, y, z points without
+    `fit_degree` (their convex hull is then read as a mesh)."""
+    from truepull.geometry.measured_form import fitted_shape, read_measured
+
+    path = Path(path)
+    where = file if file is not None else str(path)
+    if not path.is_file():
+        raise InputError(where, key, f"mesh file '{path}' not found" if not path.exists()
+                         else f"mesh file '{path}' is not a file")
+    points = read_measured(path, si_factor(file_units, "length", file, key), where, key)
+    if points.columns == ("x", "y", "z") and fit_degree is None:
+        return None
+    shape = fitted_shape(points, fit_degree, where, key)
+    _check_extent(np.asarray(shape.vertices), path.name, where, key)
+    return shape
 
 
 def _read_trimesh(path, file=None, key=None, tolerance=None):
@@ -94,7 +116,7 @@ def _read_trimesh(path, file=None, key=None, tolerance=None):
             warnings.simplefilter("ignore")
             if is_step(path):
                 mesh = _step_mesh(path, tolerance or STEP_TOLERANCES[-1], where, key)
-            elif path.suffix.lower() == ".csv":
+            elif is_measured(path):
                 mesh = _measured_hull(path, where, key)
             else:
                 mesh = trimesh.load(str(path), force="mesh", process=False)
@@ -156,11 +178,17 @@ def _check_shells(mesh, name, where, key):
                                      "(it would count as negative mass); fix its face orientation")
 
 
-def load_mesh(path, file_units: str = "m", file=None, key=None, tolerance=None) -> MeshShape:
+def load_mesh(path, file_units: str = "m", file=None, key=None, tolerance=None, fit_degree=None) -> MeshShape:
     """Load a closed mesh from `path` with coordinates in `file_units` (a length unit) as a MeshShape
     in metres. `file`/`key` name the scene file and key for error messages. A STEP file carries its
     own units (file_units is ignored) and is tessellated at each of STEP_TOLERANCES: the finest is the
-    shape, the one before it its `coarse` (for the tessellation error)."""
+    shape, the one before it its `coarse` (for the tessellation error). A CSV is a measured form
+    (measured_form.py): fitted to degree `fit_degree` (None: by the data count) unless it holds x, y, z
+    points and no `fit_degree` is given (then their convex hull)."""
+    if is_measured(path):
+        shape = _measured_form(path, file_units, file, key, fit_degree)
+        if shape is not None:
+            return shape
     if is_step(path) and tolerance is None:
         coarse = load_mesh(path, "m", file, key, STEP_TOLERANCES[0])
         fine = load_mesh(path, "m", file, key, STEP_TOLERANCES[-1])
@@ -236,6 +264,10 @@ def mesh_report(path, units: str = "m") -> dict:
         report["notes"].append(f"STEP tessellated at relative chord tolerances {STEP_TOLERANCES[0]:g} and "
                                f"{STEP_TOLERANCES[1]:g}: volume {vc:.9g} -> {vf:.9g} m^3 (change {vf - vc:.3g}, "
                                "the tessellation error); lengths in metres from the file's own units")
+    if is_measured(path):
+        report["notes"].append("a measured form (CSV): x, y, z points are closed as their convex hull; directions "
+                               "and radii are fitted by spherical harmonics to the degree the point count gives and "
+                               "tessellated (a scene's fit_degree sets the degree; `truepull check` states the fit)")
     if report["watertight"] and report["winding_consistent"]:
         name = Path(path).name
         _check_extent(v, name, str(path), None)

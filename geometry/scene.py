@@ -68,7 +68,7 @@ SHAPE_KEYS: dict[str, dict[str, bool]] = {
     "box": {"size": True},
     "cone": {"radius": True, "length": True, "radius_top": False},
     "ellipsoid": {"radii": True},
-    "mesh": {"file": True, "file_units": False},
+    "mesh": {"file": True, "file_units": False, "fit_degree": False},
 }
 
 
@@ -427,6 +427,20 @@ def _read_body(r: _Reader, raw, index: int) -> BodySpec:
                     scene_file=r.file)
 
 
+def _fit_degree(r: _Reader, t: dict, mesh_path, where: str):
+    """A mesh body's optional `fit_degree` (measured-form CSV only; geometry/measured_form.py), or None."""
+    from truepull.geometry.measured_form import MAX_DEGREE
+
+    if "fit_degree" not in t:
+        return None
+    v = t["fit_degree"]
+    if isinstance(v, bool) or not isinstance(v, int) or not 0 <= v <= MAX_DEGREE:
+        r.fail(f"{where}.fit_degree", f"expected a whole number from 0 to {MAX_DEGREE}, got {v!r}")
+    if mesh_path.suffix.lower() != ".csv":
+        r.fail(f"{where}.fit_degree", "a fit degree applies to a measured form (a .csv file) only")
+    return v
+
+
 def _read_size(r: _Reader, t: dict, kind: str, where: str):
     """Size keys of the shape -> (size dict of Measured, mesh, file, file_units)."""
     spec = SHAPE_KEYS[kind]
@@ -443,7 +457,8 @@ def _read_size(r: _Reader, t: dict, kind: str, where: str):
         mesh_path = Path(file)
         if not mesh_path.is_absolute():
             mesh_path = Path(r.base_dir) / mesh_path
-        mesh = load_mesh(mesh_path, file_units, file=r.file, key=f"{where}.file")
+        degree = _fit_degree(r, t, mesh_path, where)
+        mesh = load_mesh(mesh_path, file_units, file=r.file, key=f"{where}.file", fit_degree=degree)
         return size, mesh, file, file_units
     if kind == "box":
         v = r.vector(t["size"], "length", f"{where}.size")

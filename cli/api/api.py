@@ -182,6 +182,9 @@ def check(scene, overlaps: bool = True) -> CheckResult:
         if spec is not None and spec.temperature is not None and spec.expansion is None:
             notes.append(f"'{b.name}' has no expansion coefficient (no material, no expansion key): it is not "
                          f"scaled to the temperature {spec.temperature.value:g} degC")
+    from truepull.geometry.measured_form import measured_form_notes
+
+    notes += measured_form_notes(scene)
     return CheckResult(scene, bodies, groups, scene_warnings(scene, overlaps=overlaps), stated_uncertainties(scene),
                        notes)
 

@@ -698,3 +698,30 @@ def gradient_what_if(scene, group: str, relative: float, **kw) -> WhatIfResult:
         bodies.append(b)
     desc = f"a {relative:g} relative density gradient along z in each {group} body"
     return what_if(scene, "gradient", group, scene.with_bodies(bodies), desc, **kw)
+
+
+def ideal_sphere(scene, name: str) -> Body:
+    """The ideal shape of a measured-form body (geometry/measured_form.py, fitted): a uniform sphere of
+    the body's mass, volume and density, centred at its centre of mass, as drawn."""
+    from truepull.geometry.shapes import Sphere
+
+    b = scene.body(name)
+    form = getattr(b.shape, "form", None)
+    if form is None:
+        raise InputError(scene.path, "--measured-form", f"'{name}' is not a fitted measured form (a mesh body "
+                                                        "read from a CSV of directions and radii, or of points "
+                                                        "with fit_degree)")
+    if b.has_gradient:
+        raise InputError(scene.path, "--measured-form", f"'{name}' has a density gradient; the ideal sphere "
+                                                        "is uniform")
+    R = (3.0 * b.volume / (4.0 * math.pi)) ** (1.0 / 3.0)
+    return Body(b.name, b.group, Sphere(R), Placement.shift(b.com), b.density, None)
+
+
+def measured_form_what_if(scene, name, **kw) -> WhatIfResult:
+    """What the measured form of `name` does beside its ideal sphere (same mass and centre of mass):
+    the scene with the ideal sphere is 'before', the scene as measured 'after'."""
+    ideal = ideal_sphere(scene, name)
+    desc = (f"measured form of '{name}' against the ideal sphere of equal mass and centre "
+            f"(radius {ideal.shape.radius:.6g} m)")
+    return what_if(scene.with_body(name, ideal), "measured-form", name, scene, desc, **kw)
