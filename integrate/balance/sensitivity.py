@@ -350,7 +350,7 @@ def aliasing_note(model: GModel, q0) -> str:
     half = 2.0 * abs(complex(np.sum(np.asarray(q0[0::2]) * np.exp(-2j * np.pi * model.harmonic * np.arange(n // 2)
                                                                   / (n // 2))))) / (n // 2)
     return (f"harmonic {model.harmonic} from {n} turns: |T| from {n // 2} of them differs by "
-            f"{abs(full - half) / full:.2g} of it (aliasing; the G columns carry at most as much relative error)")
+            f"{abs(full - half) / full:.2g} of it (the aliasing of the halved grid; that of the full grid is smaller)")
 
 
 def g_model(scene, test: str = "pendulum", source: str = "attractor") -> GModel | None:
