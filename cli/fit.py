@@ -538,22 +538,19 @@ def run_text(run: RunFit, time_unit: str, angle_unit: str) -> str:
 
 # ---------------------------------------------------------------- the verb
 
+RUN_OPTIONS = ("time_column", "angle_column", "spot_column", "lever_distance", "position_column", "time_unit",
+               "angle_unit", "length_unit", "drift_order", "png")
+"""The options of `fit` that truepull.api.fit takes by name (beside into, out, force and method)."""
+
+
 def run(args) -> int:
+    from truepull.api import fit
+
     if (args.out or args.method or args.force) and not args.into:
         raise InputError(None, "--into", "--out, --method and --force go with --into SCENE")
-    units()  # the unit registry, once
-    time, angle, labels, line_numbers, value_column = load_run(args)
-    notes = []
-    if args.into and labels is not None:
-        fits, whole, notes = fit_with_scene(args, args.into, time, angle, labels, line_numbers, value_column)
-    else:
-        fits, whole = fit_data(time, angle, labels, line_numbers, value_column, args)
-    written = None
-    if args.into:
-        written, more = write_into(args, fits, whole)
-        notes += more
-    if args.png:
-        write_png(args.png, fits, time, angle, args.time_unit, args.angle_unit, whole)
+    result = fit(args.data, into=args.into, out=args.out, force=args.force, method=args.method,
+                 **{k: getattr(args, k) for k in RUN_OPTIONS})
+    fits, whole, written, notes = list(result.segments), result.run, result.written, result.notes
     if args.json:
         payload = {"segments": [f.as_dict() for f in fits]}
         if whole is not None:
