@@ -53,6 +53,11 @@ def add_data_arguments(parser, *, as_option: bool = False) -> None:
                              f"{MAX_DRIFT_ORDER})")
 
 
+DATA_OPTIONS = ("time_column", "angle_column", "spot_column", "lever_distance", "position_column", "time_unit",
+                "angle_unit", "length_unit", "drift_order")
+"""The run's options (add_data_arguments) by their Python names, as truepull.api.fit and reduce take them."""
+
+
 def add_arguments(parser) -> None:
     add_data_arguments(parser)
     parser.add_argument("--png", metavar="FILE", help="picture of data, fit and residuals per segment")
@@ -538,18 +543,13 @@ def run_text(run: RunFit, time_unit: str, angle_unit: str) -> str:
 
 # ---------------------------------------------------------------- the verb
 
-RUN_OPTIONS = ("time_column", "angle_column", "spot_column", "lever_distance", "position_column", "time_unit",
-               "angle_unit", "length_unit", "drift_order", "png")
-"""The options of `fit` that truepull.api.fit takes by name (beside into, out, force and method)."""
-
-
 def run(args) -> int:
     from truepull.api import fit
 
     if (args.out or args.method or args.force) and not args.into:
         raise InputError(None, "--into", "--out, --method and --force go with --into SCENE")
     result = fit(args.data, into=args.into, out=args.out, force=args.force, method=args.method,
-                 **{k: getattr(args, k) for k in RUN_OPTIONS})
+                 png=args.png, **{k: getattr(args, k) for k in DATA_OPTIONS})
     fits, whole, written, notes = list(result.segments), result.run, result.written, result.notes
     if args.json:
         payload = {"segments": [f.as_dict() for f in fits]}

@@ -62,18 +62,14 @@ def _fiber_q(raw):
     return parse_scalar(raw, "dimensionless", "", None, "--fiber-q", positive=True)
 
 
-RUN_OPTIONS = ("time_column", "angle_column", "spot_column", "lever_distance", "position_column", "time_unit",
-               "angle_unit", "length_unit", "drift_order")
-"""The run's options (truepull.cli.fit.add_data_arguments) that go with --data."""
-
-
 def reduce_data(args) -> dict:
     """The whole result for parsed command-line arguments, by truepull.api.reduce (see reduction_data).
     With --data the run is fitted with the scene (truepull.cli.fit.fitted_scene_text) and its
     measurement reduced."""
     from truepull.api import reduce
+    from truepull.cli.fit import DATA_OPTIONS
 
-    run_options = {k: getattr(args, k) for k in RUN_OPTIONS} if getattr(args, "data", None) else {}
+    run_options = {k: getattr(args, k) for k in DATA_OPTIONS} if getattr(args, "data", None) else {}
     return reduce(args.scene, rtol=args.rtol, mc_rtol=args.mc_rtol, samples=args.samples, seed=args.seed,
                   check_draws=args.check_draws, full_model=args.full_model, workers=args.workers,
                   scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test, source=args.source,
