@@ -275,8 +275,9 @@ class GModel:
             return (f"first order (acceleration): G proportional to I / |T_{self.harmonic}|, T_{self.harmonic} "
                     f"harmonic {self.harmonic} of the torque over a turn ({len(self.positions)} equally spaced turns)")
         if self.method == "servo":
-            return (f"first order (servo): G = -(servo torque difference) / (torque difference per unit G) over "
-                    f"{', '.join(self.positions)}, the measured servo torques held fixed")
+            how = ("-(servo torque difference) / (torque difference per unit G)" if len(self.positions) == 2 else
+                   "-(least-squares slope of the servo torques on the torques per unit G)")
+            return f"first order (servo): G = {how} over {', '.join(self.positions)}, the measured servo torques held fixed"
         if len(self.positions) == 1:
             return f"first order: G proportional to 1 / torque at {self.positions[0]}"
         what = "torque" if self.quantity == "torque" else "gravitational stiffness"
