@@ -26,9 +26,8 @@ from truepull.cli.options import show_progress
 from truepull.cli.output import fmt, format_table, not_reached_exit, print_json, save_figure_atomic
 from truepull.geometry.errors import InputError
 from truepull.geometry.scene import load_scene
-from truepull.integrate.balance.sensitivity import (default_position, flatten_what_if, gradient_what_if,
-                                                    measured_form_what_if, offset_what_if, sensitivities,
-                                                    void_what_if)
+from truepull.integrate.balance.sensitivity import (flatten_what_if, gradient_what_if, measured_form_what_if,
+                                                    offset_what_if, void_what_if)
 
 HELP = "sensitivity of torque and G to each body's placement, size and density"
 
@@ -254,18 +253,14 @@ def write_png(path, result, what_ifs, title: str = "") -> None:
 
 
 def run(args) -> int:
+    from truepull.api import bias
+
     scene = load_scene(args.scene)
     items = parse_what_ifs(scene, args)
-    position = args.position if args.position is not None else default_position(scene)
-    if position is not None:
-        scene.get_position(position)
-    result = None
-    if not args.no_table:
-        result = sensitivities(scene, args.test, args.source, position, args.rtol, workers=args.workers,
-                               scheduler=args.scheduler, progress=show_progress(args), scene_path=args.scene,
-                               bodies=args.body)
-    what_ifs = [run_what_if(scene, it, test=args.test, source=args.source, position=position, rtol=args.rtol,
-                            full_reduction=args.full_reduction) for it in items]
+    found = bias(scene, test=args.test, source=args.source, position=args.position, rtol=args.rtol, bodies=args.body,
+                 changes=items, full_reduction=args.full_reduction, table=not args.no_table, workers=args.workers,
+                 scheduler=args.scheduler, progress=show_progress(args), scene_path=args.scene)
+    result, what_ifs = found.result, found.what_ifs
     if args.png:
         write_png(args.png, result, what_ifs, scene.title or "")
     missed = not_reached(result, what_ifs)

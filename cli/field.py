@@ -2,7 +2,8 @@
 
 Points come from `--points CSV` (columns x, y, z, header row), `--line X0,Y0,Z0:X1,Y1,Z1:N` (N points,
 both ends included) or `--grid X0:X1:NX,Y0:Y1:NY,Z0:Z1:NZ` (NX*NY*NZ points, x fastest; a count of 1
-takes the start value), all in the scene's length unit (--line also takes a unit after each end). Output values are SI: positions m, U J/kg,
+takes the start value), all in the scene's length unit or with a unit (--line after each end, --grid
+after each START and STOP or once after STOP: '-10:10 mm:5'). Output values are SI: positions m, U J/kg,
 g = -grad U m/s^2 (toward the masses), T_ij = d g_i / d x_j 1/s^2, errors absolute (norms). Along a
 line, the points where the gradient along the line vanishes are found and printed with the field's
 curvature there. The computation is `integrate.field_at_points`; this module only reads and formats.
@@ -35,7 +36,9 @@ def add_arguments(parser) -> None:
     where.add_argument("--line", metavar="X0,Y0,Z0:X1,Y1,Z1:N",
                        help="N points on a segment, both ends included; the scene's length unit or a unit after "
                             "each end, e.g. '0,0,-5 cm:0,0,5 cm:101'")
-    where.add_argument("--grid", metavar="X0:X1:NX,Y0:Y1:NY,Z0:Z1:NZ", help="a box grid of NX*NY*NZ points")
+    where.add_argument("--grid", metavar="X0:X1:NX,Y0:Y1:NY,Z0:Z1:NZ",
+                       help="a box grid of NX*NY*NZ points; the scene's length unit or a unit after START and "
+                            "STOP, or once after STOP for both, e.g. '0:10 mm:5,0:0:1,-1 cm:1 cm:3' ('--grid=...' when it starts with '-')")
     add_groups(parser, test=None, source="group whose field is computed")
     add_position(parser)
     add_rtol(parser)
@@ -83,8 +86,12 @@ def parse_line(text: str, scene):
     return ends[0], ends[1], n
 
 
-def parse_grid(text: str):
-    """'X0:X1:NX,Y0:Y1:NY,Z0:Z1:NZ' -> three coordinate arrays, in the units as written."""
+def parse_grid(text: str, scene):
+    """'X0:X1:NX,Y0:Y1:NY,Z0:Z1:NZ' -> three coordinate arrays in m: START and STOP in the scene's
+    length unit, each with its own unit ('-10 mm:1 cm:5'), or one unit after STOP for both
+    ('-10:10 mm:5')."""
+    from truepull.cli.options import quantities
+
     axes = text.split(",")
     if len(axes) != 3:
         raise InputError(None, "--grid", f"expected X0:X1:NX,Y0:Y1:NY,Z0:Z1:NZ, got '{text}'")
@@ -93,8 +100,10 @@ def parse_grid(text: str):
         parts = a.split(":")
         if len(parts) != 3:
             raise InputError(None, "--grid", f"the {name} range must be START:STOP:COUNT, got '{a}'")
-        lo = _number(parts[0], "--grid", f"the {name} start")
-        hi = _number(parts[1], "--grid", f"the {name} stop")
+        lo, hi = quantities(f"{parts[0]}:{parts[1]}", ":", 2, "length", scene.length_unit, "--grid", scene.path,
+                            f"the {name} START and STOP")
+        if not (np.isfinite(lo) and np.isfinite(hi)):
+            raise InputError(scene.path, "--grid", f"the {name} range is not finite, got '{a}'")
         n = _count(parts[2], "--grid", f"the {name} count", 1)
         if n == 1 and lo != hi:
             raise InputError(None, "--grid", f"a count of 1 along {name} needs START = STOP, got '{a}'")
@@ -226,10 +235,10 @@ def run(args) -> int:
     elif args.line is not None:
         line = parse_line(args.line, scene)
     else:
-        xs, ys, zs = parse_grid(args.grid)
+        xs, ys, zs = parse_grid(args.grid, scene)
         grid_shape = (len(xs), len(ys), len(zs))
         Z, Y, X = np.meshgrid(zs, ys, xs, indexing="ij")
-        pts = np.column_stack([X.ravel(), Y.ravel(), Z.ravel()]) * f
+        pts = np.column_stack([X.ravel(), Y.ravel(), Z.ravel()])
     if args.vtk:
         check_vtk_name(args.vtk, grid_shape is not None)   # before the work, not after it
     result = field(scene, None if line is not None else pts, line=line, source=args.source,

@@ -53,6 +53,11 @@ def add_data_arguments(parser, *, as_option: bool = False) -> None:
                              f"{MAX_DRIFT_ORDER})")
 
 
+DATA_OPTIONS = ("time_column", "angle_column", "spot_column", "lever_distance", "position_column", "time_unit",
+                "angle_unit", "length_unit", "drift_order")
+"""The run's options (add_data_arguments) by their Python names, as truepull.api.fit and reduce take them."""
+
+
 def add_arguments(parser) -> None:
     add_data_arguments(parser)
     parser.add_argument("--png", metavar="FILE", help="picture of data, fit and residuals per segment")
@@ -539,21 +544,13 @@ def run_text(run: RunFit, time_unit: str, angle_unit: str) -> str:
 # ---------------------------------------------------------------- the verb
 
 def run(args) -> int:
+    from truepull.api import fit
+
     if (args.out or args.method or args.force) and not args.into:
         raise InputError(None, "--into", "--out, --method and --force go with --into SCENE")
-    units()  # the unit registry, once
-    time, angle, labels, line_numbers, value_column = load_run(args)
-    notes = []
-    if args.into and labels is not None:
-        fits, whole, notes = fit_with_scene(args, args.into, time, angle, labels, line_numbers, value_column)
-    else:
-        fits, whole = fit_data(time, angle, labels, line_numbers, value_column, args)
-    written = None
-    if args.into:
-        written, more = write_into(args, fits, whole)
-        notes += more
-    if args.png:
-        write_png(args.png, fits, time, angle, args.time_unit, args.angle_unit, whole)
+    result = fit(args.data, into=args.into, out=args.out, force=args.force, method=args.method,
+                 png=args.png, **{k: getattr(args, k) for k in DATA_OPTIONS})
+    fits, whole, written, notes = list(result.segments), result.run, result.written, result.notes
     if args.json:
         payload = {"segments": [f.as_dict() for f in fits]}
         if whole is not None:

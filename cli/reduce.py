@@ -63,22 +63,18 @@ def _fiber_q(raw):
 
 
 def reduce_data(args) -> dict:
-    """The whole result for parsed command-line arguments (see reduction_data). With --data the run is
-    fitted with the scene (truepull.cli.fit.fitted_scene_text) and its measurement reduced."""
-    text, fit = None, None
-    if getattr(args, "data", None):
-        from truepull.cli.fit import fitted_scene_text
+    """The whole result for parsed command-line arguments, by truepull.api.reduce (see reduction_data).
+    With --data the run is fitted with the scene (truepull.cli.fit.fitted_scene_text) and its
+    measurement reduced."""
+    from truepull.api import reduce
+    from truepull.cli.fit import DATA_OPTIONS
 
-        text, run, notes = fitted_scene_text(args, args.scene, test=args.test, source=args.source, rtol=args.rtol)
-        fit = {"data": args.data, "run": run.as_dict(), "notes": notes}
-    data = reduction_data(args.scene, rtol=args.rtol, mc_rtol=args.mc_rtol, samples=args.samples, seed=args.seed,
-                          check_draws=args.check_draws, full_model=args.full_model, workers=args.workers,
-                          scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test, source=args.source,
-                          budget=not args.no_budget, progress=_show_progress(args), text=text,
-                          method=getattr(args, "method", None))
-    if fit is not None:
-        data["fit"] = fit
-    return data
+    run_options = {k: getattr(args, k) for k in DATA_OPTIONS} if getattr(args, "data", None) else {}
+    return reduce(args.scene, rtol=args.rtol, mc_rtol=args.mc_rtol, samples=args.samples, seed=args.seed,
+                  check_draws=args.check_draws, full_model=args.full_model, workers=args.workers,
+                  scheduler=args.scheduler, fiber_q=args.fiber_q, test=args.test, source=args.source,
+                  budget=not args.no_budget, progress=_show_progress(args), data=getattr(args, "data", None),
+                  method=getattr(args, "method", None), **run_options).data
 
 
 def reduction_data(scene_path, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, samples: int | None = None,

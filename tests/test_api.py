@@ -143,3 +143,22 @@ def test_reduce_through_the_api_equals_the_cli_and_its_corrections_chain_to_G(ca
     # the contract); a reduction of one's own applies them the same way
     product = math.prod(c["factor"] for c in r.corrections())
     assert r.G_point * product == pytest.approx(r.G, rel=1e-12)
+
+
+def test_bias_what_ifs_through_the_api_equal_the_cli(tmp_path, capsys):
+    # one route: the verb calls truepull.bias; the offset's torque after is Newton's law (as above) for
+    # the moved ball, and the gradient what-if (given by name in the API) is the verb's --gradient
+    scene_file = tmp_path / "two.toml"
+    scene_file.write_text(truepull.scene_toml(
+        [{"name": "bob", "group": "pendulum", "shape": "sphere", "radius": R_PEND, "density": RHO, "at": PEND_AT},
+         {"name": "ball", "group": "attractor", "shape": "sphere", "radius": R_ATTR, "mass": M2, "at": ATTR_AT}],
+        G=G))
+    api = truepull.bias(str(scene_file), offset=[("ball", (0.002, 0.0, 0.0))], gradient=[("attractor", 1e-3)],
+                        table=False)
+    cli = _cli_json(capsys, "bias", str(scene_file), "--no-table", "--offset", "ball:0.002,0,0",
+                    "--gradient", "attractor:1e-3")
+    assert {k: v for k, v in cli.items() if k not in ("reached", "not_reached")} == api.to_json()
+    d = ATTR_AT + [0.002, 0.0, 0.0] - PEND_AT
+    F = G * M1 * M2 * d / np.linalg.norm(d) ** 3
+    assert api.what_ifs[0].torque_after == pytest.approx(np.cross(PEND_AT, F)[2], rel=1e-9)
+    assert [w.kind for w in api.what_ifs] == ["offset", "gradient"]

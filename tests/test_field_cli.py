@@ -120,6 +120,36 @@ def test_csv_to_stdout_and_grid_vtk(scene, tmp_path, capsys):
         assert np.allclose(grid.point_data["gradient"][k], T.ravel(), rtol=1e-9, atol=1e-20)
 
 
+def test_grid_lengths_take_units(scene, capsys):
+    # the scene's unit is mm: a unit after START and STOP, or once after STOP for both, gives the
+    # points np.linspace makes of the ends in m (x fastest); the field there is Newton's law
+    assert main(["field", scene, "--grid", "-0.5 cm:5 mm:3,5:5:1,0:2 cm:2", "--json"]) == 0
+    rows = json.loads(capsys.readouterr().out)["rows"]
+    xs, zs = np.linspace(-0.005, 0.005, 3), np.linspace(0.0, 0.02, 2)
+    expect = [(x, 0.005, z) for z in zs for x in xs]
+    assert len(rows) == 6
+    for row, p in zip(rows, expect):
+        assert np.allclose(row["at"], p, rtol=1e-14, atol=1e-18)
+        U, g, T = _newton(np.asarray(p))
+        assert np.allclose(row["field"], g, rtol=1e-9, atol=1e-20)
+    # the same grid with a shared unit and in the scene's own unit
+    for spec in ("-5:5 mm:3,0.5:0.5 cm:1,0:0.02 m:2", "-5:5:3,5:5:1,0:20:2"):
+        assert main(["field", scene, f"--grid={spec}", "--json"]) == 0  # '=': the spec starts with '-'
+        again = json.loads(capsys.readouterr().out)["rows"]
+        for a, b in zip(again, rows):
+            assert np.allclose(a["at"], b["at"], rtol=1e-14, atol=1e-18)
+            assert np.allclose(a["field"], b["field"], rtol=1e-12, atol=1e-22)
+
+
+@pytest.mark.parametrize("spec, words", [("0:1 s:3,0:0:1,0:0:1", "not a length unit"),
+                                         ("0 mm:1:3,0:0:1,0:0:1 kg", "whole number"),
+                                         ("0:inf mm:3,0:0:1,0:0:1", "--grid")])
+def test_grid_units_refused_in_one_line(scene, spec, words, capsys):
+    assert main(["field", scene, "--grid", spec]) == 2
+    err = capsys.readouterr().err.strip()
+    assert words in err and "\n" not in err and "Traceback" not in err
+
+
 def test_vtk_polydata(scene, tmp_path, capsys):
     pv = pytest.importorskip("pyvista")
     vtp = tmp_path / "l.vtp"

@@ -4,7 +4,10 @@ Outside references: the analytic derivative of Newton's law for point masses (wo
 `_newton_gradients`); central finite differences of the engine taken here with their own step;
 the exterior field of a homogeneous ellipsoid in Carlson's form with scipy.special.elliprd
 (Kellogg / Chandrasekhar's ellipsoid potential; from memory, and checked here against the sphere
-limit, Newton); Newton's law for a spherical void (a sphere of negative density, shell theorem).
+limit, Newton); Newton's law for a spherical void (a sphere of negative density, shell theorem);
+for the acceleration and servo G columns, the G of each method from Newton's torque of spheres
+(numpy's FFT for the harmonic, numpy.polyfit for the servo's line) and its hand derivative, checked
+against a central difference of that closed form.
 """
 
 from __future__ import annotations
@@ -307,6 +310,156 @@ def test_g_columns_follow_the_first_order_model():
     K_B = (_newton_tau(test, _turned(source, -20 + h)) - _newton_tau(test, _turned(source, -20 - h))) / math.radians(2 * h)
     assert turn_b.d_torque_axis == 0.0 and turn_b.u is None and turn_b.G_ppm is None
     assert turn_b.d_G == pytest.approx(G * K_B / delta, rel=1e-6)
+
+
+# --- the G columns of the acceleration and servo methods: spheres (shell theorem: Newton's law for
+# their centres), the closed-form G of each method, and its derivative in one sphere's coordinate
+
+
+def _newton_axial(bobs, balls, Gc=1.0):
+    """Axial torque (N m) on point masses `bobs` from `balls`, both [(mass, (x, y, z))]: sum of
+    G m M (b x (a - b))_z / |a - b|^3 (Newton)."""
+    total = 0.0
+    for m, b in bobs:
+        for M, a in balls:
+            r = np.subtract(a, b)
+            total += Gc * m * M * (b[0] * r[1] - b[1] * r[0]) / np.linalg.norm(r) ** 3
+    return total
+
+
+def _newton_axial_d_ax(m, b, M, a, Gc=1.0):
+    """d/d a_x of one pair's axial torque, by hand from Newton's law: with r = a - b and
+    c = b_x r_y - b_y r_x, d/d a_x [c / |r|^3] = -b_y / |r|^3 - 3 c r_x / |r|^5."""
+    r = np.subtract(a, b)
+    n = np.linalg.norm(r)
+    c = b[0] * r[1] - b[1] * r[0]
+    return Gc * m * M * (-b[1] / n**3 - 3.0 * c * r[0] / n**5)
+
+
+def _newton_axial_d_bx(m, b, M, a, Gc=1.0):
+    """d/d b_x of one pair's axial torque: d/d b_x [c / |r|^3] = (r_y + b_y) / |r|^3 + 3 c r_x / |r|^5."""
+    r = np.subtract(a, b)
+    n = np.linalg.norm(r)
+    c = b[0] * r[1] - b[1] * r[0]
+    return Gc * m * M * ((r[1] + b[1]) / n**3 + 3.0 * c * r[0] / n**5)
+
+
+def _turn(p, phi):
+    c, s = math.cos(phi), math.sin(phi)
+    return (c * p[0] - s * p[1], s * p[0] + c * p[1], p[2])
+
+
+def test_acceleration_g_columns_follow_the_harmonic_of_newtons_torque():
+    # G = alpha I / |T_2|; T_2 by numpy's FFT of Newton's torque over 64 turns (the harmonics fall
+    # off like (0.04/0.11)^n, so the aliases at 62, 66 are negligible). Shifting ball-1 along x:
+    # d ln G / d x = -d ln |T_2| / dx, with d tau / d x from the hand derivative of Newton's law
+    # (`_newton_axial_d_ax`, the turned ball moving along the turned x axis), checked against a
+    # central finite difference of ln |T_2| of the closed form; the bob's mass adds d ln I / d m.
+    import synthetic_methods as sm
+
+    amp = sm.fft_amplitudes(lambda p: sm.sphere_torque(p, G=1.0))[2]
+    alpha = sm.G_TRUE * amp / sm.INERTIA_SPHERES
+    table = f'[measurement]\nmethod = "acceleration"\nharmonic = 2\nacceleration = "{alpha!r} rad/s^2"\n'
+    sc = load_scene_text(sm.scene_text(table))
+    res = sensitivities(sc, workers=1, bodies=["ball-1", "bob-east"], rtol=1e-11)
+    assert "acceleration" in res.G_model
+
+    bobs = [(sm.M_BOB, (sm.D, 0.0, 0.0)), (sm.M_BOB, (-sm.D, 0.0, 0.0))]
+    a1, a2 = sm.attractor_centres(0.0)
+    n = 64
+    phis = 2 * np.pi * np.arange(n) / n
+    e2 = np.exp(-2j * phis)
+
+    def harmonic(ball1, bobs=bobs):
+        return np.sum([_newton_axial(bobs, [(sm.M_BIG, _turn(ball1, p)), (sm.M_BIG, _turn(a2, p))]) for p in phis]
+                      * e2)
+
+    F = harmonic(a1)
+    dF = np.sum([sum(_newton_axial_d_ax(m, b, sm.M_BIG, _turn(a1, p)) * math.cos(p)
+                     + _newton_axial_y(m, b, sm.M_BIG, _turn(a1, p)) * math.sin(p) for m, b in bobs)
+                 for p in phis] * e2)
+    dlnT = (F.conjugate() * dF).real / abs(F) ** 2
+    h = 1e-6
+    fd = (math.log(abs(harmonic((a1[0] + h, a1[1], a1[2])))) - math.log(abs(harmonic((a1[0] - h, a1[1], a1[2]))))) / (2 * h)
+    assert dlnT == pytest.approx(fd, rel=1e-6)   # the hand derivative against the closed form's difference
+    row = next(r for r in res.rows if r.body == "ball-1" and r.parameter == "at.x")
+    assert row.d_G / res.G == pytest.approx(-dlnT, rel=1e-6)
+
+    # the mass of bob-east: T_2 linear in it, and I = sum (2/5 m r^2 + m d^2) (handbook sphere +
+    # parallel axis)
+    east = harmonic(a1, bobs[:1])
+    dlnG = (0.4 * sm.R_BOB**2 + sm.D**2) / sm.INERTIA_SPHERES - (F.conjugate() * east).real / abs(F) ** 2 / sm.M_BOB
+    row = next(r for r in res.rows if r.body == "bob-east" and r.parameter == "density")
+    rho_row = dlnG * sm.M_BOB / sm.RHO  # the torque and inertia are linear in the density
+    assert row.d_G / res.G == pytest.approx(rho_row, rel=1e-9)
+    # the turn of the start: |T_2| does not depend on it
+    turn = next(r for r in res.rows if r.parameter == "turn")
+    assert turn.d_G == 0.0
+
+    # a finite offset: the first-order model's G change is the closed form's (I fixed, |T_2| changed)
+    # (and the full reduction, by its own harmonic route, agrees)
+    ref = abs(F) / abs(harmonic((a1[0] + 2e-3, a1[1], a1[2]))) - 1.0
+    for full in (False, True):
+        w = offset_what_if(sc, "ball-1", [2e-3, 0.0, 0.0], rtol=1e-11, full_reduction=full)
+        assert w.G_ppm == pytest.approx(1e6 * ref, rel=1e-7)
+
+
+def _newton_axial_y(m, b, M, a, Gc=1.0):
+    """d/d a_y of one pair's axial torque: d/d a_y [c / |r|^3] = b_x / |r|^3 - 3 c r_y / |r|^5."""
+    r = np.subtract(a, b)
+    n = np.linalg.norm(r)
+    c = b[0] * r[1] - b[1] * r[0]
+    return Gc * m * M * (b[0] / n**3 - 3.0 * c * r[1] / n**5)
+
+
+def test_servo_g_columns_follow_the_least_squares_of_newtons_torque():
+    # G = -slope of the measured servo torques on the torques per unit G (numpy.polyfit, three
+    # positions, torques off the line by a little so that the residuals count); shifting bob-east
+    # along x changes every torque by the hand derivative of Newton's law (`_newton_axial_d_bx`),
+    # and G by d ln G, checked against a central finite difference of the closed form's G
+    import synthetic_balance as sb
+
+    psi = {"A": sb.PSI_A, "B": sb.PSI_B, "C": sb.PSI_C}
+    measured = {p: 2e-13 - sb.torque(0.0, v) * (1.0 + 1e-3 * k) for k, (p, v) in enumerate(psi.items())}
+    body = ", ".join(f'{p} = "{t!r} N m"' for p, t in measured.items())
+    sc = load_scene_text(sb.scene_text(psi, f'method = "servo"\ntorque = {{ {body} }}\n'))
+    res = sensitivities(sc, workers=1, bodies=["bob-east"], rtol=1e-11)
+    assert "servo" in res.G_model
+    y = np.array(list(measured.values()))
+    r = math.hypot(sb.D, sb.B)
+
+    def balls(v):
+        return [(sb.M_BIG, (s * r * math.cos(sb.ANGLE + v), s * r * math.sin(sb.ANGLE + v), 0.0)) for s in (1, -1)]
+
+    def gammas(x):
+        bobs = [(sb.M_BOB, (x, 0.0, 0.0)), (sb.M_BOB, (-sb.D, 0.0, 0.0))]
+        return np.array([_newton_axial(bobs, balls(v)) for v in psi.values()])
+
+    def G_of(x):
+        return -np.polyfit(gammas(x), y, 1)[0]
+
+    g0 = gammas(sb.D)
+    dg = np.array([sum(_newton_axial_d_bx(sb.M_BOB, (sb.D, 0.0, 0.0), M, a) for M, a in balls(v)) for v in psi.values()])
+    h = 1e-6
+    fd = (math.log(G_of(sb.D + h)) - math.log(G_of(sb.D - h))) / (2 * h)
+    # first order by the chain rule through numpy's least squares (its slope's own difference in Gamma)
+    eps = 1e-7
+    chain = (math.log(-np.polyfit(g0 + eps * dg, y, 1)[0]) - math.log(-np.polyfit(g0 - eps * dg, y, 1)[0])) / (2 * eps)
+    assert chain == pytest.approx(fd, rel=1e-6)
+    row = next(r for r in res.rows if r.body == "bob-east" and r.parameter == "at.x")
+    assert row.d_G / res.G == pytest.approx(fd, rel=1e-6)
+    # two positions: -d(Gamma_A - Gamma_B) / (Gamma_A - Gamma_B), the torque difference alone
+    two = {p: measured[p] for p in ("A", "B")}
+    body = ", ".join(f'{p} = "{t!r} N m"' for p, t in two.items())
+    sc2 = load_scene_text(sb.scene_text({p: psi[p] for p in two}, f'method = "servo"\ntorque = {{ {body} }}\n'))
+    row2 = next(r for r in sensitivities(sc2, workers=1, bodies=["bob-east"], rtol=1e-11).rows
+                if r.body == "bob-east" and r.parameter == "at.x")
+    assert row2.d_G / res.G == pytest.approx(-(dg[0] - dg[1]) / (g0[0] - g0[1]), rel=1e-6)
+    # a finite move of bob-east: the model's G change is the closed form's least-squares G ratio, and
+    # the full reduction agrees
+    for full in (False, True):
+        w = offset_what_if(sc, "bob-east", [1e-3, 0.0, 0.0], rtol=1e-11, full_reduction=full)
+        assert w.G_ppm == pytest.approx(1e6 * (G_of(sb.D + 1e-3) / G_of(sb.D) - 1.0), rel=1e-7)
 
 
 def test_what_ifs_refuse_impossible_changes():

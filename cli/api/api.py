@@ -410,6 +410,8 @@ def reduce(scene, *, rtol: float = 1e-9, mc_rtol: float = 1e-6, samples: int | N
         from truepull.cli.fit import fitted_scene_text
 
         args = _verb_args("fit", [str(data)], run_options)
+        if method is not None and "method" not in run_options:
+            args.method = method  # the fitted [measurement] is written for the method reduced
         text, run, notes = fitted_scene_text(args, path, test=test, source=source, rtol=rtol)
         fit = {"data": str(data), "run": run.as_dict(), "notes": notes}
     elif run_options:
@@ -437,7 +439,8 @@ def fit(data, *, into=None, out=None, force: bool = False, method: str | None = 
         The measurement method written with `into`.
     **options
         The fit options by their Python names: time_column, angle_column, spot_column,
-        lever_distance, position_column, time_unit, angle_unit, length_unit, drift_order.
+        lever_distance, position_column, time_unit, angle_unit, length_unit, drift_order, and png
+        (a picture of data, fit and residuals written to that file).
 
     Returns
     -------
@@ -460,12 +463,15 @@ def fit(data, *, into=None, out=None, force: bool = False, method: str | None = 
     if args.into:
         written, more = fit_cli.write_into(args, fits, whole)
         notes += more
+    if args.png:
+        fit_cli.write_png(args.png, fits, time, angle, args.time_unit, args.angle_unit, whole)
     return FitResult(tuple(fits), whole, written, notes)
 
 
 def bias(scene, *, test: str = "pendulum", source: str = "attractor", position: str | None = None,
-         rtol: float = 1e-9, bodies=None, offset=(), flatten=(), void=(), full_reduction: bool = False,
-         table: bool = True, workers: int | None = None, scheduler=None, progress: bool = False) -> BiasResult:
+         rtol: float = 1e-9, bodies=None, offset=(), flatten=(), void=(), gradient=(), changes=(),
+         full_reduction: bool = False, table: bool = True, workers: int | None = None, scheduler=None,
+         progress: bool = False, scene_path=None) -> BiasResult:
     """Sensitivity of the torque (and of G, with a measurement) to each body parameter, and what-ifs (`bias`).
 
     Parameters
@@ -484,19 +490,27 @@ def bias(scene, *, test: str = "pendulum", source: str = "attractor", position: 
         What if the sphere were an ellipsoid of equal mass with flattening f.
     void : list of (body, radius, (dx, dy, dz))
         What if the body had a spherical void of that radius (m) at that offset (m).
+    gradient : list of (group, relative)
+        What if each body of the group had a density gradient along z of `relative` of its density
+        across its bounding diameter.
+    changes : list of (kind, name, arguments)
+        More what-ifs as `bias` parses its options (truepull.cli.bias.parse_what_ifs), after the above.
     full_reduction : bool
         What-ifs through a full reduction of G instead of the first-order model.
     table : bool
         Compute the ranked sensitivity table.
+    scene_path : str, optional
+        The scene's file, for workers to re-load it (default: `scene` when it is a path).
 
     Returns
     -------
     BiasResult
     """
-    from truepull.integrate.balance.sensitivity import (default_position, flatten_what_if, offset_what_if,
-                                                        sensitivities, void_what_if)
+    from truepull.cli.bias import run_what_if
+    from truepull.integrate.balance.sensitivity import default_position, sensitivities
 
-    scene_path = str(scene) if isinstance(scene, (str, Path)) else None
+    if isinstance(scene, (str, Path)):
+        scene_path = str(scene)
     scene = _scene(scene)
     for group in (offset, flatten, void):
         for item in group:
@@ -511,8 +525,12 @@ def bias(scene, *, test: str = "pendulum", source: str = "attractor", position: 
     if table:
         result = sensitivities(scene, test, source, position, rtol, workers=workers, scheduler=scheduler,
                                progress=progress, scene_path=scene_path, bodies=bodies)
+    for name, _ in gradient:
+        if name not in scene.groups():
+            raise InputError(scene.path, "group", f"no group named '{name}' (groups: {', '.join(scene.groups())})")
+    items = ([("offset", name, (list(v),)) for name, v in offset]
+             + [("flatten", it[0], (it[1], it[2] if len(it) > 2 else None)) for it in flatten]
+             + [("void", name, (r, list(v))) for name, r, v in void]
+             + [("gradient", name, (rel,)) for name, rel in gradient] + list(changes))
     kw = dict(test=test, source=source, position=position, rtol=rtol, full_reduction=full_reduction)
-    what_ifs = ([offset_what_if(scene, name, list(v), **kw) for name, v in offset]
-                + [flatten_what_if(scene, it[0], it[1], it[2] if len(it) > 2 else None, **kw) for it in flatten]
-                + [void_what_if(scene, name, r, list(v), **kw) for name, r, v in void])
-    return BiasResult(result, what_ifs)
+    return BiasResult(result, [run_what_if(scene, it, **kw) for it in items])

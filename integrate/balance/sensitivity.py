@@ -25,6 +25,13 @@ G, when the scene has a measurement, to first order (the "first-order G model"):
 - deflection: G = kappa (theta_1 - theta_2) / (Gamma_1 - Gamma_2) with kappa = I omega^2, so
   d ln G = d ln I - d(tau_1 - tau_2) / (tau_1 - tau_2) over the first two measured positions;
 - swing: G = I (omega_1^2 - omega_2^2) / (k_1 - k_2), so d ln G = d ln I - d(K_1 - K_2)/(K_1 - K_2);
+- acceleration: G = alpha_m I / |T_m|, T_m the m-th Fourier amplitude of the torque over a turn of
+  the signal group, from the torque at N = 16 m (at least 32) equally spaced turns:
+  d ln G = d ln I - Re(conj(F) dF) / |F|^2, F = sum_k tau_k exp(-i m phi_k) (the turn of the start
+  leaves |T_m| alone: its G column is 0);
+- servo: G = -s, s the weighted slope of the measured servo torques y_i on the torques tau_i at the
+  servo positions (y held fixed; no inertia): d ln G = sum w dtau y_c / Sxy - 2 sum w tau_c dtau / Sxx
+  (c: less the weighted mean), which for two positions is -d(tau_A - tau_B) / (tau_A - tau_B);
 with I the pendulum's moment of inertia about the frame axis through the pivot. For one position
 the torque alone: d ln G = -d tau / tau. The full reduction (`reduction.reduce_measurement`) can
 replace the model for what-ifs (`what_if(..., full_reduction=True)`): G is then reduced for the
@@ -246,33 +253,125 @@ def stencil_value(job: StencilJob, item) -> tuple[np.ndarray, bool]:
 
 @dataclass(frozen=True)
 class GModel:
-    """First-order G model of a measurement (module docstring): which positions and quantity."""
+    """First-order G model of a measurement (module docstring): the positions (names, or Position
+    objects for the turns of an acceleration measurement), the quantity there ("torque" or
+    "stiffness"), and for an acceleration measurement the harmonic m, for a servo the measured servo
+    torques (N m) and their relative weights."""
 
     method: str
     positions: tuple
     quantity: str  # "torque" or "stiffness"
+    harmonic: int | None = None
+    servo_torques: tuple = ()
+    servo_weights: tuple = ()
+
+    @property
+    def uses_inertia(self) -> bool:
+        return self.method != "servo" and len(self.positions) > 1
 
     @property
     def description(self) -> str:
+        if self.method == "acceleration":
+            return (f"first order (acceleration): G proportional to I / |T_{self.harmonic}|, T_{self.harmonic} "
+                    f"harmonic {self.harmonic} of the torque over a turn ({len(self.positions)} equally spaced turns)")
+        if self.method == "servo":
+            how = ("-(servo torque difference) / (torque difference per unit G)" if len(self.positions) == 2 else
+                   "-(least-squares slope of the servo torques on the torques per unit G)")
+            return f"first order (servo): G = {how} over {', '.join(self.positions)}, the measured servo torques held fixed"
         if len(self.positions) == 1:
             return f"first order: G proportional to 1 / torque at {self.positions[0]}"
         what = "torque" if self.quantity == "torque" else "gravitational stiffness"
         return (f"first order ({self.method}): G proportional to I / ({what} at {self.positions[0]} - "
                 f"{what} at {self.positions[1]})")
 
+    def _harmonic(self, q) -> complex:
+        """sum_k q_k exp(-i m phi_k) over the model's equally spaced turns (2/N of it is T_m)."""
+        n = len(self.positions)
+        return complex(np.sum(np.asarray(q, float) * np.exp(-2j * np.pi * self.harmonic * np.arange(n) / n)))
+
+    def log_g(self, I: float, q) -> float:
+        """ln G up to a constant, from the inertia (kg m^2) and the per-position quantities."""
+        q = np.asarray(q, float)
+        if self.method == "acceleration":
+            return math.log(I) - math.log(abs(self._harmonic(q)))
+        if self.method == "servo":
+            from truepull.integrate.balance.servo_method import servo_fit
+
+            return math.log(abs(servo_fit(self.servo_torques, self.servo_weights, q)[0]))
+        if len(self.positions) == 1:
+            return -math.log(abs(q[0]))
+        return math.log(I) - math.log(abs(q[0] - q[1]))
+
     def log_change(self, I0, I1, q0: np.ndarray, q1: np.ndarray) -> float:
         """ln G(after) - ln G(before) from the inertia and per-position quantities before and after."""
+        return self.log_g(I1, q1) - self.log_g(I0, q0)
+
+    def dlnG(self, I0: float, q0, dI: float, dq) -> float:
+        """d ln G per unit parameter, to first order, from dI (kg m^2) and dq (per model position)."""
+        q0, dq = np.asarray(q0, float), np.asarray(dq, float)
+        lnI = dI / I0 if self.uses_inertia else 0.0
+        if self.method == "acceleration":
+            F = self._harmonic(q0)
+            return lnI - (F.conjugate() * self._harmonic(dq)).real / abs(F) ** 2
+        if self.method == "servo":
+            # G = -s, s = Sxy / Sxx the weighted slope of the servo torques y on the torques x: with y
+            # fixed, d ln s = sum w dx y_c / Sxy - 2 sum w x_c dx / Sxx (c: less the weighted mean)
+            w = np.asarray(self.servo_weights, float)
+            y = np.asarray(self.servo_torques, float)
+            xc = q0 - np.sum(w * q0) / np.sum(w)
+            yc = y - np.sum(w * y) / np.sum(w)
+            return float(np.sum(w * dq * yc) / np.sum(w * xc * yc) - 2.0 * np.sum(w * xc * dq) / np.sum(w * xc * xc))
         if len(self.positions) == 1:
-            return -math.log(q1[0] / q0[0])
-        d0, d1 = q0[0] - q0[1], q1[0] - q1[1]
-        return math.log(I1 / I0) - math.log(d1 / d0)
+            return -dq[0] / q0[0]
+        return lnI - (dq[0] - dq[1]) / (q0[0] - q0[1])
 
 
-def g_model(scene, test: str = "pendulum") -> GModel | None:
-    """The first-order G model for the scene's measurement, or None without one."""
+ACCELERATION_TURNS_PER_HARMONIC = 16
+"""Equally spaced turns per unit of the harmonic for the acceleration G model: 16 m (at least 32, a
+power of two), as the FFT route of turn_harmonics starts."""
+
+
+def acceleration_turns(scene, test: str, source: str, harmonic: int) -> tuple:
+    """The Position objects turning the signal group by phi_k = 2 pi k / N, N = 16 m (at least 32)."""
+    from truepull.geometry.quantities import Measured
+    from truepull.geometry.scene import Position
+    from truepull.integrate.balance.turn_harmonics import MIN_TURNS, signal_source
+
+    src = signal_source(test, source, scene.measurement.extra.get("group"))
+    n = max(MIN_TURNS, ACCELERATION_TURNS_PER_HARMONIC * harmonic)
+    n = 1 << (n - 1).bit_length()
+    return tuple(Position(f"turn {k}/{n}", src, Measured(2.0 * math.pi * k / n)) for k in range(n))
+
+
+def aliasing_note(model: GModel, q0) -> str:
+    """How much |T_m| from the model's N turns differs from that of every other turn (N/2): the
+    aliases m +- N/2 that the halving brings in bound what N leaves out (the terms decay)."""
+    n = len(q0)
+    full = 2.0 * abs(model._harmonic(q0)) / n
+    half = 2.0 * abs(complex(np.sum(np.asarray(q0[0::2]) * np.exp(-2j * np.pi * model.harmonic * np.arange(n // 2)
+                                                                  / (n // 2))))) / (n // 2)
+    return (f"harmonic {model.harmonic} from {n} turns: |T| from {n // 2} of them differs by "
+            f"{abs(full - half) / full:.2g} of it (the aliasing of the halved grid; that of the full grid is smaller)")
+
+
+def g_model(scene, test: str = "pendulum", source: str = "attractor") -> GModel | None:
+    """The first-order G model for the scene's measurement, or None without one (or for an
+    acceleration measurement whose signal group is not `source`: its torque is not the pairs here)."""
     m = scene.measurement
-    if m is None or m.method in ("acceleration", "servo"):
-        return None  # their first-order G models are not written here: the G columns stay empty
+    if m is None:
+        return None
+    if m.method == "acceleration":
+        from truepull.integrate.balance.turn_harmonics import signal_source
+
+        if signal_source(test, source, m.extra.get("group")) != source:
+            return None
+        harmonic = int(m.extra["harmonic"])
+        return GModel("acceleration", acceleration_turns(scene, test, source, harmonic), "torque", harmonic)
+    if m.method == "servo":
+        from truepull.integrate.balance.servo_method import servo_torques
+
+        names, tau, w = servo_torques(scene)
+        return GModel("servo", tuple(names), "torque", None, tuple(float(t) for t in tau), tuple(float(x) for x in w))
     if m.method == "deflection":
         names = tuple(m.angle)[:2]
         return GModel("deflection", names, "torque")
@@ -398,7 +497,7 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
         position = default_position(scene)
     if isinstance(position, str):
         scene.get_position(position)
-    model = g_model(scene, test)
+    model = g_model(scene, test, source)
     positions = [position]
     if model is not None:
         positions += [p for p in model.positions if p not in positions]
@@ -420,9 +519,7 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
         """d ln G per unit parameter from dI (kg m^2) and dq (per model position)."""
         if model is None:
             return None
-        if len(model.positions) == 1:
-            return -dq[0] / q0[0]
-        return dI / I0 - (dq[0] - dq[1]) / (q0[0] - q0[1])
+        return model.dlnG(I0, q0, dI, dq)
 
     chosen = [b for b in scene.bodies if b.group in (test, source) and (bodies is None or b.name in bodies)]
     if bodies is not None:
@@ -519,7 +616,9 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
         k = sign * comps[pname].exact.stiffness_axis
         d_here = k if pname == position else 0.0
         lnG = None
-        if model is not None and model.quantity == "torque":
+        if model is not None and model.method == "acceleration":
+            lnG = 0.0  # exact: a turn of the start shifts the harmonic's phase, not its amplitude
+        elif model is not None and model.quantity == "torque":
             dq = np.array([k if p == pname else 0.0 for p in model.positions])
             lnG = dlnG(0.0, dq)
         err = comps[pname].error.stiffness_axis if pname == position else 0.0
@@ -530,11 +629,14 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
     notes = []
     if model is not None:
         notes.append(model.description)
+        if model.method == "acceleration":
+            notes.append(aliasing_note(model, q0))
     notes.append(f"difference steps h = e^(1/5) x the body's size or its gap to the other group, whichever is "
                  f"smaller, e the engine's relative error on the body's pairs (at most rtol = {rtol:g}, so at most "
                  f"{step_factor(rtol):.3g}); halved until the displaced body keeps clear")
     rows.sort(key=_rank_key)
-    unreached = [p if isinstance(p, str) else "the scene as drawn" for p in positions if not comps[p].reached]
+    unreached = [p if isinstance(p, str) else "the scene as drawn" if p is None else p.name
+                 for p in positions if not comps[p].reached]
     if unreached:
         notes.append(f"tolerance {rtol:g} not reached for the torque at {', '.join(unreached)}")
     return BiasResult(tuple(rows), tau0, c0.error.torque_axis, position if isinstance(position, str) else None,
@@ -634,7 +736,7 @@ def what_if(scene, kind: str, body: str, new_scene, description: str, test="pend
     first-order model (or the full reduction when `full_reduction` and the scene has a measurement)."""
     if position is None:
         position = default_position(scene)
-    model = g_model(scene, test)
+    model = g_model(scene, test, source)
     positions = [position] + ([p for p in model.positions if p != position] if model else [])
     before, reached_before = _state(scene, positions, test, source, rtol)
     after, reached_after = _state(new_scene, positions, test, source, rtol)
