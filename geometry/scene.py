@@ -486,7 +486,8 @@ def _read_size(r: _Reader, t: dict, kind: str, where: str):
         if k in t:
             positive = k in ("radius", "length")
             size[k] = r.scalar(t[k], "length", f"{where}.{k}", positive=positive, nonnegative=not positive)
-            check_range(size[k].value, "length", r.file, f"{where}.{k}", t[k])
+            if not positive:  # a positive value's range, the smallest size too, was checked just now
+                check_range(size[k].value, "length", r.file, f"{where}.{k}", t[k])
     if "inner_radius" in size and size["inner_radius"].value >= size["radius"].value:
         what = "shell" if kind == "shell" else "tube"
         r.fail(f"{where}.inner_radius", f"inner_radius must be smaller than radius (an inverted {what})")
