@@ -1,9 +1,10 @@
 """Speed of `check` on large scenes (run on demand: `python tests/benchmarks/bench_check_scale.py [N ...]`).
 
-The scenes: N spheres, boxes and cylinders of 10 mm on a 30 mm grid, each 50th body pushed into its
-neighbour so the overlap tests have work, sizes and positions written with `+-` every 7th body and
-a material every 5th (so unit, uncertainty and material reading are exercised), and two positions of
-the attractor half (so the move between them is checked too). Prints, in seconds of wall time:
+The scenes: `scene_fixtures.grid_scene(N)`: N spheres, boxes and cylinders of about 20 mm on a 30 mm
+grid, each 50th body pushed into its neighbour so the overlap tests have work, sizes and positions
+written with `+-` every 7th body and a material every 5th (so unit, uncertainty and material reading
+are exercised), and two positions of the attractor half, 0.5 deg apart (so the move between them is
+checked too). Prints, in seconds of wall time:
 - process: a whole `truepull check SCENE` process (text output to /dev/null), best of `--repeat`;
   json: the same with `--json`;
 - the split of one run inside this process: toml (tomllib.loads), read (the [[body]] tables to
@@ -30,12 +31,14 @@ import tomllib
 
 import numpy as np
 
-from truepull.api import check
-from truepull.cli.check import render
-from truepull.geometry.audit import scene_warnings
-from truepull.geometry.bodies import build_body
-from truepull.geometry.overlaps import bodies_overlap
-from truepull.geometry.scene import _Reader, load_scene_text
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
+from scene_fixtures import grid_scene  # noqa: E402
+from truepull.api import check  # noqa: E402
+from truepull.cli.check import render  # noqa: E402
+from truepull.geometry.audit import scene_warnings  # noqa: E402
+from truepull.geometry.bodies import build_body  # noqa: E402
+from truepull.geometry.overlaps import bodies_overlap  # noqa: E402
+from truepull.geometry.scene import _Reader, load_scene_text  # noqa: E402
 
 try:
     from truepull.geometry.scene import read_body_specs
@@ -44,35 +47,6 @@ except ImportError:  # an older checkout (PYTHONPATH=...), to time the code befo
 
     def read_body_specs(r, raw_bodies):
         return (_read_body(r, raw, i) for i, raw in enumerate(raw_bodies))
-
-SHAPES = ('shape = "sphere"\nradius = 10', 'shape = "box"\nsize = [18, 18, 18]', 'shape = "cylinder"\nradius = 9\nlength = 18')
-STATED = ('shape = "sphere"\nradius = "10 +- 0.01"', 'shape = "box"\nsize = ["18 +- 0.01 mm", 18, "1.8 cm"]',
-          'shape = "cylinder"\nradius = "9.000(5)"\nlength = 18')
-
-
-def scene_text(n: int) -> str:
-    """A scene of n bodies (see the module docstring), lengths in mm."""
-    side = int(np.ceil(n ** (1 / 3)))
-    parts = ['[units]\nlength = "mm"\n']
-    k = 0
-    for i in range(side):
-        for j in range(side):
-            for m in range(side):
-                if k >= n:
-                    break
-                group = "pendulum" if i < side / 2 else "attractor"
-                x, y, z = 30.0 * i + 200.0 * (group == "attractor"), 30.0 * j, 30.0 * m
-                if k % 50 == 1:
-                    z -= 15.0  # overlaps its neighbour below
-                shape = (STATED if k % 7 == 3 else SHAPES)[k % 3]
-                at = f'["{x} +- 0.02", {y}, {z}]' if k % 7 == 3 else f"[{x}, {y}, {z}]"
-                matter = 'material = "brass"' if k % 5 == 2 else "density = 8000"
-                parts.append(f'[[body]]\nname = "b{k}"\ngroup = "{group}"\n{shape}\n{matter}\nat = {at}\n')
-                k += 1
-    parts.append('[[position]]\nname = "A"\ngroup = "attractor"\nturn = 0\n')
-    parts.append('[[position]]\nname = "B"\ngroup = "attractor"\nturn = 0.5\n')
-    return "\n".join(parts)
-
 
 def all_pairs(bodies) -> int:
     hits = 0
@@ -107,7 +81,7 @@ def split(text: str, name: str) -> dict[str, float]:
     [build_body(s) for s in specs]
     t["build"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    scene = load_scene_text(text, name)
+    scene = load_grid_scene(text, name)
     t["load"] = time.perf_counter() - t0
     t0 = time.perf_counter()
     scene_warnings(scene)
@@ -127,12 +101,12 @@ def main(argv=None):
     ap.add_argument("--repeat", type=int, default=2, help="processes per size; the best is shown")
     ap.add_argument("--all-pairs", action="store_true", help="also time the search over every pair (N <= 2000)")
     args = ap.parse_args(argv)
-    scene_warnings(load_scene_text(scene_text(27), "warm.toml"))  # imports and kernels outside the split
+    scene_warnings(load_grid_scene(grid_scene(27), "warm.toml"))  # imports and kernels outside the split
     cols = ["process", "json", "toml", "read", "build", "load", "checks", "warnings", "output"]
     print(f"{'bodies':>7}  " + "  ".join(f"{c:>8}" for c in cols) + ("  all pairs" if args.all_pairs else ""))
     with tempfile.TemporaryDirectory() as tmp:
         for n in args.sizes:
-            text = scene_text(n)
+            text = grid_scene(n)
             path = os.path.join(tmp, f"n{n}.toml")
             with open(path, "w", encoding="utf-8") as fh:
                 fh.write(text)
@@ -141,7 +115,7 @@ def main(argv=None):
             line = f"{n:>7}  " + "  ".join(f"{t[c]:>8.2f}" for c in cols)
             if args.all_pairs and n <= 2000:
                 t0 = time.perf_counter()
-                all_pairs(list(load_scene_text(text, path).bodies))
+                all_pairs(list(load_grid_scene(text, path).bodies))
                 line += f"  {time.perf_counter() - t0:>9.2f}"
             print(line, flush=True)
 
