@@ -81,7 +81,7 @@ def split(text: str, name: str) -> dict[str, float]:
     [build_body(s) for s in specs]
     t["build"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    scene = load_grid_scene(text, name)
+    scene = load_scene_text(text, name)
     t["load"] = time.perf_counter() - t0
     t0 = time.perf_counter()
     scene_warnings(scene)
@@ -101,7 +101,7 @@ def main(argv=None):
     ap.add_argument("--repeat", type=int, default=2, help="processes per size; the best is shown")
     ap.add_argument("--all-pairs", action="store_true", help="also time the search over every pair (N <= 2000)")
     args = ap.parse_args(argv)
-    scene_warnings(load_grid_scene(grid_scene(27), "warm.toml"))  # imports and kernels outside the split
+    scene_warnings(load_scene_text(grid_scene(27), "warm.toml"))  # imports and kernels outside the split
     cols = ["process", "json", "toml", "read", "build", "load", "checks", "warnings", "output"]
     print(f"{'bodies':>7}  " + "  ".join(f"{c:>8}" for c in cols) + ("  all pairs" if args.all_pairs else ""))
     with tempfile.TemporaryDirectory() as tmp:
@@ -115,7 +115,7 @@ def main(argv=None):
             line = f"{n:>7}  " + "  ".join(f"{t[c]:>8.2f}" for c in cols)
             if args.all_pairs and n <= 2000:
                 t0 = time.perf_counter()
-                all_pairs(list(load_grid_scene(text, path).bodies))
+                all_pairs(list(load_scene_text(text, path).bodies))
                 line += f"  {time.perf_counter() - t0:>9.2f}"
             print(line, flush=True)
 
