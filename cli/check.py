@@ -112,6 +112,12 @@ def render(scene, data: dict, stated=None) -> str:
     return "\n".join(lines)
 
 
+def render_result(result) -> str:
+    """The human-readable report of a CheckResult (render on its fields, without the JSON conversion)."""
+    data = {"bodies": result.bodies, "groups": result.groups, "warnings": result.warnings, "notes": result.notes}
+    return render(result.scene, data, result.stated)
+
+
 def render_materials(rows) -> str:
     """The material table as text: density kg/m^3, expansion 1e-6/K with its u, and the sources."""
     from truepull.geometry.materials import REFERENCE_TEMPERATURE
@@ -146,7 +152,5 @@ def run(args) -> int:
     if args.json:
         print_json(result.to_json())
     else:
-        data = {"bodies": result.bodies, "groups": result.groups, "warnings": result.warnings,
-                "notes": result.notes}
-        print(render(scene, data, result.stated))
+        print(render_result(result))
     return 0

@@ -49,8 +49,9 @@ class GroupTotals:
 
 def group_totals(scene, name: str) -> GroupTotals:
     bodies = scene.group(name)
-    mass = sum(b.mass for b in bodies)
-    first = sum((b.mass * b.com for b in bodies), np.zeros(3))
+    masses = [b.mass for b in bodies]  # each body's mass and centre once (they are computed, not stored)
+    mass = sum(masses)
+    first = sum((m * b.com for m, b in zip(masses, bodies)), np.zeros(3))
     com = first / mass if mass != 0 else np.full(3, np.nan)
     pivot, axis = scene.frame.pivot, scene.frame.axis
     tensor = sum((b.inertia_tensor_about(pivot) for b in bodies), np.zeros((3, 3)))

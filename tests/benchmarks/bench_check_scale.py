@@ -6,12 +6,13 @@ written with `+-` every 7th body and a material every 5th (so unit, uncertainty 
 are exercised), and two positions of the attractor half, 0.5 deg apart (so the move between them is
 checked too). Prints, in seconds of wall time:
 - process: a whole `truepull check SCENE` process (text output to /dev/null), best of `--repeat`;
-  json: the same with `--json`;
+  cpu: its CPU time (user + system, best of the same runs: less sensitive to other work on the
+  machine than the wall time); json: the wall time with `--json`, one run;
 - the split of one run inside this process: toml (tomllib.loads), read (the [[body]] tables to
   specs, `read_body_specs`), build (specs to bodies: shapes, placements, density checks), load (all of
   `load_scene_text`, which holds the three before), checks (`truepull.api.check`: mass properties,
   group totals, stated uncertainties and the warnings), of which warnings (`scene_warnings`: overlaps,
-  at the positions too, and on the way between them), and output (the text report, `render`);
+  at the positions too, and on the way between them), and output (the text report, as `check` prints it);
 - all pairs: the overlap search over every pair, as `check` did before the k-d tree (only with
   `--all-pairs` and N <= 2000: it grows as N^2).
 Timings depend on the machine's load at the time: report them with it. To time an older version
@@ -23,6 +24,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import resource
 import subprocess
 import sys
 import tempfile
@@ -35,6 +37,11 @@ sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."
 from scene_fixtures import grid_scene  # noqa: E402
 from truepull.api import check  # noqa: E402
 from truepull.cli.check import render  # noqa: E402
+
+try:
+    from truepull.cli.check import render_result
+except ImportError:  # an older checkout
+    render_result = None
 from truepull.geometry.audit import scene_warnings  # noqa: E402
 from truepull.geometry.bodies import build_body  # noqa: E402
 from truepull.geometry.overlaps import bodies_overlap  # noqa: E402
@@ -56,15 +63,18 @@ def all_pairs(bodies) -> int:
     return hits
 
 
-def process_time(path: str, repeat: int, *extra: str) -> float:
-    """Best wall time (s) of a whole `truepull check` process on the scene file."""
-    best = np.inf
+def process_time(path: str, repeat: int, *extra: str) -> tuple[float, float]:
+    """Best wall time and best CPU time (user + system, s) of a whole `truepull check` process."""
+    best, best_cpu = np.inf, np.inf
     for _ in range(repeat):
+        before = resource.getrusage(resource.RUSAGE_CHILDREN)
         t0 = time.perf_counter()
         subprocess.run([sys.executable, "-m", "truepull", "check", *extra, path], check=True,
                        stdout=subprocess.DEVNULL)
         best = min(best, time.perf_counter() - t0)
-    return best
+        after = resource.getrusage(resource.RUSAGE_CHILDREN)
+        best_cpu = min(best_cpu, after.ru_utime - before.ru_utime + after.ru_stime - before.ru_stime)
+    return best, best_cpu
 
 
 def split(text: str, name: str) -> dict[str, float]:
@@ -87,10 +97,13 @@ def split(text: str, name: str) -> dict[str, float]:
     scene_warnings(scene)
     t["warnings"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    result = check(scene).to_json()  # on a fresh scene: nothing cached from the line above
+    result = check(scene)  # on a fresh scene: nothing cached from the line above
     t["checks"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    render(scene, result)
+    if render_result is None:  # an older checkout: as its `check` did
+        render(scene, result.to_json())
+    else:
+        render_result(result)
     t["output"] = time.perf_counter() - t0
     return t
 
@@ -102,7 +115,7 @@ def main(argv=None):
     ap.add_argument("--all-pairs", action="store_true", help="also time the search over every pair (N <= 2000)")
     args = ap.parse_args(argv)
     scene_warnings(load_scene_text(grid_scene(27), "warm.toml"))  # imports and kernels outside the split
-    cols = ["process", "json", "toml", "read", "build", "load", "checks", "warnings", "output"]
+    cols = ["process", "cpu", "json", "toml", "read", "build", "load", "checks", "warnings", "output"]
     print(f"{'bodies':>7}  " + "  ".join(f"{c:>8}" for c in cols) + ("  all pairs" if args.all_pairs else ""))
     with tempfile.TemporaryDirectory() as tmp:
         for n in args.sizes:
@@ -110,7 +123,8 @@ def main(argv=None):
             path = os.path.join(tmp, f"n{n}.toml")
             with open(path, "w", encoding="utf-8") as fh:
                 fh.write(text)
-            t = {"process": process_time(path, args.repeat), "json": process_time(path, 1, "--json")}
+            t = dict(zip(("process", "cpu"), process_time(path, args.repeat)))
+            t["json"] = process_time(path, 1, "--json")[0]
             t.update(split(text, path))
             line = f"{n:>7}  " + "  ".join(f"{t[c]:>8.2f}" for c in cols)
             if args.all_pairs and n <= 2000:
