@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import gc
+
 import numpy as np
 
 from truepull.cli.options import add_scene
@@ -57,8 +59,10 @@ def _vec(v, factor: float) -> str:
     return "(" + ", ".join(fmt(x, 6) for x in v) + ")"
 
 
-def render(scene, data: dict) -> str:
-    """The human-readable report: lengths in the scene's unit, masses in kg."""
+def render(scene, data: dict, stated=None) -> str:
+    """The human-readable report: lengths in the scene's unit, masses in kg. `data` as check_data
+    gives it (or a CheckResult's fields: numbers as numpy values); `stated` the scene's stated
+    uncertainties when already listed (else listed here)."""
     u, f = scene.length_unit, scene.length_factor
     lines = []
     title = f" - {scene.title}" if scene.title else ""
@@ -68,11 +72,14 @@ def render(scene, data: dict) -> str:
                  "m^3 kg^-1 s^-2")
     lines.append("")
     rows = []
-    for b, d in zip(scene.bodies, data["bodies"]):
-        principal = np.linalg.eigvalsh(np.asarray(d["inertia_com"])) / f**2
+    bodies = data["bodies"]
+    # principal moments of every body at once (the same LAPACK call per matrix as one at a time)
+    tensors = np.array([d["inertia_com"] for d in bodies], dtype=float).reshape(-1, 3, 3)
+    principal = (np.linalg.eigvalsh(tensors) / f**2).tolist() if len(bodies) else []
+    for b, d, p in zip(scene.bodies, bodies, principal):
         kind = d["shape"] + (" (hole)" if b.is_hole else "")
         rows.append([d["name"], d["group"], kind, fmt(d["mass"]), fmt(d["volume"] / f**3),
-                     _vec(d["com"], f), " ".join(fmt(x, 5) for x in principal)])
+                     _vec(d["com"], f), " ".join(fmt(x, 5) for x in p)])
     lines.append(format_table(["body", "group", "shape", "mass (kg)", f"volume ({u}^3)", f"centre of mass ({u})",
                                f"principal moments (kg {u}^2)"], rows, align="lllrrll"))
     lines.append("")
@@ -93,7 +100,7 @@ def render(scene, data: dict) -> str:
         for m in scene.measurements or (scene.measurement,):
             lines.append(f"measurement: {m.method} at positions {', '.join(m.positions) or '-'}")
     lines.append("")
-    lines.extend(stated_lines(scene, None))
+    lines.extend(stated_lines(scene, stated))
     lines.append("")
     for note in data.get("notes", []):
         lines.append(f"note: {note}")
@@ -103,6 +110,12 @@ def render(scene, data: dict) -> str:
     else:
         lines.append("no warnings")
     return "\n".join(lines)
+
+
+def render_result(result) -> str:
+    """The human-readable report of a CheckResult (render on its fields, without the JSON conversion)."""
+    data = {"bodies": result.bodies, "groups": result.groups, "warnings": result.warnings, "notes": result.notes}
+    return render(result.scene, data, result.stated)
 
 
 def render_materials(rows) -> str:
@@ -133,9 +146,11 @@ def run(args) -> int:
 
         raise InputError(None, "SCENE", "check needs a scene file (or --materials)")
     scene = load_scene(args.scene)
-    data = check(scene, overlaps=not args.no_overlaps).to_json()
+    # the scene's objects live to the end: the garbage collector need not look through them again
+    gc.freeze()
+    result = check(scene, overlaps=not args.no_overlaps)
     if args.json:
-        print_json(data)
+        print_json(result.to_json())
     else:
-        print(render(scene, data))
+        print(render_result(result))
     return 0

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from truepull.geometry.overlaps import find_overlaps, stray_holes
+from truepull.geometry.overlaps import TOUCH_RTOL, bodies_overlap, bounding_spheres, find_overlaps, sphere_pairs, stray_holes
 from truepull.geometry.shapes import MeshShape, Point
 
 PLAUSIBLE_DENSITY = (10.0, 25000.0)
@@ -49,8 +49,9 @@ class GroupTotals:
 
 def group_totals(scene, name: str) -> GroupTotals:
     bodies = scene.group(name)
-    mass = sum(b.mass for b in bodies)
-    first = sum((b.mass * b.com for b in bodies), np.zeros(3))
+    masses = [b.mass for b in bodies]  # each body's mass and centre once (they are computed, not stored)
+    mass = sum(masses)
+    first = sum((m * b.com for m, b in zip(masses, bodies)), np.zeros(3))
     com = first / mass if mass != 0 else np.full(3, np.nan)
     pivot, axis = scene.frame.pivot, scene.frame.axis
     tensor = sum((b.inertia_tensor_about(pivot) for b in bodies), np.zeros((3, 3)))
@@ -165,6 +166,39 @@ def mesh_scale_warning(body, others) -> str | None:
             f"wrong{hint}")
 
 
+def _overlaps_at(scene, pos, spheres) -> list:
+    """(moving body, other body, kind) for each overlap or touch between the group `pos` moves and
+    the rest, with that group at position `pos`, in body order. The bounding spheres are moved as
+    arrays (padded by 1e-12 of their size and distance from the origin, for rounding) to find the
+    candidate pairs; only the bodies of those pairs are moved and tested (as scene.at_position would
+    move them)."""
+    c, r = spheres
+    bodies = scene.bodies
+    move = pos.placement(scene.frame)
+    mask = np.array([b.group == pos.group for b in bodies], bool)
+    if not mask.any() or mask.all():
+        return []
+    moved_c = c.copy()
+    moved_c[mask] = c[mask] @ move.rotation.T + move.translation
+    pad = 1e-12 * (r + np.linalg.norm(moved_c, axis=1) + np.linalg.norm(c, axis=1))
+    moved = {}
+
+    def placed(i):
+        if not mask[i]:
+            return bodies[i]
+        if i not in moved:
+            moved[i] = bodies[i].moved(move)
+        return moved[i]
+
+    out = []
+    for i, j in sphere_pairs(moved_c, r + pad, TOUCH_RTOL, between=mask):
+        a, b = placed(i), placed(j)
+        kind = bodies_overlap(a, b, TOUCH_RTOL)
+        if kind is not None:
+            out.append((b, a, kind) if mask[j] else (a, b, kind))
+    return out
+
+
 def scene_warnings(scene, overlaps: bool = True) -> list[str]:
     """Plain-English warnings about the scene, in a stable order."""
     import os
@@ -196,22 +230,18 @@ def scene_warnings(scene, overlaps: bool = True) -> list[str]:
             out.append(note)
     if not overlaps:
         return out
-    by_name = {b.name: b for b in scene.bodies}
-    for a_name, b_name, kind in find_overlaps(scene.bodies):
+    bodies = scene.bodies
+    spheres = bounding_spheres(bodies)
+    by_name = {b.name: b for b in bodies}
+    for a_name, b_name, kind in find_overlaps(bodies, spheres=spheres):
         w = _pair_warning(by_name[a_name], by_name[b_name], kind)
         if w:
             out.append(w)
-    for name, frac in stray_holes(scene.bodies):
+    for name, frac in stray_holes(bodies):
         out.append(f"hole {name} is not inside a body of its group (about {100 * frac:.3g} % of it lies "
                    "outside): it removes mass that is not there")
     for pos in scene.positions:
-        moved = scene.at_position(pos)
-        by_name = {b.name: b for b in moved.bodies}
-        mask = [b.group == pos.group for b in moved.bodies]
-        for a_name, b_name, kind in find_overlaps(moved.bodies, between=mask):
-            a, b = by_name[a_name], by_name[b_name]
-            if b.group == pos.group:
-                a, b = b, a
+        for a, b, kind in _overlaps_at(scene, pos, spheres):
             w = _pair_warning(a, b, kind, pos.name)
             if w:
                 out.append(w)

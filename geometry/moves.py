@@ -23,7 +23,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from truepull.geometry.overlaps import TOUCH_RTOL, bodies_overlap, candidate_pairs
+from truepull.geometry.overlaps import TOUCH_RTOL, bodies_overlap, bounding_spheres, sphere_pairs
 from truepull.geometry.placement import Placement
 from truepull.geometry.shapes import Point
 from truepull.geometry.support import separation_gap
@@ -121,29 +121,22 @@ def path_meetings(scene, resolution: float = RESOLUTION, max_tests: int = 4000) 
 def _near_pairs(movers, others, frame, t0, dt, s0, ds):
     """(mover, other) pairs whose bounding spheres can meet somewhere on the path: each mover's sphere
     swept along the path is enclosed by spheres at a few path points, each grown by the reach to the
-    next, and the k-d tree of candidate_pairs finds the others near any of them."""
+    next, and the k-d tree of sphere_pairs finds the others near any of them. The spheres are moved
+    as arrays, padded by 1e-12 of their size and distance from the origin (for rounding)."""
     speed = max(_far_from_axis(a, frame) for a in movers) * abs(dt) + float(np.linalg.norm(ds))
-    size = max(max(b.bounding_sphere()[1] for b in movers + others), 1e-300)
+    c_move, r_move = bounding_spheres(movers)
+    c_other, r_other = bounding_spheres(others)
+    size = max(float(r_move.max()), float(r_other.max()), 1e-300)
     n = int(min(2048, max(2, np.ceil(speed / size) + 1)))
     s = np.linspace(0.0, 1.0, n)
     half = 0.5 * speed / (n - 1)
+    r = np.concatenate([r_move + half, r_other])
+    mask = np.concatenate([np.ones(len(movers), bool), np.zeros(len(others), bool)])
     found = set()
-    for k, sk in enumerate(s):
+    for sk in s:
         move = _placement(frame, t0 + sk * dt, s0 + sk * ds)
-        moved = [a.moved(move) for a in movers]
-        grown = [_Grown(m, half) for m in moved] + [_Grown(b, 0.0) for b in others]
-        mask = np.array([True] * len(moved) + [False] * len(others))
-        for i, j in candidate_pairs(grown, TOUCH_RTOL, between=mask):
-            found.add((i, j - len(moved)))
+        c = np.vstack([c_move @ move.rotation.T + move.translation, c_other])
+        pad = 1e-12 * (r + np.linalg.norm(c, axis=1) + abs(half))
+        for i, j in sphere_pairs(c, r + pad, TOUCH_RTOL, between=mask):
+            found.add((i, j - len(movers)))
     return [(movers[i], others[j]) for i, j in sorted(found)]
-
-
-class _Grown:
-    """A body's bounding sphere grown by `extra` (m), for candidate_pairs."""
-
-    def __init__(self, body, extra: float):
-        self._c, r = body.bounding_sphere()
-        self._r = r + extra
-
-    def bounding_sphere(self):
-        return self._c, self._r

@@ -167,21 +167,38 @@ def bodies_overlap(a, b, touch_rtol: float = TOUCH_RTOL) -> str | None:
     return None
 
 
+def bounding_spheres(bodies) -> tuple[np.ndarray, np.ndarray]:
+    """Centres (N, 3) and radii (N,) in m of the bodies' bounding spheres."""
+    spheres = [b.bounding_sphere() for b in bodies]
+    c = np.array([s[0] for s in spheres], float).reshape(-1, 3)
+    r = np.array([s[1] for s in spheres], float)
+    return c, r
+
+
 def candidate_pairs(bodies, touch_rtol: float = TOUCH_RTOL, between=None) -> list[tuple[int, int]]:
     """Index pairs (i < j, in body order) whose bounding spheres meet (within the touch tolerance): the
-    only pairs that can overlap or touch. A k-d tree (scipy.spatial.cKDTree) over the centres finds
-    them in about N log N rather than N^2; bodies much larger than the typical one are compared with
-    all others directly, so one big body does not widen the tree's search for every small one.
+    only pairs that can overlap or touch (sphere_pairs on the bodies' bounding spheres).
     `between` (a boolean mask) keeps only pairs with one body inside it and one outside."""
+    bodies = list(bodies)
+    if len(bodies) < 2:
+        return []
+    c, r = bounding_spheres(bodies)
+    return sphere_pairs(c, r, touch_rtol, between)
+
+
+def sphere_pairs(c, r, touch_rtol: float = TOUCH_RTOL, between=None) -> list[tuple[int, int]]:
+    """Index pairs (i < j, ascending) of the spheres (centres c (N, 3), radii r (N,), m) that meet
+    within touch_rtol of the larger radius. A k-d tree (scipy.spatial.cKDTree) over the centres finds
+    them in about N log N rather than N^2; spheres much larger than the typical one are compared with
+    all others directly, so one big body does not widen the tree's search for every small one.
+    `between` (a boolean mask) keeps only pairs with one sphere inside it and one outside."""
     from scipy.spatial import cKDTree
 
-    bodies = list(bodies)
-    n = len(bodies)
+    c = np.asarray(c, float).reshape(-1, 3)
+    r = np.asarray(r, float)
+    n = len(r)
     if n < 2:
         return []
-    spheres = [b.bounding_sphere() for b in bodies]
-    c = np.array([s[0] for s in spheres], float)
-    r = np.array([s[1] for s in spheres], float)
     tol = touch_rtol * np.maximum(r, 1e-300)
     big = r > 4.0 * max(float(np.median(r)), 1e-300)
     found = []
@@ -201,8 +218,10 @@ def candidate_pairs(bodies, touch_rtol: float = TOUCH_RTOL, between=None) -> lis
                 found.append(np.column_stack([np.full(len(js), i), small[np.asarray(js, int)]]))
     if not found:
         return []
-    p = np.vstack(found)
-    p = np.unique(np.column_stack([p.min(axis=1), p.max(axis=1)]), axis=0)
+    p = np.vstack(found).astype(np.int64)
+    # each pair once, (i, j) ascending: unique of the one-number keys i * n + j (as a row-wise unique)
+    key = np.unique(np.minimum(p[:, 0], p[:, 1]) * n + np.maximum(p[:, 0], p[:, 1]))
+    p = np.column_stack([key // n, key % n])
     d = np.linalg.norm(c[p[:, 0]] - c[p[:, 1]], axis=1)
     keep = d <= r[p[:, 0]] + r[p[:, 1]] + np.maximum(tol[p[:, 0]], tol[p[:, 1]])
     if between is not None:
@@ -211,12 +230,16 @@ def candidate_pairs(bodies, touch_rtol: float = TOUCH_RTOL, between=None) -> lis
     return [tuple(x) for x in p[keep].tolist()]
 
 
-def find_overlaps(bodies, touch_rtol: float = TOUCH_RTOL, between=None) -> list[tuple[str, str, str]]:
+def find_overlaps(bodies, touch_rtol: float = TOUCH_RTOL, between=None, spheres=None) -> list[tuple[str, str, str]]:
     """Every pair (name_a, name_b, kind) with kind 'overlap' or 'touch', in body order. Only pairs whose
-    bounding spheres meet are examined (candidate_pairs); `between` as there."""
+    bounding spheres meet are examined (candidate_pairs); `between` as there; `spheres` the bodies'
+    (centres, radii) when already known (bounding_spheres)."""
     bodies = list(bodies)
+    if len(bodies) < 2:
+        return []
+    c, r = bounding_spheres(bodies) if spheres is None else spheres
     out = []
-    for i, j in candidate_pairs(bodies, touch_rtol, between):
+    for i, j in sphere_pairs(c, r, touch_rtol, between):
         a, b = bodies[i], bodies[j]
         kind = bodies_overlap(a, b, touch_rtol)
         if kind is not None:
@@ -257,11 +280,15 @@ def stray_holes(bodies, samples: int = 4096) -> list[tuple[str, float]]:
     """Holes not wholly inside the positive bodies of their own group: (name, fraction outside)."""
     bodies = list(bodies)
     out = []
-    for h in bodies:
-        if not h.is_hole or isinstance(h.shape, Point):
-            continue
+    holes = [h for h in bodies if h.is_hole and not isinstance(h.shape, Point)]
+    if not holes:
+        return out
+    c, r = bounding_spheres(bodies)
+    for h in holes:
         ch, rh = h.bounding_sphere()
-        hosts = [b for b in bodies if b.group == h.group and not b.is_hole
+        # the spheres that can meet the hole's (padded), then the exact test on each of those
+        near = np.nonzero(np.linalg.norm(c - ch, axis=1) <= (r + rh) * (1 + 1e-9) + 1e-300)[0]
+        hosts = [b for b in (bodies[k] for k in near) if b.group == h.group and not b.is_hole
                  and np.linalg.norm(b.bounding_sphere()[0] - ch) <= b.bounding_sphere()[1] + rh]
         frac = hole_outside_fraction(h, hosts, samples)
         if frac > 0:

@@ -206,14 +206,15 @@ def parse_scalar(raw, kind: str, default_unit: str, file=None, key=None,
                  positive: bool = False, nonnegative: bool = False) -> Measured:
     """Read one scalar (number, "value +- u unit" or concise "value(u) unit" string) and return it in
     SI, refusing non-finite values and magnitudes outside LIMITS[kind]."""
-    if isinstance(raw, bool):
-        raise InputError(file, key, "expected a number, got true/false")
-    if isinstance(raw, (int, float)):
+    raw_type = type(raw)
+    if raw_type is float or raw_type is int or (isinstance(raw, (int, float)) and raw_type is not bool):
         try:
             value = float(raw)
         except OverflowError:
             raise InputError(file, key, "integer too large for a floating-point number") from None
         u, unit = None, default_unit
+    elif isinstance(raw, bool):
+        raise InputError(file, key, "expected a number, got true/false")
     elif isinstance(raw, str):
         value, u, unit = _read_text(raw, file, key)
         unit = unit or default_unit
@@ -229,7 +230,11 @@ def parse_scalar(raw, kind: str, default_unit: str, file=None, key=None,
         factor = si_factor(unit, kind, file, key)
     value_si = value * factor
     u_si = None if u is None else u * abs(factor)
-    check_range(value_si, kind, file, key, raw, small=positive or kind in ("mass", "density"))
+    largest, smallest = LIMITS[kind]
+    small = positive or kind in ("mass", "density")
+    size = abs(value_si)
+    if not (size <= largest and (not small or value_si == 0 or size >= smallest)):
+        check_range(value_si, kind, file, key, raw, small=small)  # out of range: raises, naming the bound
     if u_si is not None:
         check_range(u_si, kind, file, key, raw, "uncertainty of", small=False)
     if positive and not value_si > 0:

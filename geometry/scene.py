@@ -22,6 +22,7 @@ per position with torque_per_volt2 = c, the torque being c V^2). Several methods
 
 from __future__ import annotations
 
+import gc
 import math
 import os
 import tomllib
@@ -300,7 +301,19 @@ def load_scene(path) -> Scene:
 
 
 def load_scene_text(text: str, path_for_messages: str = "-", base_dir: str | None = None) -> Scene:
-    """Read and validate a scene from TOML text; `base_dir` is where relative mesh paths start."""
+    """Read and validate a scene from TOML text; `base_dir` is where relative mesh paths start.
+    The cyclic garbage collector is paused meanwhile (reading makes many objects and no cycles; on
+    10 000 bodies its passes took a fifth of the time)."""
+    enabled = gc.isenabled()
+    gc.disable()
+    try:
+        return _load_scene_text(text, path_for_messages, base_dir)
+    finally:
+        if enabled:
+            gc.enable()
+
+
+def _load_scene_text(text: str, path_for_messages: str, base_dir: str | None) -> Scene:
     base_dir = base_dir if base_dir is not None else os.getcwd()
     r = _Reader(path_for_messages, base_dir)
     try:
@@ -324,12 +337,7 @@ def load_scene_text(text: str, path_for_messages: str = "-", base_dir: str | Non
     if not raw_bodies:
         r.fail("body", "the scene has no bodies")
     bodies = []
-    seen = set()
-    for i, raw in enumerate(raw_bodies):
-        spec = _read_body(r, raw, i)
-        if spec.name in seen:
-            r.fail(f"body[{spec.name}].name", f"duplicate body name '{spec.name}'")
-        seen.add(spec.name)
+    for spec in read_body_specs(r, raw_bodies):
         body = build_body(spec)
         if body.has_gradient:
             _check_density_stays_positive(r, body)
@@ -347,6 +355,19 @@ def load_scene_text(text: str, path_for_messages: str = "-", base_dir: str | Non
         angle_unit=r.units["angle"], angle_factor=si_factor(r.units["angle"], "angle", r.file, "units.angle"),
         mass_unit=r.units["mass"], density_unit=r.units["density"], time_unit=r.units["time"], base_dir=base_dir,
     )
+
+
+def read_body_specs(r: _Reader, raw_bodies: list):
+    """The [[body]] tables read and checked, one spec at a time in file order (a generator, so that
+    the caller builds each body before the next is read and the first problem in the file is the one
+    reported); a duplicate name is refused."""
+    seen = set()
+    for i, raw in enumerate(raw_bodies):
+        spec = _read_body(r, raw, i)
+        if spec.name in seen:
+            r.fail(f"body[{spec.name}].name", f"duplicate body name '{spec.name}'")
+        seen.add(spec.name)
+        yield spec
 
 
 def _read_units(r: _Reader, raw):
@@ -480,7 +501,8 @@ def _read_size(r: _Reader, t: dict, kind: str, where: str):
         if k in t:
             positive = k in ("radius", "length")
             size[k] = r.scalar(t[k], "length", f"{where}.{k}", positive=positive, nonnegative=not positive)
-            check_range(size[k].value, "length", r.file, f"{where}.{k}", t[k])
+            if not positive:  # a positive value's range, the smallest size too, was checked just now
+                check_range(size[k].value, "length", r.file, f"{where}.{k}", t[k])
     if "inner_radius" in size and size["inner_radius"].value >= size["radius"].value:
         what = "shell" if kind == "shell" else "tube"
         r.fail(f"{where}.inner_radius", f"inner_radius must be smaller than radius (an inverted {what})")

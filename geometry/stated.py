@@ -66,9 +66,11 @@ def stated_uncertainties(scene) -> list[Stated]:
         if spec is None:
             continue
         for name, m in body_parameters(spec).items():
-            if m is not None:
+            # most values state no uncertainty: skip those before building their key
+            if m is not None and not (isinstance(m, Measured) and m.u is None):
                 out.extend(_items(f"body[{b.name}].{name}", m, _kind_of_parameter(name)))
-        out.extend(_items(f"body[{b.name}].rotate.angle", spec.rotate_angle, "angle"))
+        if not (isinstance(spec.rotate_angle, Measured) and spec.rotate_angle.u is None):
+            out.extend(_items(f"body[{b.name}].rotate.angle", spec.rotate_angle, "angle"))
     for p in scene.positions:
         out.extend(_items(f"position[{p.name}].turn", p.turn, "angle"))
         for c, s in zip("xyz", p.shift):

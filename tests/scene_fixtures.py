@@ -307,3 +307,39 @@ def symmetric_tube(r_inner: float, r_outer: float, half_height: float, per_octan
         np.c_[it, ot, nx(ot)], np.c_[it, nx(ot), nx(it)],          # top, normal +z
         np.c_[ib, nx(ob), ob], np.c_[ib, nx(ib), nx(ob)]])         # bottom, normal -z
     return v, faces
+
+
+GRID_SHAPES = ('shape = "sphere"\nradius = 10', 'shape = "box"\nsize = [18, 18, 18]',
+               'shape = "cylinder"\nradius = 9\nlength = 18')
+GRID_STATED = ('shape = "sphere"\nradius = "10 +- 0.01"', 'shape = "box"\nsize = ["18 +- 0.01 mm", 18, "1.8 cm"]',
+               'shape = "cylinder"\nradius = "9.000(5)"\nlength = 18')
+
+
+def grid_scene(n: int, move: str = "turn = 0.5") -> str:
+    """`n` spheres, boxes and cylinders of about 20 mm on a 30 mm cubic grid (mm), the lower half of
+    the grid in x the pendulum, the upper half 200 mm further out the attractor; every 50th body pushed
+    15 mm into its neighbour below (an overlap); every 7th states `+-` on its size and first
+    coordinate, every 5th is of brass. Positions: A (the attractor as drawn) and B (`move`, a TOML
+    line of [[position]], e.g. "turn = 0.5" in deg or "shift = [-245, 0, 0]")."""
+    import math
+
+    side = math.ceil(n ** (1 / 3) - 1e-9)
+    parts = ['[units]\nlength = "mm"\n']
+    k = 0
+    for i in range(side):
+        for j in range(side):
+            for m in range(side):
+                if k >= n:
+                    break
+                group = "pendulum" if i < side / 2 else "attractor"
+                x, y, z = 30.0 * i + 200.0 * (group == "attractor"), 30.0 * j, 30.0 * m
+                if k % 50 == 1:
+                    z -= 15.0
+                shape = (GRID_STATED if k % 7 == 3 else GRID_SHAPES)[k % 3]
+                at = f'["{x} +- 0.02", {y}, {z}]' if k % 7 == 3 else f"[{x}, {y}, {z}]"
+                matter = 'material = "brass"' if k % 5 == 2 else "density = 8000"
+                parts.append(f'[[body]]\nname = "b{k}"\ngroup = "{group}"\n{shape}\n{matter}\nat = {at}\n')
+                k += 1
+    parts.append('[[position]]\nname = "A"\ngroup = "attractor"\nturn = 0\n')
+    parts.append(f'[[position]]\nname = "B"\ngroup = "attractor"\n{move}\n')
+    return "\n".join(parts)

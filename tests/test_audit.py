@@ -90,3 +90,28 @@ def test_no_false_warnings_on_the_demo():
 
     warnings = scene_warnings(load_scene(demo_path()))
     assert not [w for w in warnings if any(s in w for s in SUSPECT)], warnings
+
+
+def test_overlaps_at_a_position_are_those_of_the_moved_scene():
+    # reference: the scene moved to position B (the attractor shifted into the pendulum) and every pair
+    # of a moved and an unmoved body tested (brute force over all pairs, no candidate search)
+    from scene_fixtures import grid_scene
+    from truepull.geometry.audit import _overlaps_at
+    from truepull.geometry.overlaps import bounding_spheres
+    from truepull.geometry.scene import load_scene_text
+
+    scene = load_scene_text(grid_scene(64, "shift = [-245, 0, 0]"), "grid.toml")
+    pos = scene.get_position("B")
+    moved = scene.at_position(pos)
+    expected = []
+    for i, a in enumerate(moved.bodies):
+        for b in moved.bodies[i + 1:]:
+            if (a.group == pos.group) != (b.group == pos.group):
+                kind = bodies_overlap(a, b)
+                if kind is not None:
+                    expected.append((a, b, kind) if a.group == pos.group else (b, a, kind))
+    found = _overlaps_at(scene, pos, bounding_spheres(scene.bodies))
+    assert len(expected) > 10
+    assert [(a.name, b.name, k) for a, b, k in found] == [(a.name, b.name, k) for a, b, k in expected]
+    assert all(np.allclose(a.placement.translation, next(m for m in moved.bodies if m.name == a.name)
+                           .placement.translation, rtol=0, atol=1e-15) for a, _, _ in found)

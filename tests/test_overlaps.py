@@ -112,3 +112,26 @@ def test_ellipsoid_distance_sign_and_zero_set():
     assert np.all(signed_distance(e, 0.99 * surf) < 0) and np.all(signed_distance(e, 1.01 * surf) > 0)
     # along a principal axis the estimate is the exact distance
     assert signed_distance(e, [[0, 0.7, 0]])[0] == pytest.approx(0.2, rel=1e-12)
+
+
+def test_sphere_pairs_are_the_meeting_spheres_of_a_brute_force_search():
+    # reference: every pair's centre distance from scipy.spatial.distance.cdist against the sum of the
+    # radii (plus the touch tolerance); spheres of mixed sizes, a few large, some placed exactly touching
+    from scipy.spatial.distance import cdist
+
+    from truepull.geometry.overlaps import TOUCH_RTOL, sphere_pairs
+
+    rng = np.random.default_rng(7)
+    n = 400
+    c = rng.uniform(0, 1, (n, 3))
+    r = rng.uniform(0.005, 0.03, n)
+    r[:5] = 0.3  # large: compared with all the small ones directly
+    c[10] = c[11] + np.array([r[10] + r[11], 0, 0])  # touching along x, to the rounding of the sum
+    d = cdist(c, c)
+    i, j = np.triu_indices(n, 1)
+    meet = d[i, j] <= r[i] + r[j] + TOUCH_RTOL * np.maximum(r[i], r[j])
+    expected = [(int(a), int(b)) for a, b in zip(i[meet], j[meet])]
+    assert sphere_pairs(c, r) == expected
+    assert (10, 11) in expected
+    mask = rng.uniform(size=n) < 0.3
+    assert sphere_pairs(c, r, between=mask) == [p for p in expected if mask[p[0]] != mask[p[1]]]

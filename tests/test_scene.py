@@ -361,3 +361,20 @@ def test_default_G_is_scipys_codata_value():
 
     value, _unit, u = physical_constants["Newtonian constant of gravitation"]
     assert CODATA_2018_G == (value, u)
+
+
+def test_loading_leaves_the_garbage_collector_as_it_was():
+    import gc
+
+    assert gc.isenabled()
+    load_scene_text(GOOD, "good.toml")
+    assert gc.isenabled()
+    with pytest.raises(InputError):
+        load_scene_text("[[body]]\nname = 3\n", "bad.toml")
+    assert gc.isenabled()
+    gc.disable()
+    try:
+        load_scene_text(GOOD, "good.toml")
+        assert not gc.isenabled()
+    finally:
+        gc.enable()
