@@ -30,48 +30,153 @@ GRADING = 3.0
 Gauss converges like (2 + sqrt 3)^(-2n), about 1e-14 for n = 12."""
 
 
-@njit(cache=True, inline="always")
-def _generator_integral(r0, z0, dr, dz, rho, z, vers):
-    """J = integral over s in [0, 1] of r(s) / |x'(s) - x| for the generator at azimuth offset phi'
-    (vers = 1 - cos phi' = 2 sin^2(phi'/2)), point at cylindrical (rho, 0, z) in the body frame.
+U_ROUND = 2.0**-53
+"""Unit roundoff of IEEE doubles: each +, -, *, / and sqrt is exact times (1 + d), |d| <= U_ROUND."""
+LIB_ULPS = 4.0
+"""log1p, asinh and sin are taken within LIB_ULPS * U_ROUND relative (2 ulps; glibc states 1 to 2 ulps
+for these, from memory)."""
 
-    With |x' - x|^2 = Q(s) = A s^2 + B s + C = A (s - s*)^2 + h^2, the integral of 1/sqrt(Q) is
-    (asinh(sqrt(A)(1 - s*)/h) - asinh(-sqrt(A) s*/h)) / sqrt(A); it is formed as the log of a ratio of
-    sqrt(Q) + sqrt(A)(s - s*) terms (or their reciprocals, for negative arguments) so that nothing cancels,
-    and the integral of s/sqrt(Q) follows as (sqrt(Q(1)) - sqrt(Q(0)))/A + s* times the first."""
+
+@njit(cache=True, inline="always")
+def _log1p_gap(x):
+    """x - log1p(x) for x >= 0 without cancellation: with y = x / (2 + x), log1p(x) = 2 atanh(y), so
+    x - log1p(x) = x y - 2 (y^3/3 + y^5/5 + ...), summed to rounding for x < 0.5 (y < 0.2, no term
+    larger than 5 % of the first); directly above, where it is at least a fifth of x."""
+    if x >= 0.5:
+        return x - math.log1p(x)
+    y = x / (2.0 + x)
+    y2 = y * y
+    t = y * y2
+    s = 0.0
+    for k in range(1, 40):
+        s += t / (2 * k + 1)
+        t *= y2
+        if t < 1e-18 * s:
+            break
+    return x * y - 2.0 * s
+
+
+@njit(cache=True, inline="always")
+def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
+    """(J, eJ): J = integral over s in [0, 1] of r(s) / |x'(s) - x| for the generator at azimuth offset
+    phi' (vers = 1 - cos phi' = 2 sin^2(phi'/2)), point at cylindrical (rho, 0, z) in the body frame;
+    eJ a first-order bound of J's rounding error when `bound` (else 0).
+
+    Along the generator |x' - x| = sqrt(a^2 + h^2), a = a0 + sqrt(A) s the projection on the generator
+    (a0 = B / (2 sqrt A) at s = 0, a1 = a0 + sqrt A at s = 1), h the distance from the point to the line.
+    Then sqrt(A) i0 = L = integral of da / sqrt(a^2 + h^2) and A i1 = K = integral of (a - a0) da /
+    sqrt(a^2 + h^2), J = r0 i0 + dr i1. Three branches, none of which cancels near the generator or far:
+    - a0 >= 0 (the foot of the perpendicular before s = 0): with D = sqrt(a^2 + h^2) + a,
+      L = log1p(d), d = D1/D0 - 1 = (sqrt A + P1 - P0) / (P0 + a0), P1 - P0 = (A + B)/(P0 + P1) (>= 0),
+      and K = a0 (d - log1p d) + h^2 d^2 / (2 D1): both terms positive (d - log1p d by `_log1p_gap`);
+    - a1 < 0 (foot past s = 1): the same about the s = 1 end (b = -a), J = r1 i0 - dr i1' with
+      i1' = integral of (1 - s)/|x' - x|;
+    - otherwise (foot on the generator): L = asinh(a1/h) + asinh(-a0/h), K = (P1 - P0) - a0 L, where
+      -a0 L >= 0 and |P1 - P0| <= 2 |a0| L.
+    The rounding bound follows each operation (U_ROUND per operation times the magnitude of its operands,
+    LIB_ULPS for log1p, asinh and sin) to first order, with the conditioning of each step; the error of
+    B (the projection a0) is carried as a shift of a0 and a1 together, whose effect on L and K is their
+    derivative along the generator (1/P1 - 1/P0 and sqrt(A)/P1 - L), small far away. r0, z0, dr, dz,
+    rho, z are taken as given; the differences r0 - rho, z0 - z are rounded once (a shift of the point
+    by a relative U_ROUND of its offset, whose effect on J is within the few-ulp terms)."""
     A = dr * dr + dz * dz
     u = r0 - rho
     w = z0 - z
     # vers = 1 - cos phi' = 2 sin^2(phi'/2), given exactly: near phi' = 0 nothing below cancels
-    B = 2.0 * (dr * (u + rho * vers) + w * dz)
-    C = u * u + 2.0 * r0 * rho * vers + w * w
+    t1 = u + rho * vers
+    hB = dr * t1 + w * dz  # B / 2: Q(s) = A s^2 + B s + C
     sa = math.sqrt(A)
-    s_star = -B / (2.0 * A)
+    a0 = hB / sa
+    a1 = a0 + sa
     # squared distance from the point to the generator's line, |(x'(0) - x) x t|^2 / A by components
     k = r0 * dz - w * dr
     m = w * dr - u * dz + k * vers
-    h2 = (vers * (2.0 - vers) * (k * k + rho * rho * dr * dr) + m * m) / A
+    X = vers * (2.0 - vers) * (k * k + rho * rho * dr * dr) + m * m
+    h2 = X / A
+    # |x'(0) - x|^2 and |x'(1) - x|^2 by components (not from A, B), so they keep their digits near the ends
+    u1 = u + dr
+    w1 = w + dz
+    C = u * u + 2.0 * r0 * rho * vers + w * w
     floor = 1e-300 + 1e-28 * C
     if h2 < floor:
         h2 = floor
-    # |x'(1) - x|^2 and the projections of x'(0) - x and x'(1) - x on the generator, each by its own
-    # components (not as A + B + C or from s*), so that they keep their digits near the generator's ends
-    u1 = u + dr
-    w1 = w + dz
     q1 = u1 * u1 + 2.0 * (r0 + dr) * rho * vers + w1 * w1
     P0 = math.sqrt(C)
     P1 = math.sqrt(q1)
-    a0 = 0.5 * B / sa
-    a1 = (dr * (u1 + rho * vers) + w1 * dz) / sa
-    if a0 >= 0.0:
-        ratio = (P1 + a1) / (P0 + a0)
-    elif a1 >= 0.0:
-        ratio = (P1 + a1) * (P0 - a0) / h2
+    S = P0 + P1
+    ApB = A + 2.0 * hB  # = q1 - C
+    dP = ApB / S  # P1 - P0
+    U = U_ROUND
+    if bound:
+        Bm = abs(dr) * (abs(u) + rho * vers) + abs(w * dz)
+        ehB = 8.0 * U * Bm
+        ea_t = ehB / sa  # the error of B / 2, a shift of a0 and a1 together
+        ea_d = 3.0 * U * abs(a0)  # the division's (and sqrt A's) rounding, in a0 and a1 only
+        e1i = U * (2.0 * sa + abs(a1))  # a1's own: sqrt A and the sum
+        eApB = 2.0 * U * A + 2.0 * ehB + U * abs(ApB)
+        edP = eApB / S + 8.0 * U * abs(dP)  # P0, P1 within 6 ulps each (C, q1 sums of 3 positive terms)
+        kmag = abs(r0 * dz) + abs(w * dr)
+        mmag = abs(w * dr) + abs(u * dz) + abs(k) * vers
+        eX = 8.0 * U * X + vers * (2.0 - vers) * 4.0 * U * abs(k) * kmag + 2.0 * abs(m) * U * (7.0 * mmag + 2.0 * vers * kmag)
+        eh2 = eX / A + 3.0 * U * h2
+    eJ = 0.0
+    if a0 >= 0.0 or a1 < 0.0:
+        # the end nearer the foot: s = 0 (n = a0 >= 0) or s = 1 (n = -a1 > 0), far end the other
+        if a0 >= 0.0:
+            n = a0
+            Pn = P0
+            num = sa + dP
+        else:
+            n = -a1
+            Pn = P1
+            num = sa - dP
+        den = Pn + n
+        d = num / den
+        L = math.log1p(d)
+        gap = _log1p_gap(d)
+        Df = den + num
+        t2 = h2 * d * d / (2.0 * Df)
+        K = n * gap + t2
+        i0 = L / sa
+        i1 = K / A
+        if a0 >= 0.0:
+            rn = r0
+            J = r0 * i0 + dr * i1
+        else:
+            rn = r0 + dr
+            J = rn * i0 - dr * i1
+        if bound:
+            en = ea_t + ea_d + (0.0 if a0 >= 0.0 else e1i)
+            enum = 2.0 * U * sa + edP + U * num
+            eden = 6.0 * U * Pn + en + U * den
+            ed = d * (enum / num + eden / den + U)
+            eL = ed / (1.0 + d) + LIB_ULPS * U * L
+            ei0 = eL / sa + 3.0 * U * i0
+            egap = ed * d / (1.0 + d) + (6.0 * U * gap if d < 0.5 else U * (d + (LIB_ULPS + 1.0) * L + gap))
+            eDf = eden + enum + U * Df
+            eK = en * gap + n * egap + t2 * (eh2 / h2 + 2.0 * ed / d + eDf / Df + 4.0 * U) + 2.0 * U * K
+            ei1 = eK / A + 3.0 * U * i1
+            eJ = rn * ei0 + abs(dr) * ei1 + 3.0 * U * (rn * i0 + abs(dr) * i1)
     else:
-        ratio = (P0 - a0) / (P1 - a1)
-    i0 = math.log(ratio) / sa
-    i1 = (P1 - P0) / A + s_star * i0
-    return r0 * i0 + dr * i1
+        h = math.sqrt(h2)
+        as1 = math.asinh(a1 / h)
+        as0 = math.asinh(-a0 / h)
+        L = as1 + as0
+        K = dP - a0 * L
+        i0 = L / sa
+        i1 = K / A
+        J = r0 * i0 + dr * i1
+        if bound:
+            eh = eh2 / (2.0 * h) + U * h
+            dinv = abs(dP) / (P0 * P1)  # |1/P1 - 1/P0|: dL/da0 along the generator
+            eL_i = e1i / P1 + eh * (a1 / P1 - a0 / P0) / h + (LIB_ULPS + 1.0) * U * L + U * L
+            ei0 = ((ea_t + ea_d) * dinv + eL_i) / sa + 3.0 * U * i0
+            eK = (ea_t * (abs(sa / P1 - L) + 2.0 * abs(dP) / S) + ea_d * (L + abs(a0) * dinv)
+                  + (2.0 * U * A + U * abs(ApB)) / S + 8.0 * U * abs(dP) + abs(a0) * eL_i
+                  + 2.0 * U * (abs(dP) + abs(a0) * L))
+            ei1 = eK / A + 3.0 * U * abs(i1)
+            eJ = r0 * ei0 + abs(dr) * ei1 + 3.0 * U * (r0 * i0 + abs(dr) * abs(i1))
+    return J, eJ
 
 
 @njit(cache=True, inline="always")
@@ -90,30 +195,45 @@ def _segment_distance(r0, z0, r1, z1, rho, z):
 
 
 @njit(cache=True, inline="always")
-def _panel_sum(r0, z0, dr, dz, rho, z, a, L, x, w):
+def _panel_sum(r0, z0, dr, dz, rho, z, a, L, x, w, bound):
     """One azimuth panel [a, a + L] by the Gauss rule (x, w) on [0, 1]: the panel's shares of IU,
-    IG_rho and IG_z, and the sum of |J| (for the rounding estimate)."""
+    IG_rho and IG_z, and (when `bound`) first-order bounds of their rounding errors: each node's J
+    error and its coefficient's times the other factor, the products', and U_ROUND times every
+    partial sum (the running sum's own rounding)."""
     su = 0.0
     sr = 0.0
     sz = 0.0
-    mag = 0.0
+    eu = 0.0
+    er = 0.0
+    ez = 0.0
+    U = U_ROUND
     for i in range(x.shape[0]):
         ph = a + L * x[i]
         sh = math.sin(0.5 * ph)
         vers = 2.0 * sh * sh
         c = 1.0 - vers
-        J = _generator_integral(r0, z0, dr, dz, rho, z, vers) * w[i] * L
-        su += (dr * (z0 - z) - dz * (r0 - rho + rho * vers)) * J
-        sr += -dz * c * J
+        Jg, eJg = _generator_integral(r0, z0, dr, dz, rho, z, vers, bound)
+        wl = w[i] * L
+        J = Jg * wl
+        cu = dr * (z0 - z) - dz * (r0 - rho + rho * vers)
+        tu = cu * J
+        tr = -dz * c * J
+        su += tu
+        sr += tr
         sz += dr * J
-        mag += abs(J)
-    return su, sr, sz, mag
+        if bound:
+            eJ = eJg * wl + 3.0 * U * abs(J)
+            ecu = 4.0 * U * abs(dr * (z0 - z)) + (4.0 + LIB_ULPS) * U * abs(dz) * (abs(r0 - rho) + 3.0 * rho * vers)
+            eu += abs(cu) * eJ + ecu * abs(J) + U * (abs(tu) + abs(su))
+            er += abs(dz * c) * eJ + (3.0 + 2.0 * LIB_ULPS) * U * abs(tr) + U * abs(sr)
+            ez += abs(dr) * eJ + U * (abs(dr * J) + abs(sz))
+    return su, sr, sz, eu, er, ez
 
 
 @njit(cache=True, inline="always")
 def _band_at_point(p, rho, z, xh, wh, xl, wl):
-    """(IU, IG_rho, IG_z), their signed refinement differences (high minus low rule) and the sum of
-    magnitudes, for one band at a point (rho, 0, z) of its frame.
+    """(IU, IG_rho, IG_z), their signed refinement differences (high minus low rule) and first-order
+    bounds of the high rule's rounding errors, for one band at a point (rho, 0, z) of its frame.
     IU = integral of ((x'-x).N')/R, IG = integral of N'/R (components along e_rho and the axis)."""
     r0 = p[12]
     z0 = p[13]
@@ -136,7 +256,10 @@ def _band_at_point(p, rho, z, xh, wh, xl, wl):
     eu = 0.0
     egr = 0.0
     egz = 0.0
-    mag = 0.0
+    ru = 0.0
+    rgr = 0.0
+    rgz = 0.0
+    U = U_ROUND
     # panels [0, pi q^-m], then [pi q^-k, pi q^-(k-1)] for k = m .. 1 (q = GRADING)
     for k in range(m + 1):
         if k == 0:
@@ -146,24 +269,30 @@ def _band_at_point(p, rho, z, xh, wh, xl, wl):
             a = math.pi * GRADING ** (-(m - k + 1))
             b = GRADING * a
         L = b - a
-        hu, hr, hz, m_abs = _panel_sum(r0, z0, dr, dz, rho, z, a, L, xh, wh)
-        lu, lr, lz, _ = _panel_sum(r0, z0, dr, dz, rho, z, a, L, xl, wl)
-        mag += m_abs
+        hu, hr, hz, bu, br, bz = _panel_sum(r0, z0, dr, dz, rho, z, a, L, xh, wh, True)
+        lu, lr, lz, _, _, _ = _panel_sum(r0, z0, dr, dz, rho, z, a, L, xl, wl, False)
         iu += hu
         igr += hr
         igz += hz
+        ru += bu + U * abs(iu)
+        rgr += br + U * abs(igr)
+        rgz += bz + U * abs(igz)
         eu += hu - lu
         egr += hr - lr
         egz += hz - lz
     f = 2.0 * sign  # the integral over [-pi, pi] is twice that over [0, pi]
-    return f * iu, f * igr, f * igz, f * eu, f * egr, f * egz, mag
+    return f * iu, f * igr, f * igz, f * eu, f * egr, f * egz, 2.0 * ru, 2.0 * rgr, 2.0 * rgz
 
 
 @njit(cache=True, parallel=True)
 def band_body_field(points, kinds, params, xh, wh, xl, wl):
     """Unit-density, unit-G integrals IU (N,), IG (N, 3) over all BAND patches of one body (rows of
-    `params` that share the body's frame); DU, DG the same minus their low-order values (signed), and
-    RU (N,) a rounding estimate (a few hundred ulps of the sum of magnitudes, in IU's units)."""
+    `params` that share the body's frame); DU, DG the same minus their low-order values (signed); RU
+    (N,) and RG (N,) first-order bounds of the rounding errors of IU and of IG (2-norm), in their units:
+    each band's (`_band_at_point`), the turn of IG into the world axes and U_ROUND times each partial
+    sum over the bands (where the bands' shares cancel, e.g. the two end discs far away). The point's
+    frame coordinates (rho, z) are taken as the point (their rounding moves it by a relative U_ROUND of
+    its offset from the body's origin)."""
     n = points.shape[0]
     IU = np.zeros(n)
     IG = np.zeros((n, 3))
@@ -171,6 +300,7 @@ def band_body_field(points, kinds, params, xh, wh, xl, wl):
     DG = np.zeros((n, 3))
     RU = np.zeros(n)
     RG = np.zeros(n)
+    U = U_ROUND
     for q in prange(n):
         for k in range(kinds.shape[0]):
             if kinds[k] != BAND:
@@ -192,7 +322,7 @@ def band_body_field(points, kinds, params, xh, wh, xl, wl):
                 ex = p[3]
                 ey = p[4]
                 ez = p[5]
-            iu, igr, igz, du, dgr, dgz, mag = _band_at_point(p, rho, z, xh, wh, xl, wl)
+            iu, igr, igz, du, dgr, dgz, ru, rgr, rgz = _band_at_point(p, rho, z, xh, wh, xl, wl)
             IU[q] += iu
             IG[q, 0] += igr * ex + igz * p[9]
             IG[q, 1] += igr * ey + igz * p[10]
@@ -201,9 +331,10 @@ def band_body_field(points, kinds, params, xh, wh, xl, wl):
             DG[q, 0] += dgr * ex + dgz * p[9]
             DG[q, 1] += dgr * ey + dgz * p[10]
             DG[q, 2] += dgr * ez + dgz * p[11]
-            ext = abs(p[12]) + abs(p[14]) + abs(p[13]) + abs(p[15]) + rho + abs(z)
-            RU[q] += 64 * 2.220446049250313e-16 * mag * ext * ext
-            RG[q] += 64 * 2.220446049250313e-16 * mag * ext
+            RU[q] += ru + U * abs(IU[q])
+            # e_rho and the axis are unit vectors within a few ulps: their products within 6 ulps each
+            RG[q] += (rgr + rgz + 6.0 * U * (abs(igr) + abs(igz))
+                      + U * (abs(IG[q, 0]) + abs(IG[q, 1]) + abs(IG[q, 2])))
     return IU, IG, DU, DG, RU, RG
 
 
