@@ -63,12 +63,14 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
     eJ a first-order bound of J's rounding error when `bound` (else 0).
 
     Along the generator |x' - x| = sqrt(a^2 + h^2), a = a0 + sqrt(A) s the projection on the generator
-    (a0 = B / (2 sqrt A) at s = 0, a1 = a0 + sqrt A at s = 1), h the distance from the point to the line.
+    (a0 = B / (2 sqrt A) at s = 0, a1 = a0 + sqrt A at s = 1), h the distance
+    from the point to the line.
     Then sqrt(A) i0 = L = integral of da / sqrt(a^2 + h^2) and A i1 = K = integral of (a - a0) da /
     sqrt(a^2 + h^2), J = r0 i0 + dr i1. Three branches, none of which cancels near the generator or far:
     - a0 >= 0 (the foot of the perpendicular before s = 0): with D = sqrt(a^2 + h^2) + a,
       L = log1p(d), d = D1/D0 - 1 = (sqrt A + P1 - P0) / (P0 + a0), P1 - P0 = (A + B)/(P0 + P1) (>= 0),
-      and K = a0 (d - log1p d) + h^2 d^2 / (2 D1): both terms positive (d - log1p d by `_log1p_gap`);
+      and K = a0 (d - log1p d) + h^2 d^2 / (2 D1): both terms positive (d - log1p d by `_log1p_gap`,
+      h^2 = (P0 - a0)(P0 + a0), good to a few ulps of P0 / h where h << P0 makes its term (h/P0)^2 of K);
     - a1 < 0 (foot past s = 1): the same about the s = 1 end (b = -a), J = r1 i0 - dr i1' with
       i1' = integral of (1 - s)/|x' - x|;
     - otherwise (foot on the generator): L = asinh(a1/h) + asinh(-a0/h), K = (P1 - P0) - a0 L, where
@@ -76,7 +78,8 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
     The rounding bound follows each operation (U_ROUND per operation times the magnitude of its operands,
     LIB_ULPS for log1p, asinh and sin) to first order, with the conditioning of each step; the error of
     B (the projection a0) is carried as a shift of a0 and a1 together, whose effect on L and K is their
-    derivative along the generator (1/P1 - 1/P0 and sqrt(A)/P1 - L), small far away. r0, z0, dr, dz,
+    derivative along the generator (1/P1 - 1/P0 and sqrt(A)/P1 - L), small far away (a1 is formed as
+    a0 + sqrt A there, by its own components near the s = 1 end). r0, z0, dr, dz,
     rho, z are taken as given; the differences r0 - rho, z0 - z are rounded once (a shift of the point
     by a relative U_ROUND of its offset, whose effect on J is within the few-ulp terms)."""
     A = dr * dr + dz * dz
@@ -87,22 +90,22 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
     hB = dr * t1 + w * dz  # B / 2: Q(s) = A s^2 + B s + C
     sa = math.sqrt(A)
     a0 = hB / sa
-    a1 = a0 + sa
-    # squared distance from the point to the generator's line, |(x'(0) - x) x t|^2 / A by components
-    k = r0 * dz - w * dr
-    m = w * dr - u * dz + k * vers
-    X = vers * (2.0 - vers) * (k * k + rho * rho * dr * dr) + m * m
-    h2 = X / A
     # |x'(0) - x|^2 and |x'(1) - x|^2 by components (not from A, B), so they keep their digits near the ends
     u1 = u + dr
     w1 = w + dz
     C = u * u + 2.0 * r0 * rho * vers + w * w
-    floor = 1e-300 + 1e-28 * C
-    if h2 < floor:
-        h2 = floor
     q1 = u1 * u1 + 2.0 * (r0 + dr) * rho * vers + w1 * w1
     P0 = math.sqrt(C)
     P1 = math.sqrt(q1)
+    # a1 = a0 + sqrt A exactly; formed so where the point is farther from the s = 1 end than the
+    # generator is long (an error of B then shifts a0 and a1 alike, which far away hardly changes L or
+    # K), and by its own components nearer (where a0 + sqrt A would cancel)
+    tied = P1 >= sa
+    hB1 = dr * (u1 + rho * vers) + w1 * dz
+    if tied:
+        a1 = a0 + sa
+    else:
+        a1 = hB1 / sa
     S = P0 + P1
     ApB = A + 2.0 * hB  # = q1 - C
     dP = ApB / S  # P1 - P0
@@ -112,13 +115,12 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
         ehB = 8.0 * U * Bm
         ea_t = ehB / sa  # the error of B / 2, a shift of a0 and a1 together
         ea_d = 3.0 * U * abs(a0)  # the division's (and sqrt A's) rounding, in a0 and a1 only
-        e1i = U * (2.0 * sa + abs(a1))  # a1's own: sqrt A and the sum
+        if tied:
+            e1i = U * (2.0 * sa + abs(a1))  # a1's own: sqrt A and the sum
+        else:
+            e1i = 8.0 * U * (abs(dr) * (abs(u1) + rho * vers) + abs(w1 * dz)) / sa + 3.0 * U * abs(a1)
         eApB = 2.0 * U * A + 2.0 * ehB + U * abs(ApB)
         edP = eApB / S + 8.0 * U * abs(dP)  # P0, P1 within 6 ulps each (C, q1 sums of 3 positive terms)
-        kmag = abs(r0 * dz) + abs(w * dr)
-        mmag = abs(w * dr) + abs(u * dz) + abs(k) * vers
-        eX = 8.0 * U * X + vers * (2.0 - vers) * 4.0 * U * abs(k) * kmag + 2.0 * abs(m) * U * (7.0 * mmag + 2.0 * vers * kmag)
-        eh2 = eX / A + 3.0 * U * h2
     eJ = 0.0
     if a0 >= 0.0 or a1 < 0.0:
         # the end nearer the foot: s = 0 (n = a0 >= 0) or s = 1 (n = -a1 > 0), far end the other
@@ -135,7 +137,12 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
         L = math.log1p(d)
         gap = _log1p_gap(d)
         Df = den + num
-        t2 = h2 * d * d / (2.0 * Df)
+        # h^2 d^2 / (2 D1) with h^2 = (Pn - n)(Pn + n) from the near end's own digits (where h << n the
+        # difference loses digits but the term is then (h/n)^2 of K)
+        hn = Pn - n
+        if hn < 0.0:
+            hn = 0.0
+        t2 = hn * num * d / (2.0 * Df)
         K = n * gap + t2
         i0 = L / sa
         i1 = K / A
@@ -146,7 +153,12 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
             rn = r0 + dr
             J = rn * i0 - dr * i1
         if bound:
-            en = ea_t + ea_d + (0.0 if a0 >= 0.0 else e1i)
+            if a0 >= 0.0:
+                en = ea_t + ea_d
+            elif tied:
+                en = ea_t + ea_d + e1i
+            else:
+                en = e1i
             enum = 2.0 * U * sa + edP + U * num
             eden = 6.0 * U * Pn + en + U * den
             ed = d * (enum / num + eden / den + U)
@@ -154,10 +166,20 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
             ei0 = eL / sa + 3.0 * U * i0
             egap = ed * d / (1.0 + d) + (6.0 * U * gap if d < 0.5 else U * (d + (LIB_ULPS + 1.0) * L + gap))
             eDf = eden + enum + U * Df
-            eK = en * gap + n * egap + t2 * (eh2 / h2 + 2.0 * ed / d + eDf / Df + 4.0 * U) + 2.0 * U * K
+            ehn = 6.0 * U * Pn + en + U * hn
+            et2 = ehn * num * d / (2.0 * Df) + t2 * (enum / num + ed / d + eDf / Df + 4.0 * U)
+            eK = en * gap + n * egap + et2 + 2.0 * U * K
             ei1 = eK / A + 3.0 * U * i1
             eJ = rn * ei0 + abs(dr) * ei1 + 3.0 * U * (rn * i0 + abs(dr) * i1)
     else:
+        # squared distance from the point to the generator's line, |(x'(0) - x) x t|^2 / A by components
+        k = r0 * dz - w * dr
+        m = w * dr - u * dz + k * vers
+        X = vers * (2.0 - vers) * (k * k + rho * rho * dr * dr) + m * m
+        h2 = X / A
+        floor = 1e-300 + 1e-28 * C
+        if h2 < floor:
+            h2 = floor
         h = math.sqrt(h2)
         as1 = math.asinh(a1 / h)
         as0 = math.asinh(-a0 / h)
@@ -167,13 +189,22 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
         i1 = K / A
         J = r0 * i0 + dr * i1
         if bound:
-            eh = eh2 / (2.0 * h) + U * h
-            dinv = abs(dP) / (P0 * P1)  # |1/P1 - 1/P0|: dL/da0 along the generator
+            kmag = abs(r0 * dz) + abs(w * dr)
+            mmag = abs(w * dr) + abs(u * dz) + abs(k) * vers
+            eX = (8.0 * U * X + vers * (2.0 - vers) * 4.0 * U * abs(k) * kmag
+                  + 2.0 * abs(m) * U * (7.0 * mmag + 2.0 * vers * kmag))
+            eh = (eX / A + 3.0 * U * h2) / (2.0 * h) + U * h
             eL_i = e1i / P1 + eh * (a1 / P1 - a0 / P0) / h + (LIB_ULPS + 1.0) * U * L + U * L
-            ei0 = ((ea_t + ea_d) * dinv + eL_i) / sa + 3.0 * U * i0
-            eK = (ea_t * (abs(sa / P1 - L) + 2.0 * abs(dP) / S) + ea_d * (L + abs(a0) * dinv)
-                  + (2.0 * U * A + U * abs(ApB)) / S + 8.0 * U * abs(dP) + abs(a0) * eL_i
-                  + 2.0 * U * (abs(dP) + abs(a0) * L))
+            if tied:
+                dinv = abs(dP) / (P0 * P1)  # |1/P1 - 1/P0|: dL/da0 along the generator
+                ei0 = ((ea_t + ea_d) * dinv + eL_i) / sa + 3.0 * U * i0
+                eK = (ea_t * (abs(sa / P1 - L) + 2.0 * abs(dP) / S) + ea_d * (L + abs(a0) * dinv)
+                      + (2.0 * U * A + U * abs(ApB)) / S + 8.0 * U * abs(dP) + abs(a0) * eL_i
+                      + 2.0 * U * (abs(dP) + abs(a0) * L))
+            else:
+                eL = (ea_t + ea_d) / P0 + eL_i
+                ei0 = eL / sa + 3.0 * U * i0
+                eK = edP + abs(a0) * eL + (ea_t + ea_d) * L + 2.0 * U * (abs(dP) + abs(a0) * L)
             ei1 = eK / A + 3.0 * U * abs(i1)
             eJ = r0 * ei0 + abs(dr) * ei1 + 3.0 * U * (r0 * i0 + abs(dr) * abs(i1))
     return J, eJ
