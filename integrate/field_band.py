@@ -112,15 +112,15 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
     U = U_ROUND
     if bound:
         Bm = abs(dr) * (abs(u) + rho * vers) + abs(w * dz)
-        ehB = 8.0 * U * Bm
+        ehB = 4.0 * U * Bm  # B/2's roundings, with vers as given (its error is the node's, see _panel_sum)
         ea_t = ehB / sa  # the error of B / 2, a shift of a0 and a1 together
         ea_d = 3.0 * U * abs(a0)  # the division's (and sqrt A's) rounding, in a0 and a1 only
         if tied:
             e1i = U * (2.0 * sa + abs(a1))  # a1's own: sqrt A and the sum
         else:
-            e1i = 8.0 * U * (abs(dr) * (abs(u1) + rho * vers) + abs(w1 * dz)) / sa + 3.0 * U * abs(a1)
+            e1i = 5.0 * U * (abs(dr) * (abs(u1) + rho * vers) + abs(w1 * dz)) / sa + 3.0 * U * abs(a1)
         eApB = 2.0 * U * A + 2.0 * ehB + U * abs(ApB)
-        edP = eApB / S + 8.0 * U * abs(dP)  # P0, P1 within 6 ulps each (C, q1 sums of 3 positive terms)
+        edP = eApB / S + 6.0 * U * abs(dP)  # P0, P1 within 4 U each (C, q1 sums of 3 positive terms)
     eJ = 0.0
     if a0 >= 0.0 or a1 < 0.0:
         # the end nearer the foot: s = 0 (n = a0 >= 0) or s = 1 (n = -a1 > 0), far end the other
@@ -160,13 +160,13 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
             else:
                 en = e1i
             enum = 2.0 * U * sa + edP + U * num
-            eden = 6.0 * U * Pn + en + U * den
+            eden = 4.0 * U * Pn + en + U * den
             ed = d * (enum / num + eden / den + U)
             eL = ed / (1.0 + d) + LIB_ULPS * U * L
             ei0 = eL / sa + 3.0 * U * i0
             egap = ed * d / (1.0 + d) + (6.0 * U * gap if d < 0.5 else U * (d + (LIB_ULPS + 1.0) * L + gap))
             eDf = eden + enum + U * Df
-            ehn = 6.0 * U * Pn + en + U * hn
+            ehn = 4.0 * U * Pn + en + U * hn
             et2 = ehn * num * d / (2.0 * Df) + t2 * (enum / num + ed / d + eDf / Df + 4.0 * U)
             eK = en * gap + n * egap + et2 + 2.0 * U * K
             ei1 = eK / A + 3.0 * U * i1
@@ -199,7 +199,7 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
                 dinv = abs(dP) / (P0 * P1)  # |1/P1 - 1/P0|: dL/da0 along the generator
                 ei0 = ((ea_t + ea_d) * dinv + eL_i) / sa + 3.0 * U * i0
                 eK = (ea_t * (abs(sa / P1 - L) + 2.0 * abs(dP) / S) + ea_d * (L + abs(a0) * dinv)
-                      + (2.0 * U * A + U * abs(ApB)) / S + 8.0 * U * abs(dP) + abs(a0) * eL_i
+                      + (2.0 * U * A + U * abs(ApB)) / S + 6.0 * U * abs(dP) + abs(a0) * eL_i
                       + 2.0 * U * (abs(dP) + abs(a0) * L))
             else:
                 eL = (ea_t + ea_d) / P0 + eL_i
@@ -253,10 +253,13 @@ def _panel_sum(r0, z0, dr, dz, rho, z, a, L, x, w, bound):
         sr += tr
         sz += dr * J
         if bound:
-            eJ = eJg * wl + 3.0 * U * abs(J)
-            ecu = 4.0 * U * abs(dr * (z0 - z)) + (4.0 + LIB_ULPS) * U * abs(dz) * (abs(r0 - rho) + 3.0 * rho * vers)
+            # vers is within 2 LIB_ULPS + 1 of U (sin, its square): a shift of the node that changes
+            # |x' - x|^2 by as much relative, J by half that
+            ev = (2.0 * LIB_ULPS + 1.0) * U * vers
+            eJ = eJg * wl + (3.0 + LIB_ULPS + 1.0) * U * abs(J)
+            ecu = 2.0 * U * abs(dr * (z0 - z)) + abs(dz) * (3.0 * U * abs(r0 - rho) + rho * ev + 3.0 * U * rho * vers) + U * abs(cu)
             eu += abs(cu) * eJ + ecu * abs(J) + U * (abs(tu) + abs(su))
-            er += abs(dz * c) * eJ + (3.0 + 2.0 * LIB_ULPS) * U * abs(tr) + U * abs(sr)
+            er += abs(dz * c) * eJ + abs(dz * J) * (U * abs(c) + ev + U) + 2.0 * U * abs(tr) + U * abs(sr)
             ez += abs(dr) * eJ + U * (abs(dr * J) + abs(sz))
     return su, sr, sz, eu, er, ez
 
@@ -315,13 +318,41 @@ def _band_at_point(p, rho, z, xh, wh, xl, wl):
     return f * iu, f * igr, f * igz, f * eu, f * egr, f * egz, 2.0 * ru, 2.0 * rgr, 2.0 * rgz
 
 
+@njit(cache=True, inline="always")
+def _same_frame(p, f):
+    """Whether patch row p has the frame (origin, axes: entries 0..11) of row f."""
+    for i in range(12):
+        if p[i] != f[i]:
+            return False
+    return True
+
+
+@njit(cache=True, inline="always")
+def _point_in_frame(point, p):
+    """(rho, z, e_rho) of a world point in the frame of patch row p (e_rho: the frame's first axis on
+    the axis)."""
+    dx = point[0] - p[0]
+    dy = point[1] - p[1]
+    dz = point[2] - p[2]
+    z = dx * p[9] + dy * p[10] + dz * p[11]
+    vx = dx - z * p[9]
+    vy = dy - z * p[10]
+    vz = dz - z * p[11]
+    rho = math.sqrt(vx * vx + vy * vy + vz * vz)
+    if rho > 0.0:
+        return rho, z, vx / rho, vy / rho, vz / rho
+    return rho, z, p[3], p[4], p[5]
+
+
 @njit(cache=True, parallel=True)
 def band_body_field(points, kinds, params, xh, wh, xl, wl):
     """Unit-density, unit-G integrals IU (N,), IG (N, 3) over all BAND patches of one body (rows of
     `params` that share the body's frame); DU, DG the same minus their low-order values (signed); RU
     (N,) and RG (N,) first-order bounds of the rounding errors of IU and of IG (2-norm), in their units:
-    each band's (`_band_at_point`), the turn of IG into the world axes and U_ROUND times each partial
-    sum over the bands (where the bands' shares cancel, e.g. the two end discs far away). The point's
+    each band's (`_band_at_point`), U_ROUND times each partial sum over the bands (where the bands'
+    shares cancel, e.g. the two end discs far away), and the turn of the frame's sum into the world axes
+    (6 ulps of it: e_rho and the axis are unit vectors within a few ulps). The bands are summed in their
+    frame before the turn, so the turn's rounding is of the sum, not of each band's share. The point's
     frame coordinates (rho, z) are taken as the point (their rounding moves it by a relative U_ROUND of
     its offset from the body's origin)."""
     n = points.shape[0]
@@ -333,39 +364,59 @@ def band_body_field(points, kinds, params, xh, wh, xl, wl):
     RG = np.zeros(n)
     U = U_ROUND
     for q in prange(n):
-        for k in range(kinds.shape[0]):
-            if kinds[k] != BAND:
+        f = -1  # the row whose frame the running sums are in
+        su = 0.0
+        sgr = 0.0
+        sgz = 0.0
+        sdu = 0.0
+        sdgr = 0.0
+        sdgz = 0.0
+        ru = 0.0
+        rg = 0.0
+        rho = 0.0
+        z = 0.0
+        ex = 0.0
+        ey = 0.0
+        ez = 0.0
+        for k in range(kinds.shape[0] + 1):
+            if k < kinds.shape[0] and kinds[k] != BAND:
                 continue
+            if f >= 0 and (k == kinds.shape[0] or not _same_frame(params[k], params[f])):
+                pf = params[f]
+                IU[q] += su
+                IG[q, 0] += sgr * ex + sgz * pf[9]
+                IG[q, 1] += sgr * ey + sgz * pf[10]
+                IG[q, 2] += sgr * ez + sgz * pf[11]
+                DU[q] += sdu
+                DG[q, 0] += sdgr * ex + sdgz * pf[9]
+                DG[q, 1] += sdgr * ey + sdgz * pf[10]
+                DG[q, 2] += sdgr * ez + sdgz * pf[11]
+                RU[q] += ru + U * abs(IU[q])
+                RG[q] += rg + 6.0 * U * (abs(sgr) + abs(sgz)) + U * (abs(IG[q, 0]) + abs(IG[q, 1]) + abs(IG[q, 2]))
+                f = -1
+            if k == kinds.shape[0]:
+                break
             p = params[k]
-            dx = points[q, 0] - p[0]
-            dy = points[q, 1] - p[1]
-            dz = points[q, 2] - p[2]
-            z = dx * p[9] + dy * p[10] + dz * p[11]
-            vx = dx - z * p[9]
-            vy = dy - z * p[10]
-            vz = dz - z * p[11]
-            rho = math.sqrt(vx * vx + vy * vy + vz * vz)
-            if rho > 0.0:
-                ex = vx / rho
-                ey = vy / rho
-                ez = vz / rho
-            else:
-                ex = p[3]
-                ey = p[4]
-                ez = p[5]
-            iu, igr, igz, du, dgr, dgz, ru, rgr, rgz = _band_at_point(p, rho, z, xh, wh, xl, wl)
-            IU[q] += iu
-            IG[q, 0] += igr * ex + igz * p[9]
-            IG[q, 1] += igr * ey + igz * p[10]
-            IG[q, 2] += igr * ez + igz * p[11]
-            DU[q] += du
-            DG[q, 0] += dgr * ex + dgz * p[9]
-            DG[q, 1] += dgr * ey + dgz * p[10]
-            DG[q, 2] += dgr * ez + dgz * p[11]
-            RU[q] += ru + U * abs(IU[q])
-            # e_rho and the axis are unit vectors within a few ulps: their products within 6 ulps each
-            RG[q] += (rgr + rgz + 6.0 * U * (abs(igr) + abs(igz))
-                      + U * (abs(IG[q, 0]) + abs(IG[q, 1]) + abs(IG[q, 2])))
+            if f < 0:
+                f = k
+                rho, z, ex, ey, ez = _point_in_frame(points[q], p)
+                su = 0.0
+                sgr = 0.0
+                sgz = 0.0
+                sdu = 0.0
+                sdgr = 0.0
+                sdgz = 0.0
+                ru = 0.0
+                rg = 0.0
+            iu, igr, igz, du, dgr, dgz, bu, bgr, bgz = _band_at_point(p, rho, z, xh, wh, xl, wl)
+            su += iu
+            sgr += igr
+            sgz += igz
+            sdu += du
+            sdgr += dgr
+            sdgz += dgz
+            ru += bu + U * abs(su)
+            rg += bgr + bgz + U * (abs(sgr) + abs(sgz))
     return IU, IG, DU, DG, RU, RG
 
 
