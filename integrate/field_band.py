@@ -159,18 +159,24 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
                 en = ea_t + ea_d + e1i
             else:
                 en = e1i
-            enum = 2.0 * U * sa + edP + U * num
-            eden = 4.0 * U * Pn + en + U * den
-            ed = d * (enum / num + eden / den + U)
-            eL = ed / (1.0 + d) + LIB_ULPS * U * L
-            ei0 = eL / sa + 3.0 * U * i0
-            egap = ed * d / (1.0 + d) + (6.0 * U * gap if d < 0.5 else U * (d + (LIB_ULPS + 1.0) * L + gap))
-            eDf = eden + enum + U * Df
-            ehn = 4.0 * U * Pn + en + U * hn
-            et2 = ehn * num * d / (2.0 * Df) + t2 * (enum / num + ed / d + eDf / Df + 4.0 * U)
-            eK = en * gap + n * egap + et2 + 2.0 * U * K
-            ei1 = eK / A + 3.0 * U * i1
-            eJ = rn * ei0 + abs(dr) * ei1 + 3.0 * U * (rn * i0 + abs(dr) * i1)
+            # J = (rn / sqrt A) L(num, den) +- (dr / A) K(num, den, hn, n): its first-order change with
+            # each primary error (num, Pn, n) and each rounding on the way, summed with its sign inside J
+            # (so that where rn i0 and dr i1 nearly cancel, their common error from d does too)
+            enum = 2.0 * U * sa + edP + 2.0 * U * num  # with the division num / den's rounding
+            q = d / (1.0 + d)
+            c2 = num * num / (2.0 * den * Df)  # dK/dhn
+            cL = rn / sa
+            cK = (dr if a0 >= 0.0 else -dr) / A
+            J_num = cL / ((1.0 + d) * den) + cK * (n * q / den + t2 * (2.0 / num - 1.0 / Df))
+            J_den = -cL * q / den + cK * (-n * q * d / den - t2 * (1.0 / den + 1.0 / Df))
+            J_hn = cK * c2
+            J_n = J_den - J_hn + cK * gap
+            own_gap = 6.0 * U * gap if d < 0.5 else U * (d + (LIB_ULPS + 1.0) * L + gap)
+            eJ = (abs(J_num) * enum + abs(J_den + J_hn) * 4.0 * U * Pn + abs(J_n) * en
+                  + abs(J_den) * U * den + abs(J_hn) * U * hn
+                  + cL * (LIB_ULPS + 3.0) * U * L
+                  + abs(cK) * (n * own_gap + U * n * gap + 5.0 * U * t2 + U * K + 3.0 * U * K)
+                  + 3.0 * U * (rn * i0 + abs(dr) * i1))
     else:
         # squared distance from the point to the generator's line, |(x'(0) - x) x t|^2 / A by components
         k = r0 * dz - w * dr
