@@ -9,7 +9,12 @@ both need only J(phi') = integral over s of r(s)/|x'-x| ds. What remains is one 
 azimuth phi' of the source, which is even about the point's own azimuth: it runs over [0, pi] on panels
 graded geometrically toward phi' = 0, where the point is nearest, with a Gauss rule on each panel. Each
 point's value is computed with N_HIGH and N_LOW points per panel; their signed difference is returned as
-the refinement error estimate.
+the refinement error estimate. The generator integral is formed so that nothing cancels near the band or
+far from it (`_generator_integral`), and beside the values comes a first-order bound of their rounding
+error built from the operations actually done (a few U_ROUND per operation times its operands, each
+carried through the steps that follow with its conditioning, and U_ROUND times every partial sum):
+for a 3 mm cylinder 10 to 100 sizes away it is 50 to 100 times the largest true error measured against
+30-digit mpmath (tests/test_field_band.py); a bound of 64 eps sum|J| ext^2 had been 1e-10 of the field.
 """
 
 from __future__ import annotations
@@ -449,8 +454,8 @@ def band_field(points, patchset, density, G, rtol: float | None = None):
     """Field of a uniform body bounded by BAND patches only (cylinder, tube, cone, frustum) at world
     points: (U J/kg, g m/s^2, dU, dg, rU, rg) with dU, dg the signed differences between a high and a
     low azimuth rule (a refinement error estimate that keeps its sign, so that integrals over a test
-    surface can estimate their own error with the cancellations they have) and rU, rg rounding
-    magnitudes. rtol: the relative accuracy wanted, which picks the rules (`rung_for`); None gives
+    surface can estimate their own error with the cancellations they have) and rU, rg bounds of the
+    rounding errors of U and of g (2-norm; `band_body_field`). rtol: the relative accuracy wanted, which picks the rules (`rung_for`); None gives
     N_HIGH and N_LOW."""
     if np.any(patchset.kinds != BAND):
         raise ValueError("band_field needs a body bounded by bands only")
