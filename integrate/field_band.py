@@ -116,8 +116,9 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
     dP = ApB / S  # P1 - P0
     U = U_ROUND
     if bound:
-        Bm = abs(dr) * (abs(u) + rho * vers) + abs(w * dz)
-        ehB = 4.0 * U * Bm  # B/2's roundings, with vers as given (its error is the node's, see _panel_sum)
+        # B/2's roundings (the product rho vers, u + rho vers, dr (..), w dz, the sum), with vers as given
+        # (its error is the node's, see _panel_sum)
+        ehB = U * (abs(dr) * (rho * vers + 2.0 * abs(t1)) + abs(w * dz) + abs(hB))
         ea_t = ehB / sa  # the error of B / 2, a shift of a0 and a1 together
         ea_d = 3.0 * U * abs(a0)  # the division's (and sqrt A's) rounding, in a0 and a1 only
         if tied:
@@ -237,14 +238,30 @@ def _segment_distance(r0, z0, r1, z1, rho, z):
 
 
 @njit(cache=True, inline="always")
+def _two_sum(s, x):
+    """(s + x rounded, its exact rounding error) by Knuth's TwoSum (no branch)."""
+    t = s + x
+    v = t - s
+    return t, (s - (t - v)) + (x - v)
+
+
+@njit(cache=True, inline="always")
 def _panel_sum(r0, z0, dr, dz, rho, z, a, L, x, w, bound):
     """One azimuth panel [a, a + L] by the Gauss rule (x, w) on [0, 1]: the panel's shares of IU,
     IG_rho and IG_z, and (when `bound`) first-order bounds of their rounding errors: each node's J
-    error and its coefficient's times the other factor, the products', and U_ROUND times every
-    partial sum (the running sum's own rounding)."""
+    error and its coefficient's times the other factor, and the products'. The node terms are summed
+    with their rounding errors carried (TwoSum, Ogita, Rump and Oishi's Sum2, SIAM J. Sci. Comput. 26,
+    2005; from memory), whose result is within U_ROUND |sum| + (n U_ROUND)^2 sum |terms| (their bound,
+    with a margin): the terms of the side's IU change sign round the azimuth."""
     su = 0.0
     sr = 0.0
     sz = 0.0
+    cu_ = 0.0
+    cr_ = 0.0
+    cz_ = 0.0
+    au = 0.0
+    ar = 0.0
+    az = 0.0
     eu = 0.0
     er = 0.0
     ez = 0.0
@@ -260,18 +277,33 @@ def _panel_sum(r0, z0, dr, dz, rho, z, a, L, x, w, bound):
         cu = dr * (z0 - z) - dz * (r0 - rho + rho * vers)
         tu = cu * J
         tr = -dz * c * J
-        su += tu
-        sr += tr
-        sz += dr * J
+        tz = dr * J
+        su, e = _two_sum(su, tu)
+        cu_ += e
+        sr, e = _two_sum(sr, tr)
+        cr_ += e
+        sz, e = _two_sum(sz, tz)
+        cz_ += e
         if bound:
             # vers is within 2 LIB_ULPS + 1 of U (sin, its square): a shift of the node that changes
             # |x' - x|^2 by as much relative, J by half that
             ev = (2.0 * LIB_ULPS + 1.0) * U * vers
             eJ = eJg * wl + (3.0 + LIB_ULPS + 1.0) * U * abs(J)
             ecu = 2.0 * U * abs(dr * (z0 - z)) + abs(dz) * (3.0 * U * abs(r0 - rho) + rho * ev + 3.0 * U * rho * vers) + U * abs(cu)
-            eu += abs(cu) * eJ + ecu * abs(J) + U * (abs(tu) + abs(su))
-            er += abs(dz * c) * eJ + abs(dz * J) * (U * abs(c) + ev + U) + 2.0 * U * abs(tr) + U * abs(sr)
-            ez += abs(dr) * eJ + U * (abs(dr * J) + abs(sz))
+            eu += abs(cu) * eJ + ecu * abs(J) + U * abs(tu)
+            er += abs(dz * c) * eJ + abs(dz * J) * (U * abs(c) + ev + U) + 2.0 * U * abs(tr)
+            ez += abs(dr) * eJ + U * abs(tz)
+            au += abs(tu)
+            ar += abs(tr)
+            az += abs(tz)
+    su += cu_
+    sr += cr_
+    sz += cz_
+    if bound:
+        g2 = 1.01 * (x.shape[0] * U) ** 2
+        eu += U * abs(su) + g2 * au
+        er += U * abs(sr) + g2 * ar
+        ez += U * abs(sz) + g2 * az
     return su, sr, sz, eu, er, ez
 
 
