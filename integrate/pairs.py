@@ -230,7 +230,10 @@ def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:
                           "shell theorem (source inside the test shell's cavity)", True)
     field = SourceField(source_body, G)
     c = test_body.com[None, :]
-    U, g, _, _ = field.field(c)
+    # the values alone where a closed form's bounds would be computed twice (rounding_bounds below
+    # bounds U, g and T together)
+    values = _values_function(field)
+    U, g = values(c) if values is not None else field.field(c)[:2]
     T = field.gradient(c)[0]
     if not np.all(np.isfinite(T)):
         raise InputError(None, f"body[{test_body.name}] / body[{source_body.name}]",
