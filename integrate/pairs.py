@@ -39,7 +39,9 @@ first, then the semi-analytic band field); the other is integrated over its surf
 class PairResult:
     """One pair's result for the test body (SI): force (N), torque about the pivot (N m), stiffness
     about the axis (N m / rad), energy (J); `errors` are absolute estimates of the same eight numbers
-    [Fx, Fy, Fz, tx, ty, tz, K, E]; `reached` is False when the tolerance could not be met."""
+    [Fx, Fy, Fz, tx, ty, tz, K, E]; `reached` is False when the tolerance could not be met;
+    `rounding` (8,) is the part of `errors` that refinement cannot reduce (rounding bounds), None when
+    not known."""
 
     test: str
     source: str
@@ -51,6 +53,7 @@ class PairResult:
     method: str
     reached: bool
     evaluations: int = 0
+    rounding: np.ndarray | None = None
 
     def torque_axis(self, axis) -> float:
         return float(np.dot(self.torque, axis))
@@ -117,9 +120,22 @@ def tolerance_scales(test_body, source_body, pivot) -> np.ndarray:
     return np.array([sF, sF, sF, sT, sT, sT, sT, mm / d])
 
 
-def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10, tol=None) -> PairResult:
+ORDERS = ((1e-6, 8), (0.0, 10))
+"""Gauss order of the surface cells by relative tolerance: the first (rtol floor, order) with
+rtol >= floor. Measured on the drums-like scene (tests/benchmarks/bench_goals.py): order 8 (rules 6
+and 4 beside it) is the cheapest from 1e-3 down to 1e-6, order 10 (rules 8 and 6) at 1e-7 and
+tighter; order 6 needs far more cells than it saves."""
+
+
+def order_for(rtol: float) -> int:
+    """Surface Gauss order for the relative tolerance `rtol` (see ORDERS)."""
+    return next(order for floor, order in ORDERS if rtol >= floor)
+
+
+def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=None, tol=None) -> PairResult:
     """The exact interaction of two non-overlapping uniform bodies (see the module docstring).
-    `tol` (8,), absolute tolerances on [F, torque, K, E], overrides rtol times the pair's point scale.
+    `tol` (8,), absolute tolerances on [F, torque, K, E], overrides rtol times the pair's point scale;
+    `order`, the surface cells' Gauss order, defaults to `order_for(rtol)`.
     Its kernels run on one thread while the machine's cores are busy (`threads`). A body with a
     density gradient goes to `linear_density.gradient_pair` (uniform parts here, plus the linear
     parts by volume quadrature); a tessellated CAD part to `tessellation.tessellated_pair`."""
@@ -136,6 +152,8 @@ def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10
 
 
 def _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol) -> PairResult:
+    if order is None:
+        order = order_for(rtol)
     pivot = np.asarray(pivot, float)
     axis = np.asarray(axis, float) / np.linalg.norm(axis)
     tk, sk = test_body.shape.kind, source_body.shape.kind
@@ -157,10 +175,11 @@ def _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol) 
     pair_rtol = float(np.min(np.asarray(tol, float) / (G * tolerance_scales(integ, src, pivot))))
     tol_u, tol_g = field_tolerances(patches, integ.density, pivot, axis, centroid, tol, order)
     res = integrate_surface(patches, integ.density, _field_function(field, tol_u, tol_g, pair_rtol), pivot, axis,
-                            centroid, tol, order=order, distance=field.distance)
+                            centroid, tol, order=order, distance=field.distance, values=_values_function(field))
     vals = res.values
     # rounding floor: a few hundred ulps of the magnitude of each result
-    errs = res.errors + 256 * EPS * np.abs(vals)
+    floor = 256 * EPS * np.abs(vals)
+    errs = res.errors + floor
     inner_ok = getattr(field, "last_ok", True)
     sign = -1.0 if swap else 1.0
     method = f"surface quadrature of {integ.shape.kind} '{integ.name}' in the {field.method} of {src.shape.kind} '{src.name}'"
@@ -168,7 +187,7 @@ def _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol) 
         test=test_body.name, source=source_body.name,
         force=sign * vals[0:3], torque=sign * vals[3:6], stiffness_axis=float(vals[6]),
         energy=float(vals[7]), errors=errs, method=method, reached=bool(res.reached and inner_ok),
-        evaluations=res.evaluations)
+        evaluations=res.evaluations, rounding=None if res.rounding is None else res.rounding + floor)
 
 
 def _field_function(field, tol_u, tol_g, rtol):
@@ -181,6 +200,28 @@ def _field_function(field, tol_u, tol_g, rtol):
     return lambda X: field.field_with_differences(X, tol_u, tol_g)
 
 
+def _values_function(field):
+    """points -> (U, g) of a box's or mesh's closed form without its rounding bounds (which cost several
+    times the values; integrate_surface needs them only at the kept rule's nodes); None for others."""
+    b = field.body
+    if field.kind == "box":
+        from truepull.integrate.field_prism import prism_field
+
+        half = 0.5 * np.asarray(b.shape.size, float)
+        kernel = lambda local: prism_field(local, half, b.density, field.G)  # noqa: E731
+    elif field.kind == "mesh":
+        from truepull.integrate.field_polyhedron import polyhedron_field
+
+        kernel = lambda local: polyhedron_field(local, field.poly(), b.density, field.G)  # noqa: E731
+    else:
+        return None
+
+    def values(points):
+        U, gl = kernel(field._local(np.ascontiguousarray(points, float)))
+        return U, field._world_field(gl)
+    return values
+
+
 def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:
     """Sphere/shell/point pairs: exact by Newton and the shell theorem."""
     if test_body.shape.kind == "shell" and _cavity_holds(test_body, source_body):
@@ -189,7 +230,10 @@ def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:
                           "shell theorem (source inside the test shell's cavity)", True)
     field = SourceField(source_body, G)
     c = test_body.com[None, :]
-    U, g, _, _ = field.field(c)
+    # the values alone where a closed form's bounds would be computed twice (rounding_bounds below
+    # bounds U, g and T together)
+    values = _values_function(field)
+    U, g = values(c) if values is not None else field.field(c)[:2]
     T = field.gradient(c)[0]
     if not np.all(np.isfinite(T)):
         raise InputError(None, f"body[{test_body.name}] / body[{source_body.name}]",
@@ -203,4 +247,6 @@ def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:
     how = ("Newton with the shell theorem (exact)" if source_body.shape.kind in POINTLIKE_KINDS else
            f"{field.method} of {source_body.shape.kind} '{source_body.name}' at the centre of "
            f"{test_body.shape.kind} '{test_body.name}' (mean-value property, exact)")
-    return PairResult(test_body.name, source_body.name, F, tau, float(K), float(E), errs, how, True)
+    # a closed form's errors are all rounding: no refinement can reduce them
+    return PairResult(test_body.name, source_body.name, F, tau, float(K), float(E), errs, how, True,
+                      rounding=errs)
