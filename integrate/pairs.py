@@ -241,7 +241,6 @@ def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:
                          f"'{source_body.name}', where the gradient of its field (and so the stiffness) "
                          "is infinite; move it off the edge (a point on a face is fine)")
     F, tau, K, E = point_response(test_body.mass, test_body.com, U[0], g[0], T, pivot, axis)
-    vals = np.concatenate([F, tau, [K, E]])
     eU, eg, eT = (x[0] for x in field.rounding_bounds(c, U, g, T[None]))
     errs = _point_response_errors(test_body.mass, test_body.com, pivot, axis, g[0], T, U[0], eU, eg, eT)
     how = ("Newton with the shell theorem (exact)" if source_body.shape.kind in POINTLIKE_KINDS else

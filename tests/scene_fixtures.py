@@ -343,3 +343,26 @@ def grid_scene(n: int, move: str = "turn = 0.5") -> str:
     parts.append('[[position]]\nname = "A"\ngroup = "attractor"\nturn = 0\n')
     parts.append(f'[[position]]\nname = "B"\ngroup = "attractor"\n{move}\n')
     return "\n".join(parts)
+
+
+# invented sizes: a gap of 0.2 mm (1% of the bob's length), the drum 13 mm higher
+CLOSE_PARALLEL_CYLINDERS = """
+[units]
+length = "mm"
+[[body]]
+name = "bob"
+group = "pendulum"
+shape = "cylinder"
+radius = 12
+length = 20
+density = 8000
+at = [50, 10, 0]
+[[body]]
+name = "drum"
+group = "attractor"
+shape = "cylinder"
+radius = 20
+length = 50
+density = 11340
+at = [69.32, 35.76, 13]
+"""

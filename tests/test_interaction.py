@@ -9,38 +9,18 @@ from __future__ import annotations
 
 import numpy as np
 from engine_references import parallel_cylinders
+from scene_fixtures import CLOSE_PARALLEL_CYLINDERS
 
 from truepull.geometry.scene import load_scene_text
 from truepull.integrate import pair_cache
 from truepull.integrate.interaction import compare_groups, interaction_totals
-
-TWO_CYLINDERS = """
-[units]
-length = "mm"
-[[body]]
-name = "bob"
-group = "pendulum"
-shape = "cylinder"
-radius = 12
-length = 20
-density = 8000
-at = [50, 10, 0]
-[[body]]
-name = "drum"
-group = "attractor"
-shape = "cylinder"
-radius = 20
-length = 50
-density = 11340
-at = [69.32, 35.76, 13]
-"""  # invented sizes: a gap of 0.2 mm (1% of the bob's length), the drum 13 mm higher
 
 
 def test_no_retry_where_rounding_bounds_fill_the_tolerance_and_the_error_still_bounds():
     # asked for 1e-13, the pairs' rounding bounds (~1e-12 of the torque) alone exceed the tolerance:
     # a tighter retry would cost and gain nothing, so there is one pass, the note says why, and the
     # stated error still bounds the true one
-    sc = load_scene_text(TWO_CYLINDERS, "two-cylinders")
+    sc = load_scene_text(CLOSE_PARALLEL_CYLINDERS, "two-cylinders")
     tb, sb = sc.group("pendulum"), sc.group("attractor")
     pivot, axis, G = sc.frame.pivot, sc.frame.axis, sc.G.value
     ref = parallel_cylinders(tb[0], sb[0], pivot, G=G)
