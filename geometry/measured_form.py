@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import csv
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -93,6 +93,13 @@ class FormFit:
         grad = (w * r * r) @ real_harmonics(self.degree, u)
         return float(w @ r**3 / 3.0), float(math.sqrt(max(grad @ self.covariance @ grad, 0.0)))
 
+    def polyhedron(self, coefficients=None, fine: bool = True) -> tuple[np.ndarray, np.ndarray]:
+        """(vertices (V, 3) m, faces (F, 3)) of the volume-matched body for `coefficients` (default the
+        fitted ones) at SUBDIVISIONS (else one fewer): the function that rebuilds the body from given
+        coefficients (as measured_cylinder.CylinderFit.polyhedron)."""
+        fit = self if coefficients is None else replace(self, coefficients=np.asarray(coefficients, float))
+        return fitted_polyhedron(fit, SUBDIVISIONS if fine else SUBDIVISIONS - 1)[:2]
+
 
 @dataclass(frozen=True)
 class FormReport:
@@ -105,6 +112,16 @@ class FormReport:
     volume_scale: float
     chord_height: float
     coarse_triangles: int
+
+    def ideal(self, body):
+        """(shape, placement) of the ideal sphere of the body: uniform, of its volume, at its centre of mass."""
+        from truepull.geometry.placement import Placement
+        from truepull.geometry.shapes import Sphere
+
+        return Sphere((3.0 * body.volume / (4.0 * math.pi)) ** (1.0 / 3.0)), Placement.shift(body.com)
+
+    def ideal_text(self, shape) -> str:
+        return f"the ideal sphere of equal mass and centre (radius {shape.radius:.6g} m)"
 
     def note(self, name: str) -> str:
         f = self.fit

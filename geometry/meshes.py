@@ -82,9 +82,10 @@ def _measured_hull(path, where, key):
     return trimesh.convex.convex_hull(points.points)
 
 
-def _measured_form(path, file_units, file, key, fit_degree):
-    """The fitted measured form of a CSV (a MeasuredMesh in metres), or None for x, y, z points without
-    `fit_degree` (their convex hull is then read as a mesh)."""
+def _measured_form(path, file_units, file, key, fit_degree, form="sphere"):
+    """The fitted measured form of a CSV (a MeasuredMesh in metres), or None for x, y, z points of a sphere
+    without `fit_degree` (their convex hull is then read as a mesh). `form` "cylinder": x, y, z points
+    fitted as a measured cylinder (measured_cylinder.py)."""
     from truepull.geometry.measured_form import fitted_shape, read_measured
 
     path = Path(path)
@@ -93,6 +94,15 @@ def _measured_form(path, file_units, file, key, fit_degree):
         raise InputError(where, key, f"mesh file '{path}' not found" if not path.exists()
                          else f"mesh file '{path}' is not a file")
     points = read_measured(path, si_factor(file_units, "length", file, key), where, key)
+    if form == "cylinder":
+        from truepull.geometry.measured_cylinder import fitted_cylinder
+
+        if points.columns != ("x", "y", "z"):
+            raise InputError(where, key, f"'{path.name}': a measured cylinder is read from x, y, z points; found "
+                                         f"columns {', '.join(points.columns)}")
+        shape = fitted_cylinder(points.points, str(path), fit_degree, where, key)
+        _check_extent(np.asarray(shape.vertices), path.name, where, key)
+        return shape
     if points.columns == ("x", "y", "z") and fit_degree is None:
         return None
     shape = fitted_shape(points, fit_degree, where, key)
@@ -178,15 +188,17 @@ def _check_shells(mesh, name, where, key):
                                      "(it would count as negative mass); fix its face orientation")
 
 
-def load_mesh(path, file_units: str = "m", file=None, key=None, tolerance=None, fit_degree=None) -> MeshShape:
+def load_mesh(path, file_units: str = "m", file=None, key=None, tolerance=None, fit_degree=None,
+              form: str = "sphere") -> MeshShape:
     """Load a closed mesh from `path` with coordinates in `file_units` (a length unit) as a MeshShape
     in metres. `file`/`key` name the scene file and key for error messages. A STEP file carries its
     own units (file_units is ignored) and is tessellated at each of STEP_TOLERANCES: the finest is the
     shape, the one before it its `coarse` (for the tessellation error). A CSV is a measured form
     (measured_form.py): fitted to degree `fit_degree` (None: by the data count) unless it holds x, y, z
-    points and no `fit_degree` is given (then their convex hull)."""
+    points and no `fit_degree` is given (then their convex hull); with `form` "cylinder" it is fitted as a
+    measured cylinder (measured_cylinder.py)."""
     if is_measured(path):
-        shape = _measured_form(path, file_units, file, key, fit_degree)
+        shape = _measured_form(path, file_units, file, key, fit_degree, form)
         if shape is not None:
             return shape
     if is_step(path) and tolerance is None:

@@ -69,7 +69,7 @@ SHAPE_KEYS: dict[str, dict[str, bool]] = {
     "box": {"size": True},
     "cone": {"radius": True, "length": True, "radius_top": False},
     "ellipsoid": {"radii": True},
-    "mesh": {"file": True, "file_units": False, "fit_degree": False},
+    "mesh": {"file": True, "file_units": False, "fit_degree": False, "form": False},
 }
 
 
@@ -448,18 +448,42 @@ def _read_body(r: _Reader, raw, index: int) -> BodySpec:
                     scene_file=r.file)
 
 
-def _fit_degree(r: _Reader, t: dict, mesh_path, where: str):
-    """A mesh body's optional `fit_degree` (measured-form CSV only; geometry/measured_form.py), or None."""
+def _measured_as(r: _Reader, t: dict, mesh_path, where: str) -> str:
+    """A mesh body's optional `form`: what a measured-form CSV was measured as, "sphere" (default) or
+    "cylinder" (geometry/measured_form.py, geometry/measured_cylinder.py)."""
+    if "form" not in t:
+        return "sphere"
+    v = t["form"]
+    if v not in ("sphere", "cylinder"):
+        r.fail(f"{where}.form", f"expected \"sphere\" or \"cylinder\", got {v!r}")
+    if mesh_path.suffix.lower() != ".csv":
+        r.fail(f"{where}.form", "a measured form applies to a .csv file of measured points only")
+    return v
+
+
+def _fit_degree(r: _Reader, t: dict, mesh_path, where: str, form: str = "sphere"):
+    """A mesh body's optional `fit_degree` (measured-form CSV only; geometry/measured_form.py), or None;
+    for a measured cylinder a whole number or a pair [M, K] (geometry/measured_cylinder.py)."""
+    from truepull.geometry import measured_cylinder
     from truepull.geometry.measured_form import MAX_DEGREE
 
     if "fit_degree" not in t:
         return None
     v = t["fit_degree"]
-    if isinstance(v, bool) or not isinstance(v, int) or not 0 <= v <= MAX_DEGREE:
-        r.fail(f"{where}.fit_degree", f"expected a whole number from 0 to {MAX_DEGREE}, got {v!r}")
+    top = measured_cylinder.MAX_DEGREE if form == "cylinder" else MAX_DEGREE
+
+    def whole(x):
+        return not isinstance(x, bool) and isinstance(x, int) and 0 <= x <= top
+
+    if form == "cylinder":
+        if not (whole(v) or (isinstance(v, list) and len(v) == 2 and all(whole(x) for x in v))):
+            r.fail(f"{where}.fit_degree", f"expected a whole number or a pair [order in phi, degree in z], each "
+                                          f"from 0 to {top}, got {v!r}")
+    elif not whole(v):
+        r.fail(f"{where}.fit_degree", f"expected a whole number from 0 to {top}, got {v!r}")
     if mesh_path.suffix.lower() != ".csv":
         r.fail(f"{where}.fit_degree", "a fit degree applies to a measured form (a .csv file) only")
-    return v
+    return tuple(v) if isinstance(v, list) else v
 
 
 def _read_size(r: _Reader, t: dict, kind: str, where: str):
@@ -478,8 +502,9 @@ def _read_size(r: _Reader, t: dict, kind: str, where: str):
         mesh_path = Path(file)
         if not mesh_path.is_absolute():
             mesh_path = Path(r.base_dir) / mesh_path
-        degree = _fit_degree(r, t, mesh_path, where)
-        mesh = load_mesh(mesh_path, file_units, file=r.file, key=f"{where}.file", fit_degree=degree)
+        form = _measured_as(r, t, mesh_path, where)
+        degree = _fit_degree(r, t, mesh_path, where, form)
+        mesh = load_mesh(mesh_path, file_units, file=r.file, key=f"{where}.file", fit_degree=degree, form=form)
         return size, mesh, file, file_units
     if kind == "box":
         v = r.vector(t["size"], "length", f"{where}.size")

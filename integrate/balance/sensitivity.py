@@ -802,28 +802,31 @@ def gradient_what_if(scene, group: str, relative: float, **kw) -> WhatIfResult:
     return what_if(scene, "gradient", group, scene.with_bodies(bodies), desc, **kw)
 
 
-def ideal_sphere(scene, name: str) -> Body:
-    """The ideal shape of a measured-form body (geometry/measured_form.py, fitted): a uniform sphere of
-    the body's mass, volume and density, centred at its centre of mass, as drawn."""
-    from truepull.geometry.shapes import Sphere
-
+def ideal_form(scene, name: str) -> tuple[Body, str]:
+    """The ideal shape of a measured-form body (geometry/measured_form.py, measured_cylinder.py, fitted) and
+    its description: a uniform sphere, or cylinder of the fitted mean radius along the body's axis, of the
+    body's mass, volume and density, centred at its centre of mass."""
     b = scene.body(name)
     form = getattr(b.shape, "form", None)
     if form is None:
         raise InputError(scene.path, "--measured-form", f"'{name}' is not a fitted measured form (a mesh body "
                                                         "read from a CSV of directions and radii, or of points "
-                                                        "with fit_degree)")
+                                                        "with fit_degree or form = \"cylinder\")")
     if b.has_gradient:
-        raise InputError(scene.path, "--measured-form", f"'{name}' has a density gradient; the ideal sphere "
+        raise InputError(scene.path, "--measured-form", f"'{name}' has a density gradient; the ideal shape "
                                                         "is uniform")
-    R = (3.0 * b.volume / (4.0 * math.pi)) ** (1.0 / 3.0)
-    return Body(b.name, b.group, Sphere(R), Placement.shift(b.com), b.density, None)
+    shape, placement = form.ideal(b)
+    return Body(b.name, b.group, shape, placement, b.density, None), form.ideal_text(shape)
+
+
+def ideal_sphere(scene, name: str) -> Body:
+    """The ideal shape of a measured-form body (ideal_form; a sphere for a measured ball)."""
+    return ideal_form(scene, name)[0]
 
 
 def measured_form_what_if(scene, name, **kw) -> WhatIfResult:
-    """What the measured form of `name` does beside its ideal sphere (same mass and centre of mass):
-    the scene with the ideal sphere is 'before', the scene as measured 'after'."""
-    ideal = ideal_sphere(scene, name)
-    desc = (f"measured form of '{name}' against the ideal sphere of equal mass and centre "
-            f"(radius {ideal.shape.radius:.6g} m)")
+    """What the measured form of `name` does beside its ideal shape (same mass and centre of mass):
+    the scene with the ideal shape is 'before', the scene as measured 'after'."""
+    ideal, text = ideal_form(scene, name)
+    desc = f"measured form of '{name}' against {text}"
     return what_if(scene.with_body(name, ideal), "measured-form", name, scene, desc, **kw)
