@@ -237,7 +237,10 @@ def _scaled_shape(shape, s: float):
         return shape
     if isinstance(shape, MeshShape):
         coarse = None if shape.coarse is None else _scaled_shape(shape.coarse, s)
-        return MeshShape(np.asarray(shape.vertices, float) * s, shape.faces, shape.file, shape.inverted, coarse)
+        vertices = np.asarray(shape.vertices, float) * s
+        if getattr(shape, "form", None) is not None:        # a measured form keeps its fit, noting the scale
+            return replace(shape, vertices=vertices, coarse=coarse, scale=shape.scale * s)
+        return MeshShape(vertices, shape.faces, shape.file, shape.inverted, coarse)
     return shape_from_size(shape.kind, {k: v * s for k, v in shape.size_params().items()})
 
 

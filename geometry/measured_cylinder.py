@@ -335,12 +335,13 @@ class CylinderReport:
     coarse_triangles: int
 
     def ideal(self, body):
-        """The ideal cylinder of the body: uniform, of its density, the fitted mean radius (a_00), the length
+        """The ideal cylinder of the body: uniform, of its density, the fitted mean radius (a_00, times the
+        shape's thermal scale), the length
         giving its volume, along its local z through its centre of mass (shapes.Cylinder, band field)."""
         from truepull.geometry.placement import Placement
         from truepull.geometry.shapes import Cylinder
 
-        R = self.fit.coefficients[0]
+        R = self.fit.coefficients[0] * getattr(body.shape, "scale", 1.0)   # heated: the fit's lengths times s
         return Cylinder(float(R), float(body.volume / (math.pi * R * R))), Placement(body.placement.rotation, body.com)
 
     def ideal_text(self, shape) -> str:

@@ -145,9 +145,11 @@ class FormReport:
 
 @dataclass(frozen=True, eq=False)
 class MeasuredMesh(MeshShape):
-    """A MeshShape made from a measured form; `form` says how (FormReport)."""
+    """A MeshShape made from a measured form; `form` says how (FormReport); `scale` is the factor its lengths
+    carry against the form as measured (1 + alpha dT at a temperature other than the material's reference)."""
 
     form: FormReport | None = field(default=None)
+    scale: float = 1.0
 
 
 # ------------------------------------------------------------------------------------------------
@@ -361,5 +363,8 @@ def measured_form_notes(scene) -> list[str]:
     for b in scene.bodies:
         form = getattr(b.shape, "form", None)
         if form is not None:
-            out.append(form.note(b.name))
+            scale = getattr(b.shape, "scale", 1.0)
+            heated = "" if scale == 1.0 else (f"; at the scene's temperature every length of the body is {scale:.9g} "
+                                              "times the form as measured (thermal expansion)")
+            out.append(form.note(b.name) + heated)
     return out

@@ -27,7 +27,7 @@ import pytest
 from truepull.geometry.bodies import Body
 from truepull.geometry.errors import InputError
 from truepull.geometry.measured_cylinder import (COARSE, FINE, CylinderFit, chord_height, cylinder_polyhedron,
-                                                 face_terms, fit_cylinder, fitted_cylinder, split_points)
+                                                 face_terms, fit_cylinder, split_points)
 from truepull.geometry.meshes import load_mesh
 from truepull.geometry.placement import Placement
 from truepull.geometry.shapes import Cylinder, MeshShape, Sphere
@@ -293,3 +293,31 @@ def test_a_cylinder_without_end_face_points_is_refused(tmp_path):
                delimiter=",", header="theta,phi,r", comments="")
     with pytest.raises(InputError, match="read from x, y, z points"):
         load_mesh(tmp_path / "d.csv", "mm", form="cylinder")
+
+
+def test_a_heated_measured_cylinder_keeps_its_fit_scaled(tmp_path):
+    """At 30 degC with a stated expansion alpha, the measured body is the form as measured with every length
+    times s = 1 + alpha (T - T_ref) (the similarity law of thermal expansion: dimensional analysis, lengths
+    scale, shape kept): its vertices and its coarse shape's are s times the cold ones, its fit is kept (the
+    `check` note says the scale), and its ideal cylinder has radius and length s times the cold ideal's."""
+    from truepull.geometry.measured_form import measured_form_notes
+    from truepull.geometry.scene import load_scene_text
+    from truepull.integrate.balance.sensitivity import ideal_form
+
+    pts = _scan(0.012, 0.015, 2e-3, 1e-3, 0.0, np.random.default_rng(1), n_phi=24, n_z=5)
+    np.savetxt(tmp_path / "c.csv", pts * 1e3, delimiter=",", header="x,y,z", comments="")
+    alpha = 1.65e-5
+    cold_text = _scene("c.csv", f'fit_degree = [2, 1]\nexpansion = "{alpha} 1/K"').replace("at = [40, 0, 0]", "at = [0, 0, 0]")
+    hot_text = '[conditions]\ntemperature = "30 degC"\n' + cold_text
+    cold = load_scene_text(cold_text, "cold.toml", str(tmp_path))
+    hot = load_scene_text(hot_text, "hot.toml", str(tmp_path))
+    s = 1.0 + alpha * 10.0
+    c, h = cold.body("cyl").shape, hot.body("cyl").shape
+    assert h.form is not None and h.scale == pytest.approx(s, rel=1e-15) and c.scale == 1.0
+    np.testing.assert_array_equal(h.form.fit.coefficients, c.form.fit.coefficients)
+    np.testing.assert_allclose(h.vertices, s * c.vertices, rtol=1e-15)
+    np.testing.assert_allclose(h.coarse.vertices, s * c.coarse.vertices, rtol=1e-15)
+    assert "times the form as measured" in measured_form_notes(hot)[0] and "times the form" not in measured_form_notes(cold)[0]
+    ideal_c, ideal_h = ideal_form(cold, "cyl")[0].shape, ideal_form(hot, "cyl")[0].shape
+    assert ideal_h.radius == pytest.approx(s * ideal_c.radius, rel=1e-13)
+    assert ideal_h.length == pytest.approx(s * ideal_c.length, rel=1e-12)
