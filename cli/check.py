@@ -6,7 +6,6 @@ import gc
 
 import numpy as np
 
-from truepull.cli.options import add_scene
 from truepull.cli.output import fmt, format_table, print_json
 
 HELP = "load and validate a scene; bodies, mass properties, group totals, warnings"

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import numpy as np
 
 from truepull.cli.options import add_groups, add_position, add_rtol, add_scene
 from truepull.cli.output import fmt, format_table, guarded_ratio, not_reached_exit, print_json

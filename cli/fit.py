@@ -18,7 +18,7 @@ import numpy as np
 from truepull.cli.output import fmt, format_table, print_json, save_figure_atomic, write_atomic
 from truepull.cli.scene_text import replace_table, toml_key, toml_string
 from truepull.geometry.errors import InputError
-from truepull.geometry.quantities import parse_scalar, si_factor, units
+from truepull.geometry.quantities import parse_scalar, si_factor
 from truepull.integrate.balance.fitting import SegmentFit, fit_record, spot_to_angle
 from truepull.integrate.balance.run_fit import MAX_DRIFT_ORDER, RunFit, fit_run
 
@@ -440,7 +440,7 @@ def fit_with_scene(args, scene_path: str, time, angle, labels, line_numbers, val
                               f"the linear model's amplitude offset is not modelled"]
     run = fit_run(time, angle, labels, drift_order=args.drift_order, anharmonic=terms, file=args.data,
                   time_key=args.time_column, angle_key=value_column, line_numbers=line_numbers, fits=fits)
-    notes = [f"linear-model equilibria differ from the second-order ones by "
+    notes = ["linear-model equilibria differ from the second-order ones by "
              + ", ".join(f"{p}: {fmt(float(linear.equilibria[i] - run.equilibria[i]), 3)} rad"
                          for i, p in enumerate(run.positions))]
     return fits, run, notes
@@ -516,7 +516,7 @@ def run_text(run: RunFit, time_unit: str, angle_unit: str) -> str:
         d = run.equilibria[0] - run.equilibria[1]
         u = math.sqrt(max(c[0, 0] + c[1, 1] - 2 * c[0, 1], 0.0))
         lines.append(f"  difference {run.positions[0]} - {run.positions[1]}: {_pm(d, u, af)} {au}")
-    lines.append(f"  drift: Legendre coefficients " + ", ".join(_pm(c, u, af) for c, u in
+    lines.append("  drift: Legendre coefficients " + ", ".join(_pm(c, u, af) for c, u in
                  zip(run.drift_coefficients, run.u_drift_coefficients)) + f" {au}; it spans "
                  f"{fmt(run.drift_span / af, 3)} {au} over the run")
     lines.append(f"  residuals: rms {fmt(run.residual_rms / af, 3)} {au}, lag-1 autocorrelation "

@@ -224,7 +224,7 @@ def point_formula_lines(data: dict) -> list[str]:
                     "torque per unit G of each attractor body on its nearest pendulum body, as points, as drawn; "
                     "for two balls on a light beam, 2 pi^2 L b^2 theta / (M T^2))"]
         slope = data["G_point"] / (ip * (2 * math.pi / T[0]) ** 2)
-        return [f"G_point = I_p (2 pi / T)^2 s, s the least-squares slope of the angles against Gamma",
+        return ["G_point = I_p (2 pi / T)^2 s, s the least-squares slope of the angles against Gamma",
                 f"        = {ip:.9g} kg m^2 x (2 pi / {T[0]:.9g} s)^2 x {slope:.9g} kg^-2 m rad = {data['G_point']:.9g}",
                 "  (angles " + ", ".join(f"{p} {a:.9g} rad" for p, a in zip(pos, phi)) + "; Gamma "
                 + ", ".join(f"{p} {g:.9g}" for p, g in zip(pos, gam)) + " kg^2 m^-1)"]
@@ -237,7 +237,7 @@ def point_formula_lines(data: dict) -> list[str]:
                 f"        = {value:.9g} {G_UNIT}",
                 "  (I_p: the pendulum's bodies as points; T: the measured periods; k: gravitational stiffness per "
                 "unit G of each attractor body on its nearest pendulum body, as points, as drawn)"]
-    return [f"G_point = I_p (omega_i^2 - omega_j^2) / (k_i - k_j) by least squares over "
+    return ["G_point = I_p (omega_i^2 - omega_j^2) / (k_i - k_j) by least squares over "
             + ", ".join(f"{p} (T {tt:.9g} s, k {kk:.9g})" for p, tt, kk in zip(pos, T, k))
             + f", I_p {ip:.9g} kg m^2 = {data['G_point']:.9g}"]
 

@@ -19,7 +19,6 @@ taken to hold it untwisted; the scene has no key for a residual twist).
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
