@@ -468,37 +468,142 @@ def prism_error_estimate(half_sizes):
     return float(np.finfo(float).eps * (1000.0 + 2.0 * aspect * aspect))
 
 
+@njit(cache=True, error_model="numpy", inline="always")
 def _log_step_bounds(a, w1, w2, r1, r2):
-    """|ln(w2 + r2) - ln(w1 + r1)| pieces for the error bound: the value (by the stable formula of
-    `_log_step`, in numpy) and the size of its gradient in the field point,
-    sum_k |grad ln(w_k + r_k)| = sum_k sqrt(2 / (r_k (w_k + r_k))), with w + r = a / (r - w) for w < 0."""
-    with np.errstate(divide="ignore", invalid="ignore"):
-        s1 = np.where(w1 >= 0.0, w1 + r1, a / (r1 - w1))
-        s2 = np.where(w2 >= 0.0, w2 + r2, a / (r2 - w2))
-        d = np.log(s2) - np.log(s1)
-        grad = np.sqrt(2.0 / (r1 * s1)) + np.sqrt(2.0 / (r2 * s2))
-    return np.abs(d), grad
+    """|ln(w2 + r2) - ln(w1 + r1)| for the error bound (by the stable formula of `_log_step`) and the
+    size of its gradient in the field point, sum_k |grad ln(w_k + r_k)| = sum_k sqrt(2 / (r_k (w_k + r_k))),
+    with w + r = a / (r - w) for w < 0."""
+    s1 = w1 + r1 if w1 >= 0.0 else a / (r1 - w1)
+    s2 = w2 + r2 if w2 >= 0.0 else a / (r2 - w2)
+    d = np.log(s2) - np.log(s1)
+    return abs(d), np.sqrt(2.0 / (r1 * s1)) + np.sqrt(2.0 / (r2 * s2))
 
 
-def _rectangle_angle_size(u, A, B):
-    """(|solid angle|, its sensitivity to rounding) (N,) of the rectangle {u} x [A0, A1] x [B0, B1]
-    seen from the origin, as two Van Oosterom-Strackee triangles (see
-    field_polyhedron._solid_angle_sizes)."""
-    corners = [np.stack([u, A[:, i], B[:, j]], axis=1) for i, j in ((0, 0), (1, 0), (1, 1), (0, 1))]
-    total = np.zeros(u.shape)
-    sens = np.zeros(u.shape)
-    for ia, ib, ic in ((0, 1, 2), (0, 2, 3)):
-        ra, rb, rc = corners[ia], corners[ib], corners[ic]
-        a, b, c = (np.linalg.norm(x, axis=1) for x in (ra, rb, rc))
-        ab, ac, bc = (np.einsum("ij,ij->i", x, y) for x, y in ((ra, rb), (ra, rc), (rb, rc)))
-        triple = np.einsum("ij,ij->i", ra, np.cross(rb, rc))
-        den = a * b * c + ab * c + ac * b + bc * a
-        dsum = a * b * c + np.abs(ab) * c + np.abs(ac) * b + np.abs(bc) * a
-        with np.errstate(divide="ignore", invalid="ignore"):
-            cond = np.where(triple != 0.0, np.abs(triple) * dsum / (triple ** 2 + den ** 2), 0.0)
-        total += np.abs(2.0 * np.arctan2(triple, den))
-        sens += 2.0 * cond
-    return total, sens
+@njit(cache=True, error_model="numpy", inline="always")
+def _triangle_angle_size(ax, ay, az, bx, by, bz, cx, cy, cz):
+    """(|solid angle|, its sensitivity to rounding) of the triangle (a, b, c) seen from the origin, by
+    Van Oosterom-Strackee (see field_polyhedron._solid_angle_sizes)."""
+    a = np.sqrt(ax * ax + ay * ay + az * az)
+    b = np.sqrt(bx * bx + by * by + bz * bz)
+    c = np.sqrt(cx * cx + cy * cy + cz * cz)
+    ab = ax * bx + ay * by + az * bz
+    ac = ax * cx + ay * cy + az * cz
+    bc = bx * cx + by * cy + bz * cz
+    triple = ax * (by * cz - bz * cy) + ay * (bz * cx - bx * cz) + az * (bx * cy - by * cx)
+    den = a * b * c + ab * c + ac * b + bc * a
+    dsum = a * b * c + abs(ab) * c + abs(ac) * b + abs(bc) * a
+    cond = abs(triple) * dsum / (triple * triple + den * den) if triple != 0.0 else 0.0
+    return abs(2.0 * np.arctan2(triple, den)), 2.0 * cond
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def _rectangle_angle_size(u, a0, a1, b0, b1):
+    """(|solid angle|, its sensitivity to rounding) of the rectangle {u} x [a0, a1] x [b0, b1] seen from
+    the origin, as two triangles of its corners (u, a0, b0), (u, a1, b0), (u, a1, b1), (u, a0, b1)."""
+    t1, c1 = _triangle_angle_size(u, a0, b0, u, a1, b0, u, a1, b1)
+    t2, c2 = _triangle_angle_size(u, a0, b0, u, a1, b1, u, a0, b1)
+    return t1 + t2, c1 + c2
+
+
+@njit(cache=True, error_model="numpy")
+def _closed_form_bounds(c, delta, s):
+    """(eU, eg, eT) of the closed form at one point, from its corner offsets c (3, 2) (box minus point per
+    axis, m), the coordinates' rounding delta (m) and s = G |rho| (see prism_rounding_bounds)."""
+    eps = 2.220446049250313e-16
+    C = 64.0
+    sU = sg = sT = sg0 = sT0 = dT = 0.0
+    for ax in range(3):
+        ia, ib = (ax + 1) % 3, (ax + 2) % 3          # the two transverse axes
+        w0, w1 = c[ax, 0], c[ax, 1]
+        for i in range(2):
+            A = c[ia, i]
+            for j in range(2):
+                B = c[ib, j]
+                a = A * A + B * B
+                r1 = np.sqrt(a + w0 * w0)
+                r2 = np.sqrt(a + w1 * w1)
+                d, grad = _log_step_bounds(a, w0, w1, r1, r2)
+                if a == 0.0 and w0 <= 0 and w1 >= 0:
+                    d = np.inf
+                ab = abs(A * B)
+                if ab > 0:
+                    sU += ab * d
+                side = (abs(B) * d if abs(B) > 0 else 0.0) + (abs(A) * d if abs(A) > 0 else 0.0)
+                sg += side
+                sg0 += side
+                sT += d
+                sT0 += d
+                dT += grad
+        # the two faces normal to this axis: solid angle at most 2 pi, its gradient bounded by the
+        # four edges' line integrals, each at most 2 / (distance to the edge's line)
+        for k in range(2):
+            u = c[ax, k]
+            om, cond = _rectangle_angle_size(u, c[ia, 0], c[ia, 1], c[ib, 0], c[ib, 1])
+            on = 1.0 if u != 0.0 else 0.0
+            om_r = (om + cond) * on            # with the atan2's rounding, for the C eps sums
+            om = om * on
+            sU += 0.5 * u * u * om_r
+            sg += abs(u) * om_r
+            sT += om_r
+            sg0 += abs(u) * om
+            sT0 += om
+            for i in range(2):
+                dT += 2.0 / np.sqrt(u * u + c[ia, i] ** 2) + 2.0 / np.sqrt(u * u + c[ib, i] ** 2)
+    eU = C * eps * s * sU + 2.0 * delta * s * sg0
+    eg = C * eps * s * sg + 2.0 * delta * s * sT0
+    eT = C * eps * s * sT + 2.0 * delta * s * dT
+    # within 2 delta of a face's plane the gradient may be on either side of its jump 4 pi G rho
+    # (on the face itself, not elsewhere in its plane, where the gradient is continuous)
+    tol = 2.0 * delta
+    inside0 = c[0, 0] <= tol and c[0, 1] >= -tol
+    inside1 = c[1, 0] <= tol and c[1, 1] >= -tol
+    inside2 = c[2, 0] <= tol and c[2, 1] >= -tol
+    on0 = min(abs(c[0, 0]), abs(c[0, 1])) <= tol
+    on1 = min(abs(c[1, 0]), abs(c[1, 1])) <= tol
+    on2 = min(abs(c[2, 0]), abs(c[2, 1])) <= tol
+    if (on0 and inside1 and inside2) or (on1 and inside0 and inside2) or (on2 and inside0 and inside1):
+        eT += 2.0 * np.pi * s
+    return eU, eg, eT
+
+
+@njit(cache=True, error_model="numpy")
+def _rounding_bounds_kernel(points, hx, hy, hz, s, position_error, max_points):
+    """(eU, eg, eT) (N,) of prism_rounding_bounds, one point at a time; position_error (N,) m."""
+    eps = 2.220446049250313e-16
+    n = points.shape[0]
+    eU = np.empty(n)
+    eg = np.empty(n)
+    eT = np.empty(n)
+    c = np.empty((3, 2))
+    m = s * 8.0 * hx * hy * hz
+    hmax = max(hx, max(hy, hz))
+    for i in range(n):
+        px, py, pz = points[i, 0], points[i, 1], points[i, 2]
+        # rounding of the corner offsets, plus that of the point itself (m, e.g. from the frame change)
+        delta = eps * (max(abs(px), max(abs(py), abs(pz))) + hmax) + position_error[i]
+        nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
+        if nx == 0:
+            c[0, 0], c[0, 1] = -hx - px, hx - px
+            c[1, 0], c[1, 1] = -hy - py, hy - py
+            c[2, 0], c[2, 1] = -hz - pz, hz - pz
+            eU[i], eg[i], eT[i] = _closed_form_bounds(c, delta, s)
+            continue
+        # far-field quadrature: rounding of the nested sums of positive-weight terms, bounded by the
+        # sums of |integrand| over the nodes (at most G|rho| V / dist^k), plus the rule's truncation;
+        # each term has its own few roundings (sqrt, divisions, weights, offsets: 32 ulps) and one per
+        # addition on its way through the three nested sums
+        d, far = _distances(px, py, pz, hx, hy, hz)
+        tU = tg = tT = 0.0
+        for h, order in ((hx, nx), (hy, ny), (hz, nz)):
+            u, g, t = _axis_truncation(d, far, h, order)
+            tU += u
+            tg += g
+            tT += t
+        rel = (nx + ny + nz + 32.0) * eps
+        eU[i] = rel * m / d + m * tU + 2.0 * delta * m / d ** 2
+        eg[i] = rel * m / d ** 2 + m * tg + 4.0 * delta * m / d ** 3
+        eT[i] = (3.0 + np.sqrt(3.0)) * rel * m / d ** 3 + m * tT + 12.0 * delta * m / d ** 4
+    return eU, eg, eT
 
 
 def prism_rounding_bounds(points, half_sizes, rho, G, position_error=0.0):
@@ -515,112 +620,10 @@ def prism_rounding_bounds(points, half_sizes, rho, G, position_error=0.0):
     and one addition per nested sum), plus the rule's proven truncation bound (`_axis_truncation`).
     Within 2 delta of a face's plane the gradient's jump there (4 pi G rho) is added: the point may be
     on either side of it. Infinite on an edge or vertex for eT (the gradient is not finite there). `position_error` (m):
-    how far the point itself may be off by rounding before it got here (the frame change)."""
+    how far the point itself may be off by rounding before it got here (the frame change), a number
+    or one per point. One numba pass over the points (`_rounding_bounds_kernel`)."""
     p, h = _check(points, half_sizes)
-    eps = np.finfo(float).eps
-    C = 64.0
     s = abs(float(G) * float(rho))
-    hx, hy, hz = h
-    n = p.shape[0]
-    X = np.stack([-hx - p[:, 0], hx - p[:, 0]], axis=1)
-    Y = np.stack([-hy - p[:, 1], hy - p[:, 1]], axis=1)
-    Z = np.stack([-hz - p[:, 2], hz - p[:, 2]], axis=1)
-    # rounding of the corner offsets, plus that of the point itself (m, e.g. from the frame change)
-    delta = eps * (np.abs(p).max(axis=1) + h.max()) + position_error
-    sU = np.zeros(n)        # sum of |terms| of the potential's corner sum
-    sg = np.zeros(n)        # of the field's
-    sT = np.zeros(n)        # of the gradient's
-    sg0 = np.zeros(n)       # the same without the solid angles' rounding: sizes of |g| and |T|
-    sT0 = np.zeros(n)
-    dT = np.zeros(n)        # sum of |grad| of the gradient's terms (log steps and solid angles)
-    coords = (X, Y, Z)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        for ax in range(3):
-            A, B = coords[(ax + 1) % 3], coords[(ax + 2) % 3]     # the two transverse axes
-            W = coords[ax]
-            for i in range(2):
-                for j in range(2):
-                    a = A[:, i] ** 2 + B[:, j] ** 2
-                    r1 = np.sqrt(a + W[:, 0] ** 2)
-                    r2 = np.sqrt(a + W[:, 1] ** 2)
-                    d, grad = _log_step_bounds(a, W[:, 0], W[:, 1], r1, r2)
-                    d = np.where(a == 0.0, np.where((W[:, 0] <= 0) & (W[:, 1] >= 0), np.inf, d), d)
-                    ab = np.abs(A[:, i] * B[:, j])
-                    sU += np.where(ab > 0, ab * d, 0.0)
-                    sg += np.where(np.abs(B[:, j]) > 0, np.abs(B[:, j]) * d, 0.0)
-                    sg += np.where(np.abs(A[:, i]) > 0, np.abs(A[:, i]) * d, 0.0)
-                    sT += d
-                    sT0 += d
-                    sg0 += np.where(np.abs(B[:, j]) > 0, np.abs(B[:, j]) * d, 0.0)
-                    sg0 += np.where(np.abs(A[:, i]) > 0, np.abs(A[:, i]) * d, 0.0)
-                    dT += grad
-            # the two faces normal to this axis: solid angle at most 2 pi, its gradient bounded by
-            # the four edges' line integrals, each at most 2 / (distance to the edge's line)
-            for k in range(2):
-                u = W[:, k]
-                om, cond = _rectangle_angle_size(u, A, B)
-                om_r = (om + cond) * (u != 0.0)         # with the atan2's rounding, for the C eps sums
-                om = om * (u != 0.0)
-                sU += 0.5 * u * u * om_r
-                sg += np.abs(u) * om_r
-                sT += om_r
-                sg0 += np.abs(u) * om
-                sT0 += om
-                for i in range(2):
-                    rho_a = np.sqrt(u * u + A[:, i] ** 2)
-                    rho_b = np.sqrt(u * u + B[:, i] ** 2)
-                    dT += 2.0 / rho_a + 2.0 / rho_b
-        grad_norm = s * sT0          # |T| bound, for the field's sensitivity to the point
-        field_norm = s * sg0
-        eU = C * eps * s * sU + 2.0 * delta * field_norm
-        eg = C * eps * s * sg + 2.0 * delta * grad_norm
-        eT = C * eps * s * sT + 2.0 * delta * s * dT
-        # within 2 delta of a face's plane the gradient may be on either side of its jump 4 pi G rho
-        # (on the face itself, not elsewhere in its plane, where the gradient is continuous)
-        tol = 2.0 * delta
-        inside = [(c[:, 0] <= tol) & (c[:, 1] >= -tol) for c in coords]       # within each axis' extent
-        on_plane = [np.abs(c).min(axis=1) <= tol for c in coords]
-        near_face = ((on_plane[0] & inside[1] & inside[2]) | (on_plane[1] & inside[0] & inside[2])
-                     | (on_plane[2] & inside[0] & inside[1]))
-        eT += 2.0 * np.pi * s * near_face
-    # far-field quadrature points: rounding of the nested sums of positive-weight terms, bounded by
-    # the sums of |integrand| over the nodes (at most G|rho| V / dist^k), plus the rule's truncation
-    n_add, dist, tU, tg, tT = _far_rule_bounds(p, hx, hy, hz, _max_points(n))
-    far = n_add > 0
-    if np.any(far):
-        m = s * 8.0 * hx * hy * hz
-        dq = dist[far]
-        # each term: its own few roundings (sqrt, divisions, weights, offsets: 32 ulps) and one per
-        # addition on its way through the three nested sums
-        rel = (n_add[far] + 32.0) * eps
-        dl = delta[far]
-        eU[far] = rel * m / dq + m * tU[far] + 2.0 * dl * m / dq ** 2
-        eg[far] = rel * m / dq ** 2 + m * tg[far] + 4.0 * dl * m / dq ** 3
-        eT[far] = (3.0 + np.sqrt(3.0)) * rel * m / dq ** 3 + m * tT[far] + 12.0 * dl * m / dq ** 4
-    return eU, eg, eT
-
-
-@njit(cache=True)
-def _far_rule_bounds(points, hx, hy, hz, max_points):
-    """For each point: (nx + ny + nz of the far-field rule, 0 where the closed form is used; distance
-    to the box; truncation bounds of potential, field and gradient per unit G |rho| V)."""
-    n = points.shape[0]
-    n_add = np.zeros(n)
-    dist = np.zeros(n)
-    tU = np.zeros(n)
-    tg = np.zeros(n)
-    tT = np.zeros(n)
-    for i in range(n):
-        px, py, pz = points[i, 0], points[i, 1], points[i, 2]
-        d, far = _distances(px, py, pz, hx, hy, hz)
-        dist[i] = d
-        nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
-        if nx == 0:
-            continue
-        n_add[i] = nx + ny + nz
-        for h, order in ((hx, nx), (hy, ny), (hz, nz)):
-            u, g, t = _axis_truncation(d, far, h, order)
-            tU[i] += u
-            tg[i] += g
-            tT[i] += t
-    return n_add, dist, tU, tg, tT
+    shift = np.ascontiguousarray(np.broadcast_to(np.asarray(position_error, dtype=float), (p.shape[0],)))
+    return _rounding_bounds_kernel(np.ascontiguousarray(p, dtype=float), float(h[0]), float(h[1]), float(h[2]), s,
+                                   shift, _max_points(p.shape[0]))
