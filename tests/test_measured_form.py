@@ -262,16 +262,16 @@ def test_scene_fit_degree_errors_exit_2(tmp_path):
         assert p.returncode == 2 and words in p.stderr and len(p.stderr.strip().splitlines()) == 1, p.stderr
 
 
-def test_ideal_sphere_is_refused_for_other_bodies(tmp_path):
+def test_ideal_form_is_refused_for_other_bodies(tmp_path):
     from truepull.geometry.scene import load_scene
-    from truepull.integrate.balance.sensitivity import ideal_sphere
+    from truepull.integrate.balance.sensitivity import ideal_form
 
     u = _points(200)
     _write(tmp_path / "pts.csv", u * 0.02)
     (tmp_path / "s.toml").write_text(_scene_text("pts.csv"))
     scene = load_scene(tmp_path / "s.toml")
     with pytest.raises(InputError, match="not a fitted measured form"):
-        ideal_sphere(scene, "ball")
+        ideal_form(scene, "ball")
 
 
 def test_the_three_column_sets_fit_the_same_form(tmp_path):

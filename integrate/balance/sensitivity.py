@@ -819,11 +819,6 @@ def ideal_form(scene, name: str) -> tuple[Body, str]:
     return Body(b.name, b.group, shape, placement, b.density, None), form.ideal_text(shape)
 
 
-def ideal_sphere(scene, name: str) -> Body:
-    """The ideal shape of a measured-form body (ideal_form; a sphere for a measured ball)."""
-    return ideal_form(scene, name)[0]
-
-
 def measured_form_what_if(scene, name, **kw) -> WhatIfResult:
     """What the measured form of `name` does beside its ideal shape (same mass and centre of mass):
     the scene with the ideal shape is 'before', the scene as measured 'after'."""
