@@ -86,6 +86,15 @@ def _body_field(src, points, rtol):
     return src.field(points, float(tol_u.min()), float(tol_g.min()))
 
 
+def _coarse_source(src, G):
+    """The SourceField of a tessellated part (STEP, measured form) at its coarser tessellation, or None: the
+    change between the two is its tessellation (chord) error, as integrate/tessellation.py adds to pairs."""
+    from truepull.integrate.tessellation import coarse_body
+
+    body = coarse_body(src.body)
+    return None if body is None else _source_fields([body], G)[0]
+
+
 def _closed_gradient(src, points):
     """(T, err_T) of a point, sphere, shell, box or mesh body from its closed form."""
     from truepull.integrate.field_point import shell_gradient
@@ -197,6 +206,11 @@ def group_field_at_points(bodies, points, G, rtol=1e-9, gradient=True, source="g
             i = int(np.flatnonzero(bad)[0])
             raise InputError(None, "points", f"point {i + 1} {points[i].tolist()} m: the field of body "
                              f"'{s.body.name}' ({s.method}) is not defined there")
+        coarse = _coarse_source(s, G)
+        if coarse is not None:      # a tessellated part: its change against the coarser tessellation
+            u_c, g_c = _body_field(coarse, points, rtol)[:2]
+            eu_s = eu_s + np.abs(u_s - u_c)
+            eg_s = eg_s + np.linalg.norm(g_s - g_c, axis=1)
         U += u_s
         g += g_s
         eU += eu_s
@@ -212,6 +226,8 @@ def group_field_at_points(bodies, points, G, rtol=1e-9, gradient=True, source="g
             i = int(np.flatnonzero(bad)[0])
             raise InputError(None, "points", f"point {i + 1} {points[i].tolist()} m lies on an edge or vertex of "
                              f"body '{s.body.name}': the gradient tensor is not finite there")
+        if coarse is not None:
+            eT_s = eT_s + np.linalg.norm(T_s - _closed_gradient(coarse, points)[0], axis=(1, 2))
         T += T_s
         eT += eT_s
     if gradient and differenced:
