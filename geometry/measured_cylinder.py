@@ -111,6 +111,12 @@ class CylinderFit:
         fit = self if coefficients is None else replace(self, coefficients=np.asarray(coefficients, float))
         return fit.matched(FINE if fine else COARSE)[:2]
 
+    def net(self, coefficients=None, fine: bool = True) -> tuple[np.ndarray, np.ndarray]:
+        """(vertices (V, 3) m, faces (F, 3)) through the surfaces of `coefficients` (default the fitted ones) at
+        FINE (else COARSE), not volume-matched (the layer geometry of integrate/balance/form_modes.py)."""
+        fit = self if coefficients is None else replace(self, coefficients=np.asarray(coefficients, float))
+        return cylinder_polyhedron(fit, FINE if fine else COARSE)[:2]
+
     def volume(self) -> tuple[float, float]:
         """(fitted volume (m^3) by Romberg extrapolation of the polyhedra (module docstring), its
         standard uncertainty from the fit to first order: dV/da = integral of r B dphi dz on the side,

@@ -28,6 +28,7 @@ from __future__ import annotations
 import csv
 import math
 from dataclasses import dataclass, field, replace
+from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
@@ -100,6 +101,15 @@ class FormFit:
         fit = self if coefficients is None else replace(self, coefficients=np.asarray(coefficients, float))
         return fitted_polyhedron(fit, SUBDIVISIONS if fine else SUBDIVISIONS - 1)[:2]
 
+    def net(self, coefficients=None, fine: bool = True) -> tuple[np.ndarray, np.ndarray]:
+        """(vertices (V, 3) m, faces (F, 3)) through the surface of `coefficients` (default the fitted ones) on
+        the icosphere net of SUBDIVISIONS - 1 (5120 triangles; else one fewer), not volume-matched: the
+        vertices are linear in the coefficients (the layer geometry of integrate/balance/form_modes.py)."""
+        c = self.coefficients if coefficients is None else np.asarray(coefficients, float)
+        k = SUBDIVISIONS - 1 if fine else SUBDIVISIONS - 2
+        u, faces = _icosphere(k)
+        return u * (_net_harmonics(self.degree, k) @ c)[:, None], faces
+
 
 @dataclass(frozen=True)
 class FormReport:
@@ -150,6 +160,15 @@ class MeasuredMesh(MeshShape):
 
     form: FormReport | None = field(default=None)
     scale: float = 1.0
+
+    def with_coefficients(self, coefficients) -> "MeasuredMesh":
+        """The body rebuilt through the form of other `coefficients` (its fit's layout, m): the fine and
+        coarse polyhedra of fit.polyhedron, times this body's `scale`; the report carries the new fit."""
+        fit = replace(self.form.fit, coefficients=np.asarray(coefficients, float))
+        v, f = fit.polyhedron(fit.coefficients, True)
+        vc, fc = fit.polyhedron(fit.coefficients, False)
+        coarse = MeshShape(vc * self.scale, fc, self.file)
+        return replace(self, vertices=v * self.scale, faces=f, coarse=coarse, form=replace(self.form, fit=fit))
 
 
 # ------------------------------------------------------------------------------------------------
@@ -305,15 +324,34 @@ def fit_form(points: MeasuredPoints, degree: int | None, where=None, key=None) -
 # the polyhedron
 
 
-def fitted_polyhedron(fit: FormFit, subdivisions: int) -> tuple[np.ndarray, np.ndarray, float]:
-    """(vertices (V, 3) m, faces (F, 3), radius scale) of the polyhedron through the fitted surface on the
-    icosphere net (trimesh.creation.icosphere), radii scaled so that its volume is the fitted volume."""
+@lru_cache(maxsize=4)
+def _icosphere(subdivisions: int) -> tuple[np.ndarray, np.ndarray]:
+    """(unit directions (V, 3), faces (F, 3)) of the icosphere net (trimesh.creation.icosphere), read-only."""
     import trimesh
 
     net = trimesh.creation.icosphere(subdivisions=subdivisions, radius=1.0)
     u = np.asarray(net.vertices, float)
     u /= np.linalg.norm(u, axis=1)[:, None]
     faces = np.asarray(net.faces, np.int64)
+    u.setflags(write=False)
+    faces.setflags(write=False)
+    return u, faces
+
+
+@lru_cache(maxsize=8)
+def _net_harmonics(degree: int, subdivisions: int) -> np.ndarray:
+    """real_harmonics at the icosphere net's vertices (read-only; FormFit.net evaluates it many times)."""
+    Y = real_harmonics(degree, _icosphere(subdivisions)[0])
+    Y.setflags(write=False)
+    return Y
+
+
+def fitted_polyhedron(fit: FormFit, subdivisions: int) -> tuple[np.ndarray, np.ndarray, float]:
+    """(vertices (V, 3) m, faces (F, 3), radius scale) of the polyhedron through the fitted surface on the
+    icosphere net (trimesh.creation.icosphere), radii scaled so that its volume is the fitted volume."""
+    import trimesh
+
+    u, faces = _icosphere(subdivisions)
     v = u * fit.radius(u)[:, None]
     volume = abs(float(trimesh.Trimesh(vertices=v, faces=faces, process=False).volume))
     scale = (fit.volume()[0] / volume) ** (1.0 / 3.0)

@@ -366,3 +366,90 @@ length = 50
 density = 11340
 at = [69.32, 35.76, 13]
 """
+
+
+def write_measured_ball(path, radius_mm: float = 10.0, eps20: float = 1e-3, noise_mm: float = 0.0,
+                        n: int = 600, seed: int = 1) -> None:
+    """A CSV of theta, phi (deg), r (mm) on a ball r = R (1 + eps20 Y20) on a Fibonacci net, plus normal noise."""
+    import math
+
+    import numpy as np
+
+    k = np.arange(n) + 0.5
+    z = 1 - 2 * k / n
+    phi = math.pi * (1 + 5**0.5) * k
+    y20 = math.sqrt(5 / (4 * math.pi)) * 0.5 * (3 * z * z - 1)
+    r = radius_mm * (1 + eps20 * y20) + np.random.default_rng(seed).normal(0.0, noise_mm, n)
+    rows = np.column_stack([np.degrees(np.arccos(z)), np.degrees(phi) % 360.0, r])
+    np.savetxt(path, rows, delimiter=",", header="theta,phi,r", comments="")
+
+
+def measured_cylinder_points(R, H, eps, tau, noise, rng, n_phi=48, n_z=13, rings=5):
+    """Points (N, 3) m on the side and both flat faces of r = R (1 + eps cos 2 phi) + tau z, noisy."""
+    import math
+
+    import numpy as np
+
+    rows = []
+    for k, z in enumerate(np.linspace(-0.95 * H, 0.95 * H, n_z)):
+        phi = (np.arange(n_phi) + 0.5 * (k % 2)) * 2 * math.pi / n_phi
+        r = R * (1 + eps * np.cos(2 * phi)) + tau * z + rng.normal(0, noise, n_phi)
+        rows.append(np.column_stack([r * np.cos(phi), r * np.sin(phi), np.full(n_phi, z)]))
+    for zf in (H, -H):
+        for rho in np.linspace(0.15 * R, 0.92 * R, rings):
+            a = np.arange(24) * 2 * math.pi / 24 + rho
+            rows.append(np.column_stack([rho * np.cos(a), rho * np.sin(a), zf + rng.normal(0, noise, 24)]))
+    return np.vstack(rows)
+
+
+def measured_ball_scene(csv: str, fit_degree: int = 3, period: str = "512.0 s", form: str = "") -> str:
+    """A small balance whose east bob is the measured ball of `csv` (mm; with form = 'cylinder' a measured
+    cylinder, fit_degree then '[M, K]'); deflection at turns +-35 deg."""
+    form_line = f'form = "{form}"' if form else ""
+    return f"""[units]
+length = "mm"
+density = "g/cm^3"
+angle = "deg"
+[[body]]
+name = "bob-east"
+group = "pendulum"
+shape = "mesh"
+file = "{csv}"
+{form_line}
+fit_degree = {fit_degree}
+density = 18.0
+at = [40, 0, 0]
+[[body]]
+name = "bob-west"
+group = "pendulum"
+shape = "sphere"
+radius = 10
+density = 18.0
+at = [-40, 0, 0]
+[[body]]
+name = "lead-a"
+group = "attractor"
+shape = "sphere"
+radius = 25
+density = 11.34
+at = [70, 0, 0]
+[[body]]
+name = "lead-b"
+group = "attractor"
+shape = "sphere"
+radius = 25
+density = 11.34
+at = [-70, 0, 0]
+[[position]]
+name = "A"
+group = "attractor"
+turn = 35
+[[position]]
+name = "B"
+group = "attractor"
+turn = -35
+[measurement]
+method = "deflection"
+angle = {{ A = "0.00210 rad", B = "-0.00208 rad" }}
+period = "{period}"
+"""

@@ -24,6 +24,7 @@ import sys
 import numpy as np
 import pytest
 
+from tests.scene_fixtures import measured_cylinder_points
 from truepull.geometry.bodies import Body
 from truepull.geometry.errors import InputError
 from truepull.geometry.measured_cylinder import (COARSE, FINE, CylinderFit, chord_height, cylinder_polyhedron,
@@ -54,18 +55,6 @@ def _body(fit, rho, fine=True):
     return Body("m", "g", MeshShape(v, f), Placement.identity(), rho)
 
 
-def _scan(R, H, eps, tau, noise, rng, n_phi=48, n_z=13, rings=5):
-    """Points (N, 3) m on the side and both flat faces of r = R (1 + eps cos 2 phi) + tau z, noisy."""
-    rows = []
-    for k, z in enumerate(np.linspace(-0.95 * H, 0.95 * H, n_z)):
-        phi = (np.arange(n_phi) + 0.5 * (k % 2)) * 2 * math.pi / n_phi
-        r = R * (1 + eps * np.cos(2 * phi)) + tau * z + rng.normal(0, noise, n_phi)
-        rows.append(np.column_stack([r * np.cos(phi), r * np.sin(phi), np.full(n_phi, z)]))
-    for zf in (H, -H):
-        for rho in np.linspace(0.15 * R, 0.92 * R, rings):
-            a = np.arange(24) * 2 * math.pi / 24 + rho
-            rows.append(np.column_stack([rho * np.cos(a), rho * np.sin(a), zf + rng.normal(0, noise, 24)]))
-    return np.vstack(rows)
 
 
 def test_ovality_and_taper_have_the_first_order_layer_field():
@@ -159,7 +148,7 @@ def test_fit_statistics_are_lstsq_s():
     from scipy.special import eval_legendre
 
     R, H, eps, tau, noise = 0.02, 0.03, 2e-3, 1e-3, 5e-7
-    pts = split_points(_scan(R, H, eps, tau, noise, np.random.default_rng(7)), "scan.csv")
+    pts = split_points(measured_cylinder_points(R, H, eps, tau, noise, np.random.default_rng(7)), "scan.csv")
     fit = fit_cylinder(pts, (2, 2))
     s = pts.side
     phi, zeta = np.arctan2(s[:, 1], s[:, 0]), s[:, 2] / pts.half_length
@@ -190,7 +179,7 @@ def test_volume_uncertainty_is_the_linear_propagation():
     differences of trimesh volumes, an independent route to the module's quadrature) agrees within 1 %."""
     import trimesh
 
-    pts = split_points(_scan(0.02, 0.03, 2e-3, 1e-3, 5e-7, np.random.default_rng(3)), "scan.csv")
+    pts = split_points(measured_cylinder_points(0.02, 0.03, 2e-3, 1e-3, 5e-7, np.random.default_rng(3)), "scan.csv")
     fit = fit_cylinder(pts, (2, 1))
     h = 1e-7
     grad = []
@@ -244,7 +233,7 @@ def test_bias_measured_cylinder_against_the_layer_torque(tmp_path):
     from scipy.integrate import cubature
 
     R, H, eps, rho = 0.012, 0.015, 2e-3, 8000.0
-    pts = _scan(R, H, eps, 0.0, 0.0, np.random.default_rng(1), n_phi=40, n_z=9)
+    pts = measured_cylinder_points(R, H, eps, 0.0, 0.0, np.random.default_rng(1), n_phi=40, n_z=9)
     np.savetxt(tmp_path / "c.csv", pts * 1e3, delimiter=",", header="x,y,z", comments="")
     (tmp_path / "s.toml").write_text(_scene("c.csv", "fit_degree = [2, 1]"))
     p = subprocess.run([sys.executable, "-m", "truepull", "bias", str(tmp_path / "s.toml"), "--no-table",
@@ -274,7 +263,7 @@ def test_bias_measured_cylinder_against_the_layer_torque(tmp_path):
     ("fit_degree = [2]", "fit_degree: expected a whole number or a pair"),
 ])
 def test_bad_cylinder_keys_exit_2(tmp_path, extra, words):
-    pts = _scan(0.012, 0.015, 0.0, 0.0, 0.0, np.random.default_rng(1), n_phi=24, n_z=5)
+    pts = measured_cylinder_points(0.012, 0.015, 0.0, 0.0, 0.0, np.random.default_rng(1), n_phi=24, n_z=5)
     np.savetxt(tmp_path / "c.csv", pts * 1e3, delimiter=",", header="x,y,z", comments="")
     text = _scene("c.csv", extra).replace('form = "cylinder"\n', "") if "form" in extra else _scene("c.csv", extra)
     (tmp_path / "s.toml").write_text(text)
@@ -284,7 +273,7 @@ def test_bad_cylinder_keys_exit_2(tmp_path, extra, words):
 
 
 def test_a_cylinder_without_end_face_points_is_refused(tmp_path):
-    pts = _scan(0.012, 0.015, 0.0, 0.0, 0.0, np.random.default_rng(1), n_phi=24, n_z=5)
+    pts = measured_cylinder_points(0.012, 0.015, 0.0, 0.0, 0.0, np.random.default_rng(1), n_phi=24, n_z=5)
     side = pts[np.abs(pts[:, 2]) < 0.0149]
     np.savetxt(tmp_path / "c.csv", np.vstack([side, pts[pts[:, 2] > 0.0149]]) * 1e3, delimiter=",", header="x,y,z",
                comments="")
@@ -305,7 +294,7 @@ def test_a_heated_measured_cylinder_keeps_its_fit_scaled(tmp_path):
     from truepull.geometry.scene import load_scene_text
     from truepull.integrate.balance.sensitivity import ideal_form
 
-    pts = _scan(0.012, 0.015, 2e-3, 1e-3, 0.0, np.random.default_rng(1), n_phi=24, n_z=5)
+    pts = measured_cylinder_points(0.012, 0.015, 2e-3, 1e-3, 0.0, np.random.default_rng(1), n_phi=24, n_z=5)
     np.savetxt(tmp_path / "c.csv", pts * 1e3, delimiter=",", header="x,y,z", comments="")
     alpha = 1.65e-5
     cold_text = _scene("c.csv", f'fit_degree = [2, 1]\nexpansion = "{alpha} 1/K"').replace("at = [40, 0, 0]", "at = [0, 0, 0]")

@@ -81,6 +81,20 @@ class InputRef:
     value: float
     u: float
     unit: str
+    direction: tuple[float, ...] | None = None
+    """kind "form": the change of the body's fit coefficients per unit of the input (form_modes.FormMode)"""
+
+
+def form_inputs(scene, method: str, nodes, test: str = "pendulum",
+                source: str = "attractor") -> tuple[tuple[InputRef, ...], tuple[str, ...]]:
+    """The measured forms' fit uncertainty as independent inputs (form_modes.py): one per mode, value 0,
+    u the mode's rms surface displacement (m); and a note per measured body."""
+    from truepull.integrate.balance.form_modes import form_modes
+
+    bodies = form_modes(scene, method, nodes, test, source)
+    refs = tuple(InputRef(f"body[{m.body}].form.mode{m.index + 1}", "form", m.body, str(m.index), 0.0, m.u, "m",
+                          m.direction) for b in bodies for m in b.modes)
+    return refs, tuple(_form_note(b) for b in bodies)
 
 
 def uncertain_inputs(scene, test: str = "pendulum", source: str = "attractor",
@@ -132,6 +146,7 @@ def _measured_positions(scene) -> set[str]:
 def apply_inputs(scene, refs, x) -> tuple[object, dict[str, float]]:
     """(scene with the body and position inputs set to x, {measurement name: value})."""
     specs: dict[str, object] = {}
+    forms: dict[str, np.ndarray] = {}
     positions = {p.name: p for p in scene.positions}
     measured: dict[str, float] = {}
     frame = scene.frame
@@ -149,6 +164,9 @@ def apply_inputs(scene, refs, x) -> tuple[object, dict[str, float]]:
                 spec = specs.get(b.name, b.spec)
                 if spec is not None and spec.temperature is not None:
                     specs[b.name] = replace(spec, temperature=Measured(value, spec.temperature.u))
+        elif ref.kind == "form":
+            change = value * np.asarray(ref.direction, float)
+            forms[ref.target] = forms[ref.target] + change if ref.target in forms else change
         elif ref.kind == "rotate":
             spec = specs.get(ref.target, scene.body(ref.target).spec)
             specs[ref.target] = replace(spec, rotate_angle=Measured(value, spec.rotate_angle.u))
@@ -163,6 +181,11 @@ def apply_inputs(scene, refs, x) -> tuple[object, dict[str, float]]:
             positions[ref.target] = replace(p, shift=tuple(shift))
         else:
             measured[ref.param] = value
+    for name, change in forms.items():
+        spec = specs.get(name, scene.body(name).spec)
+        if np.any(change):
+            shape = spec.mesh
+            specs[name] = replace(spec, mesh=shape.with_coefficients(shape.form.fit.coefficients + change))
     bodies = tuple(build_body(specs[b.name]) if b.name in specs else b for b in scene.bodies)
     new = replace(scene, bodies=bodies, positions=tuple(positions[p.name] for p in scene.positions), frame=frame)
     return new, measured
@@ -370,8 +393,11 @@ def reduction_budget(scene, reduction: Reduction, scene_text: str, *, test: str 
         raise InputError(scene.path, "--samples", f"must be a whole number of at least 0, got {samples!r}")
     if not mc_rtol > 0:
         raise InputError(scene.path, "--mc-rtol", "the tolerance must be greater than zero")
-    refs = uncertain_inputs(scene, test, source, fiber_q)
-    notes = []
+    q = None if fiber_q is None else (fiber_q.value, fiber_q.u)
+    nodes = budget_nodes(scene, reduction, q)
+    form_refs, form_notes = form_inputs(scene, reduction.method, nodes, test, source)
+    refs = uncertain_inputs(scene, test, source, fiber_q) + form_refs
+    notes = list(form_notes)
     if not refs:
         return Budget(None, None, (), None, None, mc_rtol,
                       ("the scene states no uncertainties (write values as '12.7 +- 0.01'), so there is no budget",))
@@ -380,10 +406,9 @@ def reduction_budget(scene, reduction: Reduction, scene_text: str, *, test: str 
     if others:
         notes.append(f"uncertainties of bodies outside the {test} and {source} groups do not change G: "
                      f"{', '.join(others)}")
-    q = None if fiber_q is None else (fiber_q.value, fiber_q.u)
     chosen = scene.measurement.method if len(scene.measurements) > 1 else None
     context = ModelContext(scene_text, scene.path or "-", scene.base_dir, test, source, reduction.rtol, refs,
-                           budget_nodes(scene, reduction, q), reduction.state, q, chosen)
+                           nodes, reduction.state, q, chosen)
     inputs = [Input(r.name, r.value, r.u, r.unit) for r in refs]
     steps = [STEP_FRACTION * r.u for r in refs]
     rel_noise = max(reduction.numerical_error / abs(reduction.G), 1e-14)
@@ -417,6 +442,15 @@ def reduction_budget(scene, reduction: Reduction, scene_text: str, *, test: str 
         notes.extend(_mc_notes(mc, run))
     return Budget(gum.u_c, gum.u_c_error, rows, gum.value, mc, mc_rtol, tuple(notes), run, mc_seconds,
                   check_seconds, tuple(r.name for r in refs))
+
+
+def _form_note(b) -> str:
+    k = len(b.modes)
+    return (f"the measured form of '{b.body}' enters as {k} independent modes (form.mode1..{k}) of its {b.coefficients} "
+            "fitted coefficients' covariance, carrying the fit's first-order effect on the torques, stiffnesses, "
+            "moment of inertia and volume the reduction uses (layer integrals over the fitted surface; at most "
+            f"{b.lost:.1g} of the form's variance in G estimated outside them); each is a surface displacement "
+            "whose u is its rms over the surface")
 
 
 def _mc_notes(mc, run) -> list[str]:
