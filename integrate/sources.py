@@ -125,12 +125,16 @@ class SourceField:
         return self._closed(U, g)
 
     def poly(self):
-        """The mesh's PolyhedronData (built once)."""
+        """The mesh's PolyhedronData, in the shape's own frame: built once per shape and kept in its cache,
+        so every pose of a body (a new Body each) shares it."""
         if self._poly is None:
             from truepull.integrate.field_polyhedron import PolyhedronData
 
-            b = self.body
-            self._poly = PolyhedronData(np.asarray(b.shape.vertices, float), np.asarray(b.shape.faces))
+            shape = self.body.shape
+            cache = shape._props
+            if "polyhedron_data" not in cache:
+                cache["polyhedron_data"] = PolyhedronData(np.asarray(shape.vertices, float), np.asarray(shape.faces))
+            self._poly = cache["polyhedron_data"]
         return self._poly
 
     def _frame_shift(self, points):

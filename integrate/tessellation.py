@@ -21,10 +21,15 @@ def coarse_body(body):
 
 
 def fine_body(body):
-    """The body with its mesh's coarse tessellation dropped (so the engine treats it as one polyhedron)."""
-    if getattr(body.shape, "coarse", None) is None:
+    """The body with its mesh's coarse tessellation dropped (so the engine treats it as one polyhedron); the
+    fine-only shape is kept in the shape's cache, so every pose shares it (and its polyhedron data)."""
+    shape = body.shape
+    if getattr(shape, "coarse", None) is None:
         return body
-    return replace(body, shape=replace(body.shape, coarse=None))
+    fine = shape._props.get("fine_only")
+    if fine is None:
+        fine = shape._props["fine_only"] = replace(shape, coarse=None)
+    return replace(body, shape=fine)
 
 
 def tessellated_pair(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10, tol=None):
