@@ -402,45 +402,32 @@ def measured_cylinder_points(R, H, eps, tau, noise, rng, n_phi=48, n_z=13, rings
     return np.vstack(rows)
 
 
-def measured_ball_scene(csv: str, fit_degree: int = 3, period: str = "512.0 s", form: str = "") -> str:
-    """A small balance whose east bob is the measured ball of `csv` (mm; with form = 'cylinder' a measured
-    cylinder, fit_degree then '[M, K]'); deflection at turns +-35 deg."""
+def measured_ball_scene(csv: str, fit_degree=3, period: str = "512.0 s", form: str = "",
+                        measured: str = "bob-east") -> str:
+    """A small balance with one measured body, the `csv` (mm) as `measured` ("bob-east", a 10 mm pendulum
+    ball, or "lead-a", a 25 mm attractor ball; with form = 'cylinder' a measured cylinder, fit_degree
+    then '[M, K]'); deflection at turns +-35 deg."""
     form_line = f'form = "{form}"' if form else ""
+
+    def ball(name, group, radius, density, x):
+        if name == measured:
+            kind = f'shape = "mesh"\nfile = "{csv}"\n{form_line}\nfit_degree = {fit_degree}'
+        else:
+            kind = f'shape = "sphere"\nradius = {radius}'
+        return f"""[[body]]
+name = "{name}"
+group = "{group}"
+{kind}
+density = {density}
+at = [{x}, 0, 0]
+"""
+    bodies = (ball("bob-east", "pendulum", 10, 18.0, 40) + ball("bob-west", "pendulum", 10, 18.0, -40)
+              + ball("lead-a", "attractor", 25, 11.34, 70) + ball("lead-b", "attractor", 25, 11.34, -70))
     return f"""[units]
 length = "mm"
 density = "g/cm^3"
 angle = "deg"
-[[body]]
-name = "bob-east"
-group = "pendulum"
-shape = "mesh"
-file = "{csv}"
-{form_line}
-fit_degree = {fit_degree}
-density = 18.0
-at = [40, 0, 0]
-[[body]]
-name = "bob-west"
-group = "pendulum"
-shape = "sphere"
-radius = 10
-density = 18.0
-at = [-40, 0, 0]
-[[body]]
-name = "lead-a"
-group = "attractor"
-shape = "sphere"
-radius = 25
-density = 11.34
-at = [70, 0, 0]
-[[body]]
-name = "lead-b"
-group = "attractor"
-shape = "sphere"
-radius = 25
-density = 11.34
-at = [-70, 0, 0]
-[[position]]
+{bodies}[[position]]
 name = "A"
 group = "attractor"
 turn = 35

@@ -85,30 +85,36 @@ def _cylinder_csv(path):
     np.savetxt(path, pts * 1e3, delimiter=",", header="x,y,z", comments="")
 
 
-@pytest.mark.parametrize("form", ["sphere", "cylinder"])
+@pytest.mark.parametrize("form", ["sphere", "cylinder", "attractor sphere"])
 def test_modes_carry_the_whole_correlated_propagation(tmp_path, form):
     """u(G) from the budget's form modes against JCGM 100 eq. 13 over every coefficient: the 9 of a degree-2
-    ball fit, the 22 of an order-2, degree-1 cylinder fit (side 5 x 2, faces 6 each); 2 um point noise."""
+    ball fit, the 22 of an order-2, degree-1 cylinder fit (side 5 x 2, faces 6 each), both pendulum bobs
+    with 2 um point noise; and a 25 mm attractor ball (degree 2, 3 um noise: the reaction's sign)."""
     csv = tmp_path / "part.csv"
+    measured = "bob-east"
     if form == "sphere":
         write_measured_ball(csv, 10.0, 1e-3, 0.002)
         text = measured_ball_scene(csv.name, 2)
-    else:
+    elif form == "cylinder":
         _cylinder_csv(csv)
         text = measured_ball_scene(csv.name, "[2, 1]", form="cylinder")
+    else:
+        measured = "lead-a"
+        write_measured_ball(csv, 25.0, 1e-3, 0.003, n=800)
+        text = measured_ball_scene(csv.name, 2, measured=measured)
     path = str(tmp_path / "s.toml")
     scene = load_scene_text(text, path, str(tmp_path))
     red = reduce_measurement(scene, rtol=1e-9)
     budget = rb.reduction_budget(scene, red, text, samples=0)
     rows = [r for r in budget.rows if ".form.mode" in r["input"]]
-    assert rows and any("measured form of 'bob-east'" in n for n in budget.notes)
+    assert rows and any(f"measured form of '{measured}'" in n for n in budget.notes)
     u_modes = math.sqrt(sum(r["contribution"] ** 2 for r in rows))
     lost = float(next(n for n in budget.notes if "measured form" in n).split("at most ")[1].split(" ")[0])
 
-    fit = scene.body("bob-east").shape.form.fit
+    fit = scene.body(measured).shape.form.fit
     n = fit.coefficients.size
     std = np.sqrt(np.diag(fit.covariance))
-    refs = tuple(rb.InputRef(f"c{i}", "form", "bob-east", str(i), 0.0, std[i], "m", tuple(np.eye(n)[i]))
+    refs = tuple(rb.InputRef(f"c{i}", "form", measured, str(i), 0.0, std[i], "m", tuple(np.eye(n)[i]))
                  for i in range(n))
     context = rb.ModelContext(text, path, str(tmp_path), "pendulum", "attractor", 1e-9, refs,
                               rb.budget_nodes(scene, red), red.state, None)
