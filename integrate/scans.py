@@ -303,14 +303,59 @@ def _check_values(run, values, workers, scheduler, progress):
     return [first] + map_parallel(run, values[1:], workers=workers, progress=progress, desc="checking multipoles")
 
 
+def _job_row(item) -> ScanRow:
+    job, value = item
+    return direct_row(job, value)
+
+
+def _interpolated_rows(scene, sweep, job, position, workers, scheduler, progress):
+    """((rows, checks), note) of the interpolated route (sweep_interpolation.py), or (None, why not)."""
+    from truepull.integrate import sweep_interpolation as si
+
+    values = np.asarray(sweep.values, float)
+    points = si.lobatto_points(float(values.min()), float(values.max()), si.DEGREE)
+    extra = si.check_values(values, points)
+    items = [(job, float(x)) for x in points] + [(job, x) for x in extra]
+    done = map_parallel(_job_row, items, workers=workers, scheduler=scheduler, progress=progress,
+                        desc=f"{sweep.kind} of {sweep.group} at {len(points)} Chebyshev points")
+    at_points, direct = done[:len(points)], done[len(points):]
+    if any(r.overlap for r in at_points):
+        return None, "the bodies overlap at a Chebyshev point of the range"
+    if not all(r.reached for r in at_points):
+        return None, "the engine missed its tolerance at a Chebyshev point"
+    found = si.interpolate_sweep(values, at_points, points, job.rtol)
+    if found is None:
+        return None, (f"the Chebyshev series through {len(points)} points does not fall to {si.TAIL_SHARE:g} of the "
+                      "tolerance")
+    y, err = found
+    point_tau, point_K = point_values_sweep(scene, sweep, job.test, job.source, position)
+    rows = tuple(ScanRow(float(v), float(t[0]), float(pt), float(t[1]), t[2:].copy(), float(e[0]), float(e[1]),
+                         float(e[2]), True, point_stiffness_axis=float(pk))
+                 for v, t, e, pt, pk in zip(values, y, err, point_tau, point_K))
+    checks = []
+    for d in direct:
+        i = int(np.argmin(np.abs(values - d.value)))
+        allowed = 2.0 * (rows[i].error_torque_axis + d.error_torque_axis) + 64 * np.finfo(float).eps * abs(d.exact_torque_axis)
+        checks.append(CheckResult(d.value, rows[i].exact_torque_axis, d.exact_torque_axis, allowed))
+    bad = [c for c in checks if not c.agrees]
+    if bad or any(d.overlap or not d.reached for d in direct):
+        return None, "the interpolant disagreed with direct integration at a check value"
+    return (rows, tuple(checks)), (f"every value interpolated through {len(points)} Chebyshev points of the range "
+                                   f"(estimate: twice the series' tail from its decay, plus the engine's error times "
+                                   f"{si.lebesgue_bound(si.DEGREE):.3g}, the Lebesgue constant); checked against direct "
+                                   f"integration at {len(checks)} value(s)")
+
+
 def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor", position=None,
          rtol: float = 1e-9, workers: int | None = None, scheduler=None, progress: bool = False,
-         scene_path: str | None = None, multipoles: bool = True, checks: int = DEFAULT_CHECKS) -> ScanResult:
+         scene_path: str | None = None, multipoles: bool = True, checks: int = DEFAULT_CHECKS,
+         interpolate: bool = True) -> ScanResult:
     """Sweep `sweep` and return one row per value (see the module docstring).
 
     scene_path: when given, worker processes re-load the scene from this file (it must be the file
     `scene` was loaded from); otherwise the scene itself is sent to them. multipoles: allow the fast
-    path; checks: how many sweep values are also integrated directly to check it."""
+    path; checks: how many sweep values are also integrated directly to check it; interpolate: allow
+    the interpolated route of a long direct sweep (sweep_interpolation.py)."""
     if not rtol > 0:
         raise InputError(scene.path, "--rtol", "the tolerance must be greater than zero")
     if sweep.group not in scene.groups():
@@ -355,6 +400,15 @@ def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor",
             worst = max(bad, key=lambda c: abs(c.multipole - c.direct) / max(c.allowed, 1e-300))
             notes.append(f"multipole series disagreed with direct integration at {_show(sweep, worst.value)} "
                          f"({worst.multipole:.10g} against {worst.direct:.10g} N m); every value integrated directly")
+    from truepull.integrate import sweep_interpolation
+
+    if interpolate and sweep_interpolation.worth_it(len(sweep.values)):
+        found, why = _interpolated_rows(scene, sweep, job, position, workers, scheduler, progress)
+        if found is not None:
+            rows, checked = found
+            notes.append(why)
+            return ScanResult(sweep, test, source, rows, "interpolated", None, checked, tuple(notes))
+        notes.append(f"interpolation in the {sweep.kind} not used: {why}; every value integrated directly")
     rows = map_parallel(run, list(sweep.values), workers=workers, scheduler=scheduler, progress=progress,
                         desc=f"{sweep.kind} of {sweep.group}")
     overlaps = [r for r in rows if r.overlap]
