@@ -172,3 +172,25 @@ def test_bad_sweeps_are_refused():
         scan(sc, Sweep("turn", (0.0,), "attractor"), rtol=0.0)
     with pytest.raises(InputError):
         scan(sc, Sweep("turn", (0.0,), "attractor"), position="nowhere")
+
+
+def test_turn_scan_of_a_measured_ball_carries_its_chord_error():
+    """A measured form whose points lie on the exact sphere (scene_fixtures.MEASURED_BALL): on the
+    multipole path each row's torque error estimate, which now holds the change against the coarser
+    tessellation, bounds the true error against Newton's law (the exact ball pulls as a point: shell
+    theorem); the estimate without that change does not, and the rows past the tolerance say so."""
+    from scene_fixtures import measured_ball_scene
+
+    sc, test, source = measured_ball_scene(G)
+    values = tuple(math.radians(d) for d in range(0, 180, 20))
+    res = scan(sc, Sweep("turn", values), rtol=1e-9, workers=1, checks=1)
+    assert res.method == "multipole", res.notes
+    assert res.checks and res.checks[0].agrees          # direct pairs carry the same chord change
+    base = res.series.errors(tessellation=False)["torque_axis"]
+    true = np.array([abs(r.exact_torque_axis - _newton_torque(test, source, _rot(r.value))[0]) for r in res.rows])
+    est = np.array([r.error_torque_axis for r in res.rows])
+    assert np.all(true <= est)                          # reference: Newton's point law (shell theorem)
+    assert true.max() > 10 * base                       # the chord error is what the old estimate missed
+    assert true.max() > 0.1 * est.max()                 # and not a vast overestimate
+    assert not res.reached and any("tessellation" in n and "not reached" in n for n in res.notes)
+    assert all(r.reached for r in scan(sc, Sweep("turn", values[1:3]), rtol=1e-6, workers=1, checks=0).rows)
