@@ -89,6 +89,8 @@ def series_change(G, frame, test_bodies, source_bodies, inner, outer, L: int, mo
     tess_s = [is_tessellated(b) for b in source_bodies]
     if not (any(tess_t) or any(tess_s)):
         return None
+    if len(inner.per_body) != len(test_bodies) or len(outer.per_body) != len(source_bodies):
+        raise ValueError("series_change needs each body's moments (inner_moments / outer_moments with keep=True)")
     fine_a = [full_m(v[:L + 1, :L + 1]) for v in inner.per_body]
     fine_b = [full_m(v[:L + 1, :L + 1]) for v in outer.per_body]
     coarse_a, coarse_b, reached, notes = list(fine_a), list(fine_b), True, []

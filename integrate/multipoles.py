@@ -46,7 +46,7 @@ import numpy as np
 from truepull.geometry.placement import rotation_z_to
 from truepull.integrate import separation
 from truepull.integrate.flux_rules import KINDS as SURFACE_KINDS, flux_nodes
-from truepull.integrate.multipole_tessellation import series_change
+from truepull.integrate.multipole_tessellation import is_tessellated, series_change
 from truepull.integrate.solid_harmonics import full_m, weighted_sum
 from truepull.integrate.volume_rules import body_nodes, node_count, polynomial_orders, rule_kind
 
@@ -336,8 +336,8 @@ def body_outer_moments(body, frame: ExpansionFrame, L: int, rtol: float = 1e-12)
         growth *= 1.5
 
 
-def inner_moments(bodies, frame: ExpansionFrame, L: int) -> Moments:
-    """Summed inner moments of a group of bodies (exact rules)."""
+def inner_moments(bodies, frame: ExpansionFrame, L: int, keep: bool = False) -> Moments:
+    """Summed inner moments of a group of bodies (exact rules); `keep`: each body's own in `per_body`."""
     v = np.zeros((L + 1, L + 1), complex)
     e = np.zeros((L + 1, L + 1))
     each = []
@@ -345,13 +345,15 @@ def inner_moments(bodies, frame: ExpansionFrame, L: int) -> Moments:
         bv, be = body_inner_moments(b, frame, L)
         v += bv
         e += be
-        each.append(bv)
+        if keep:
+            each.append(bv)
     parts = tuple((abs(float(b.mass)), inner_reach(b, frame.pivot)) for b in bodies)
     return Moments("inner", v, e, parts, per_body=tuple(each))
 
 
-def outer_moments(bodies, frame: ExpansionFrame, L: int, rtol: float = 1e-12) -> Moments:
-    """Summed outer moments of a group of bodies (closed forms or converged rules)."""
+def outer_moments(bodies, frame: ExpansionFrame, L: int, rtol: float = 1e-12, keep: bool = False) -> Moments:
+    """Summed outer moments of a group of bodies (closed forms or converged rules); `keep`: each body's
+    own in `per_body`."""
     v = np.zeros((L + 1, L + 1), complex)
     e = np.zeros((L + 1, L + 1))
     reached = True
@@ -361,7 +363,8 @@ def outer_moments(bodies, frame: ExpansionFrame, L: int, rtol: float = 1e-12) ->
         bv, be, ok = body_outer_moments(b, frame, L, rtol)
         v += bv
         e += be
-        each.append(bv)
+        if keep:
+            each.append(bv)
         if not ok:
             reached = False
             notes.append(f"outer moments of '{b.name}' did not converge to {rtol:g} within {MAX_NODES} nodes")
@@ -602,7 +605,8 @@ def interaction_series(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, de
                 f"the series converges too slowly (pendulum reach / attractor clearance = {a / b:.4f}): "
                 f"after degree {MAX_DEGREE} the torque error bound is still {bound:.3g} N m, above the target "
                 f"{target:.3g} N m")
-    inner = inner_moments(test_bodies, frame, degree)
+    keep = any(map(is_tessellated, (*test_bodies, *source_bodies)))  # per-body moments for the chord change
+    inner = inner_moments(test_bodies, frame, degree, keep)
     # outer-moment tolerance: their errors enter the torque through G |m| |a_lm| (per unit of b_lm)
     l = np.arange(degree + 1)
     weight = G * np.sum(np.abs(full_m(inner.values)) * np.abs(np.arange(-degree, degree + 1))[None, :], axis=1)
@@ -610,7 +614,7 @@ def interaction_series(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, de
     exposure = float(np.sum(weight * size))
     moment_rtol = 0.25 * target / exposure if exposure > 0 else 1e-12
     moment_rtol = min(max(moment_rtol, 1e-15), 1e-6)
-    outer = outer_moments(source_bodies, frame, degree, moment_rtol)
+    outer = outer_moments(source_bodies, frame, degree, moment_rtol, keep)
     change = series_change(G, frame, test_bodies, source_bodies, inner, outer, degree, moment_rtol)
     return MultipoleSeries.build(G, frame, inner, outer, degree, change)
 
@@ -626,14 +630,15 @@ def moments_table(scene, degree: int, test: str = "pendulum", source: str = "att
     frame = ExpansionFrame.of(sc.frame.pivot, sc.frame.axis)
     tb, sb = sc.group(test), sc.group(source)
     sep = regions(tb, sb, frame.pivot, frame.rotation[:, 2])
-    inner = inner_moments(tb, frame, degree)
+    keep = any(map(is_tessellated, (*tb, *sb)))
+    inner = inner_moments(tb, frame, degree, keep)
     out = {"degree": degree, "test": test, "source": source, "position": sc.position if position else None,
            "pivot": frame.pivot, "axis": frame.rotation[:, 2], "inner_radius": sep.inner_radius,
            "outer_radius": sep.outer_radius, "valid": sep.ok, "reason": sep.reason, "by_centres": sep.by_centres,
            "inner": inner, "outer": None, "outer_reason": ""}
     out["series"] = None
     try:
-        out["outer"] = outer_moments(sb, frame, degree, rtol)
+        out["outer"] = outer_moments(sb, frame, degree, rtol, keep)
     except MultipoleRefused as exc:
         out["outer_reason"] = exc.reason
     if sep.ok and out["outer"] is not None:
