@@ -541,7 +541,8 @@ class MultipoleSeries:
             "force": self.bounds.force + float(np.sqrt(np.sum(np.sum(self.force_err_c, axis=1) ** 2))),
         }
         if tessellation and self.tessellation is not None:
-            out = {k: v + self.tessellation.uniform()[k] for k, v in out.items()}
+            chord = self.tessellation.uniform()
+            out = {k: v + chord[k] for k, v in out.items()}
         return out
 
     def errors_at(self, phi) -> dict:
