@@ -8,8 +8,9 @@ also formed on its coarse shape, and the pair's energy and force coefficients (`
 on the coarse shapes are subtracted from those on the fine ones. At a turn phi (rad) each pair's
 change in torque, stiffness, force and energy is evaluated from those coefficients and the absolute
 changes are summed over the pairs (SI: N m, N m/rad, N (Euclidean norm), J). Both series are cut at
-the same degree L; the coarse bodies' truncation bound (their own reach and clearance) is added, so
-the change of the untruncated pair is bounded by what is reported.
+the same degree L; the coarse bodies' truncation bound (their own reach and clearance) joins the
+series' truncation bounds (`MultipoleSeries.bounds`), so the change of the untruncated pair is
+bounded by what is reported.
 """
 
 from __future__ import annotations
@@ -46,34 +47,29 @@ class SeriesChange:
 
     def at(self, phi) -> dict:
         """Summed |change| over the pairs at each turn phi (rad) of the source: arrays (N,) for
-        "energy", "torque_axis", "stiffness_axis", "force" (the coarse truncation bound included)."""
+        "energy", "torque_axis", "stiffness_axis", "force" (the coarse truncation bound not included)."""
         phase = np.exp(-1j * np.outer(np.atleast_1d(np.asarray(phi, float)), self.m))  # (N, 2L+1)
         m = self.m
         energy = np.abs((phase @ self.energy_c.T).real)                       # (N, P)
         torque = np.abs((phase @ (-1j * m * self.energy_c).T).real)
         stiffness = np.abs((phase @ (-(m ** 2) * self.energy_c).T).real)
         force = np.linalg.norm(np.einsum("nm,pkm->npk", phase, self.force_c).real, axis=2)
-        return {"energy": energy.sum(axis=1) + self.tails["energy"],
-                "torque_axis": torque.sum(axis=1) + self.tails["torque_axis"],
-                "stiffness_axis": stiffness.sum(axis=1) + self.tails["stiffness_axis"],
-                "force": force.sum(axis=1) + self.tails["force"]}
+        return {"energy": energy.sum(axis=1), "torque_axis": torque.sum(axis=1),
+                "stiffness_axis": stiffness.sum(axis=1), "force": force.sum(axis=1)}
 
     def uniform(self) -> dict:
         """Bounds of `at` over every turn: sum over pairs and m of |m|^k |coefficient| (k = 0, 1, 2)."""
         m = np.abs(self.m)
         e = np.abs(self.energy_c)
         f = np.sqrt(np.sum(np.sum(np.abs(self.force_c), axis=2) ** 2, axis=1))  # per pair, |sum_m| <= sum_m |.|
-        return {"energy": float(e.sum()) + self.tails["energy"],
-                "torque_axis": float((m * e).sum()) + self.tails["torque_axis"],
-                "stiffness_axis": float((m * m * e).sum()) + self.tails["stiffness_axis"],
-                "force": float(f.sum()) + self.tails["force"]}
+        return {"energy": float(e.sum()), "torque_axis": float((m * e).sum()),
+                "stiffness_axis": float((m * m * e).sum()), "force": float(f.sum())}
 
     def harmonic_errors(self) -> np.ndarray:
         """(L,) the change of the torque's cos and sin coefficients C_m, S_m for m = 1..L (N m): each
-        bounded by 2 m sum over pairs |energy change_m| (`MultipoleSeries.torque_harmonics`), plus the
-        coarse truncation bound."""
+        bounded by 2 m sum over pairs |energy change_m| (`MultipoleSeries.torque_harmonics`)."""
         k = np.arange(1, self.L + 1)
-        return 2.0 * k * np.abs(self.energy_c[:, self.L + k]).sum(axis=0) + self.tails["torque_axis"]
+        return 2.0 * k * np.abs(self.energy_c[:, self.L + k]).sum(axis=0)
 
 
 def series_change(G, frame, test_bodies, source_bodies, inner, outer, L: int, moment_rtol: float):

@@ -504,6 +504,10 @@ class MultipoleSeries:
         # rounding of the sums themselves
         energy_err = energy_err + 64 * EPS * G * np.sum(np.abs(A * B), axis=0)
         bounds = truncation_bounds(G, inner, outer, L)
+        if tessellation is not None:  # the coarse pairs' own truncation, for their change
+            t = tessellation.tails
+            bounds = TruncationBounds(bounds.energy + t["energy"], bounds.torque + t["torque_axis"],
+                                      bounds.stiffness + t["stiffness_axis"], bounds.force + t["force"])
         notes = inner.notes + outer.notes + (tessellation.notes if tessellation is not None else ())
         return MultipoleSeries(G, L, frame, inner, outer, energy_c, force_c, energy_err, force_err, bounds, notes,
                                tessellation)
