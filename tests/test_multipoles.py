@@ -3,7 +3,8 @@
 Outside references: scipy.special.sph_harm_y (spherical harmonics) and eval_legendre; the addition
 theorem for 1/|x - y| (closed form); Newton's law for point masses (computed here); the standard moments
 of inertia of the cylinder and the box (from memory); scipy.integrate.tplquad as a brute-force reference for
-volume integrals; and direct integration by the engine (compare_groups) for extended bodies.
+volume integrals; and direct integration by the engine (compare_groups) for extended bodies. A measured
+ball on the exact sphere pulls as a point (shell theorem): numpy.fft of Newton's torque for its harmonics.
 """
 
 from __future__ import annotations
