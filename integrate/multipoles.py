@@ -32,6 +32,8 @@ b the attractor's nearest approach to the pivot), it is a trigonometric polynomi
 the turn, so Bernstein's inequality bounds its first and second derivatives by l and l^2 times
 that; the force part by sqrt(2) l G M_p M_a a^(l-1) / b^(l+1). Inner moments are exact (polynomial
 integrands, exact rules); outer moments converge spectrally and carry a refinement estimate.
+A tessellated part (STEP, measured form) adds its change against the coarser tessellation, pair by
+pair as the pair engine does (`multipole_tessellation`).
 """
 
 from __future__ import annotations
@@ -44,6 +46,7 @@ import numpy as np
 from truepull.geometry.placement import rotation_z_to
 from truepull.integrate import separation
 from truepull.integrate.flux_rules import KINDS as SURFACE_KINDS, flux_nodes
+from truepull.integrate.multipole_tessellation import is_tessellated, series_change
 from truepull.integrate.solid_harmonics import full_m, weighted_sum
 from truepull.integrate.volume_rules import body_nodes, node_count, polynomial_orders, rule_kind
 
@@ -220,6 +223,8 @@ class Moments:
     parts: tuple[tuple[float, float], ...]
     reached: bool = True
     notes: tuple[str, ...] = ()
+    per_body: tuple[np.ndarray, ...] = ()
+    """Each body's own moments (same layout as `values`), in the group's order, or () if not kept."""
 
     @property
     def degree(self) -> int:
@@ -239,7 +244,7 @@ class Moments:
 
     def truncated(self, L: int) -> "Moments":
         return Moments(self.kind, self.values[:L + 1, :L + 1].copy(), self.errors[:L + 1, :L + 1].copy(),
-                       self.parts, self.reached, self.notes)
+                       self.parts, self.reached, self.notes, tuple(v[:L + 1, :L + 1] for v in self.per_body))
 
     def display(self) -> tuple[np.ndarray, np.ndarray]:
         """(q or Q, errors) in the orthonormal-Y_lm convention: (L+1, 2L+1) complex over m = -L..L."""
@@ -331,33 +336,40 @@ def body_outer_moments(body, frame: ExpansionFrame, L: int, rtol: float = 1e-12)
         growth *= 1.5
 
 
-def inner_moments(bodies, frame: ExpansionFrame, L: int) -> Moments:
-    """Summed inner moments of a group of bodies (exact rules)."""
+def inner_moments(bodies, frame: ExpansionFrame, L: int, keep: bool = False) -> Moments:
+    """Summed inner moments of a group of bodies (exact rules); `keep`: each body's own in `per_body`."""
     v = np.zeros((L + 1, L + 1), complex)
     e = np.zeros((L + 1, L + 1))
+    each = []
     for b in bodies:
         bv, be = body_inner_moments(b, frame, L)
         v += bv
         e += be
+        if keep:
+            each.append(bv)
     parts = tuple((abs(float(b.mass)), inner_reach(b, frame.pivot)) for b in bodies)
-    return Moments("inner", v, e, parts)
+    return Moments("inner", v, e, parts, per_body=tuple(each))
 
 
-def outer_moments(bodies, frame: ExpansionFrame, L: int, rtol: float = 1e-12) -> Moments:
-    """Summed outer moments of a group of bodies (closed forms or converged rules)."""
+def outer_moments(bodies, frame: ExpansionFrame, L: int, rtol: float = 1e-12, keep: bool = False) -> Moments:
+    """Summed outer moments of a group of bodies (closed forms or converged rules); `keep`: each body's
+    own in `per_body`."""
     v = np.zeros((L + 1, L + 1), complex)
     e = np.zeros((L + 1, L + 1))
     reached = True
     notes = []
+    each = []
     for b in bodies:
         bv, be, ok = body_outer_moments(b, frame, L, rtol)
         v += bv
         e += be
+        if keep:
+            each.append(bv)
         if not ok:
             reached = False
             notes.append(f"outer moments of '{b.name}' did not converge to {rtol:g} within {MAX_NODES} nodes")
     parts = tuple((abs(float(b.mass)), outer_clearance(b, frame.pivot)) for b in bodies)
-    return Moments("outer", v, e, parts, reached, tuple(notes))
+    return Moments("outer", v, e, parts, reached, tuple(notes), tuple(each))
 
 
 # ------------------------------------------------------------------------------------------------
@@ -406,7 +418,11 @@ def _pair_tails(G, inner_parts, outer_parts, L: int, power: int, shift: int = 0)
 
 def truncation_bounds(G, inner: Moments, outer: Moments, L: int) -> TruncationBounds:
     """Rigorous bounds on the terms beyond degree L, summed over body pairs (module docstring)."""
-    ip, op = inner.parts, outer.parts
+    return parts_truncation_bounds(G, inner.parts, outer.parts, L)
+
+
+def parts_truncation_bounds(G, ip, op, L: int) -> TruncationBounds:
+    """`truncation_bounds` from the (|mass| kg, radius m) parts of the inner and outer bodies."""
     return TruncationBounds(energy=_pair_tails(G, ip, op, L, 0), torque=_pair_tails(G, ip, op, L, 1),
                             stiffness=_pair_tails(G, ip, op, L, 2),
                             force=math.sqrt(2.0) * _pair_tails(G, ip, op, L, 1, shift=1))
@@ -442,6 +458,14 @@ def _ladder(A: np.ndarray):
     return 0.5 * (dp + dm), (dp - dm) / 2j, dz
 
 
+def series_coefficients(G, A: np.ndarray, B: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Energy (2L+1,) J and force (3, 2L+1) N (frame axes) coefficients over m = -L..L of inner
+    moments A and outer moments B, both (L+1, 2L+1) over m (`full_m`): W(phi) = sum_m E_m e^{-i m phi}."""
+    energy_c = -G * np.sum(A * np.conj(B), axis=0)
+    force_c = np.array([G * np.sum(g * np.conj(B), axis=0) for g in _ladder(A)])
+    return energy_c, force_c
+
+
 @dataclass(frozen=True, eq=False)
 class MultipoleSeries:
     """Interaction of an inner group (pendulum) and an outer group (attractor) as a Fourier series in
@@ -459,26 +483,34 @@ class MultipoleSeries:
     force_err_c: np.ndarray
     bounds: TruncationBounds
     notes: tuple[str, ...] = field(default_factory=tuple)
+    tessellation: object = None
+    """The tessellation (chord) change of pairs with a tessellated part (`multipole_tessellation.
+    SeriesChange`), added to every error estimate; None when no body is tessellated."""
 
     @staticmethod
-    def build(G, frame, inner: Moments, outer: Moments, L: int | None = None) -> "MultipoleSeries":
+    def build(G, frame, inner: Moments, outer: Moments, L: int | None = None,
+              tessellation=None) -> "MultipoleSeries":
         L = min(inner.degree, outer.degree) if L is None else L
         A = full_m(inner.truncated(L).values)
         B = full_m(outer.truncated(L).values)
         eA = np.abs(full_m(inner.truncated(L).errors.astype(complex)))
         eB = np.abs(full_m(outer.truncated(L).errors.astype(complex)))
-        energy_c = -G * np.sum(A * np.conj(B), axis=0)
+        energy_c, force_c = series_coefficients(G, A, B)
         energy_err = G * np.sum(np.abs(A) * eB + eA * np.abs(B) + eA * eB, axis=0)
         grads = _ladder(A)
         egrads = _ladder(eA.astype(complex))
-        force_c = np.array([G * np.sum(g * np.conj(B), axis=0) for g in grads])
         force_err = np.array([G * np.sum(np.abs(g) * eB + np.abs(eg) * np.abs(B), axis=0)
                               for g, eg in zip(grads, egrads)])
         # rounding of the sums themselves
         energy_err = energy_err + 64 * EPS * G * np.sum(np.abs(A * B), axis=0)
         bounds = truncation_bounds(G, inner, outer, L)
-        notes = inner.notes + outer.notes
-        return MultipoleSeries(G, L, frame, inner, outer, energy_c, force_c, energy_err, force_err, bounds, notes)
+        if tessellation is not None:  # the coarse pairs' own truncation, for their change
+            t = tessellation.tails
+            bounds = TruncationBounds(bounds.energy + t["energy"], bounds.torque + t["torque_axis"],
+                                      bounds.stiffness + t["stiffness_axis"], bounds.force + t["force"])
+        notes = inner.notes + outer.notes + (tessellation.notes if tessellation is not None else ())
+        return MultipoleSeries(G, L, frame, inner, outer, energy_c, force_c, energy_err, force_err, bounds, notes,
+                               tessellation)
 
     @property
     def m(self) -> np.ndarray:
@@ -502,31 +534,46 @@ class MultipoleSeries:
         f = (self._phase(phi) @ self.force_c.T).real
         return self.frame.vector_to_world(f)
 
-    def errors(self) -> dict:
-        """Absolute error bounds, uniform in phi: truncation bound plus the propagated moment errors."""
+    def errors(self, tessellation: bool = True) -> dict:
+        """Absolute error bounds, uniform in phi: truncation bound plus the propagated moment errors,
+        plus (if `tessellation`) the tessellation change's bound over every turn."""
         m = np.abs(self.m)
-        return {
+        out = {
             "energy": self.bounds.energy + float(np.sum(self.energy_err_c)),
             "torque_axis": self.bounds.torque + float(np.sum(m * self.energy_err_c)),
             "stiffness_axis": self.bounds.stiffness + float(np.sum(m * m * self.energy_err_c)),
             "force": self.bounds.force + float(np.sqrt(np.sum(np.sum(self.force_err_c, axis=1) ** 2))),
         }
+        if tessellation and self.tessellation is not None:
+            chord = self.tessellation.uniform()
+            out = {k: v + chord[k] for k, v in out.items()}
+        return out
+
+    def errors_at(self, phi) -> dict:
+        """Error estimates (N,) at each turn phi (rad): the uniform bounds of `errors(False)` plus the
+        tessellation change at that turn (summed over the pairs, as the pair engine adds it)."""
+        n = len(np.atleast_1d(phi))
+        base = {k: np.full(n, v) for k, v in self.errors(tessellation=False).items()}
+        if self.tessellation is None:
+            return base
+        return {k: v + self.tessellation.at(phi)[k] for k, v in base.items()}
 
     def torque_harmonics(self) -> list[tuple[int, float, float, float]]:
         """The torque about the axis as tau(phi) = sum over m >= 1 of C_m cos(m phi) + S_m sin(m phi)
         (N m; phi the attractor's turn, rad): [(m, C_m, S_m, error of each)], the error being the
         propagated moment errors of that harmonic (the truncation bound `bounds.torque` is shared by
-        all, uniform in phi)."""
+        all, uniform in phi) plus, with a tessellated part, that harmonic's tessellation change."""
+        chord = self.tessellation.harmonic_errors() if self.tessellation is not None else np.zeros(self.L)
         out = []
         for m in range(1, self.L + 1):
             c = -1j * m * self.energy_c[self.L + m]  # tau = sum 2 Re(c_m e^{-i m phi}) over m > 0
-            err = 2.0 * m * float(self.energy_err_c[self.L + m])
+            err = 2.0 * m * float(self.energy_err_c[self.L + m]) + float(chord[m - 1])
             out.append((m, 2.0 * c.real, 2.0 * c.imag, err))
         return out
 
     @property
     def reached(self) -> bool:
-        return self.inner.reached and self.outer.reached
+        return self.inner.reached and self.outer.reached and (self.tessellation is None or self.tessellation.reached)
 
 
 # ------------------------------------------------------------------------------------------------
@@ -563,7 +610,8 @@ def interaction_series(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, de
                 f"the series converges too slowly (pendulum reach / attractor clearance = {a / b:.4f}): "
                 f"after degree {MAX_DEGREE} the torque error bound is still {bound:.3g} N m, above the target "
                 f"{target:.3g} N m")
-    inner = inner_moments(test_bodies, frame, degree)
+    keep = any(map(is_tessellated, (*test_bodies, *source_bodies)))  # per-body moments for the chord change
+    inner = inner_moments(test_bodies, frame, degree, keep)
     # outer-moment tolerance: their errors enter the torque through G |m| |a_lm| (per unit of b_lm)
     l = np.arange(degree + 1)
     weight = G * np.sum(np.abs(full_m(inner.values)) * np.abs(np.arange(-degree, degree + 1))[None, :], axis=1)
@@ -571,8 +619,9 @@ def interaction_series(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, de
     exposure = float(np.sum(weight * size))
     moment_rtol = 0.25 * target / exposure if exposure > 0 else 1e-12
     moment_rtol = min(max(moment_rtol, 1e-15), 1e-6)
-    outer = outer_moments(source_bodies, frame, degree, moment_rtol)
-    return MultipoleSeries.build(G, frame, inner, outer, degree)
+    outer = outer_moments(source_bodies, frame, degree, moment_rtol, keep)
+    change = series_change(G, frame, test_bodies, source_bodies, inner, outer, degree, moment_rtol)
+    return MultipoleSeries.build(G, frame, inner, outer, degree, change)
 
 
 def moments_table(scene, degree: int, test: str = "pendulum", source: str = "attractor",
@@ -586,16 +635,22 @@ def moments_table(scene, degree: int, test: str = "pendulum", source: str = "att
     frame = ExpansionFrame.of(sc.frame.pivot, sc.frame.axis)
     tb, sb = sc.group(test), sc.group(source)
     sep = regions(tb, sb, frame.pivot, frame.rotation[:, 2])
-    inner = inner_moments(tb, frame, degree)
+    keep = any(map(is_tessellated, (*tb, *sb)))
+    inner = inner_moments(tb, frame, degree, keep)
     out = {"degree": degree, "test": test, "source": source, "position": sc.position if position else None,
            "pivot": frame.pivot, "axis": frame.rotation[:, 2], "inner_radius": sep.inner_radius,
            "outer_radius": sep.outer_radius, "valid": sep.ok, "reason": sep.reason, "by_centres": sep.by_centres,
            "inner": inner, "outer": None, "outer_reason": ""}
     out["series"] = None
     try:
-        out["outer"] = outer_moments(sb, frame, degree, rtol)
+        out["outer"] = outer_moments(sb, frame, degree, rtol, keep)
     except MultipoleRefused as exc:
         out["outer_reason"] = exc.reason
     if sep.ok and out["outer"] is not None:
-        out["series"] = MultipoleSeries.build(sc.G.value, frame, inner, out["outer"], degree)
+        try:
+            change = series_change(sc.G.value, frame, tb, sb, inner, out["outer"], degree, rtol)
+        except MultipoleRefused as exc:
+            out["outer_reason"] = exc.reason
+        else:
+            out["series"] = MultipoleSeries.build(sc.G.value, frame, inner, out["outer"], degree, change)
     return out

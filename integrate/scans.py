@@ -8,6 +8,9 @@ when the pendulum lies inside and the attractor outside a sphere about the pivot
 by their centres, when no turn can bring two bodies together; `multipoles.regions`): the torque is
 then a Fourier series in the turn (`multipoles`), checked against direct integration at a few
 values and dropped for direct integration if any check disagrees beyond the two error estimates.
+A tessellated part (STEP, measured form) adds to each row its change against the coarser
+tessellation, as the pairs do (`multipole_tessellation`); a row whose torque error then exceeds
+rtol of the sweep's largest torque is marked not reached.
 Otherwise every value is integrated directly, in parallel (`executor.map_parallel`: local processes
 or a Dask cluster); a worker re-loads the scene from its file when one is given, so only the path
 and the value travel.
@@ -256,7 +259,7 @@ def _multipole_rows(scene, sweep, test, source, position, rtol, point_tau, point
     F = series.force(phi)
     if sweep.group == test:  # the test group turned by v: the configuration is the attractor turned by -v,
         F = np.array([sc.frame.turn(x).apply_vector(f) for x, f in zip(v, F)])  # then everything turned by v
-    err = series.errors()
+    err = series.errors(tessellation=False)
     if max(abs(tau).max(initial=0.0), scale) > 0 and err["torque_axis"] > rtol * max(np.abs(tau).max(), 1e-300) * 4:
         # the actual torque is smaller than the point-model size the degree was chosen for
         series = interaction_series(tb, sb, sc.frame.pivot, sc.frame.axis, sc.G.value, rtol,
@@ -266,10 +269,14 @@ def _multipole_rows(scene, sweep, test, source, position, rtol, point_tau, point
         tau, K, F = series.torque_axis(phi), series.stiffness_axis(phi), series.force(phi)
         if sweep.group == test:
             F = np.array([sc.frame.turn(x).apply_vector(f) for x, f in zip(v, F)])
-        err = series.errors()
-    rows = tuple(ScanRow(float(x), float(t), float(pt), float(k), f, err["torque_axis"], err["stiffness_axis"],
-                         err["force"], True, point_stiffness_axis=float(pk))
-                 for x, t, pt, k, f, pk in zip(v, tau, point_tau, K, F, point_K))
+    err = series.errors_at(phi)  # a tessellated part's chord change at each value, as the pairs add it
+    # the series is built to rtol of the sweep's largest torque; only a chord error can miss that
+    reached = (np.ones(len(v), bool) if series.tessellation is None
+               else err["torque_axis"] <= rtol * max(float(np.abs(tau).max(initial=0.0)), scale))
+    rows = tuple(ScanRow(float(x), float(t), float(pt), float(k), f, float(et), float(ek), float(ef), bool(ok),
+                         point_stiffness_axis=float(pk))
+                 for x, t, pt, k, f, pk, et, ek, ef, ok in zip(v, tau, point_tau, K, F, point_K, err["torque_axis"],
+                                                                err["stiffness_axis"], err["force"], reached))
     return rows, series
 
 
@@ -395,6 +402,13 @@ def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor",
                     notes.append(f"multipole series of degree {series.L} checked against direct integration at "
                                  f"{len(idx)} value(s)")
                 notes.extend(series.notes)
+                missed = [r for r in rows if not r.reached]
+                if missed:
+                    worst = max(r.error_torque_axis for r in missed)
+                    size = max(abs(r.exact_torque_axis) for r in rows)
+                    notes.append(f"tolerance {rtol:g} not reached at {len(missed)} value(s): the tessellation "
+                                 f"error makes the torque's error estimate up to {worst:.3g} N m, "
+                                 f"{worst / (rtol * max(size, 1e-300)):.3g} times the tolerance of the largest torque")
                 return ScanResult(sweep, test, source, rows, "multipole", series.L, tuple(results), tuple(notes),
                                   series)
             worst = max(bad, key=lambda c: abs(c.multipole - c.direct) / max(c.allowed, 1e-300))

@@ -440,3 +440,46 @@ method = "deflection"
 angle = {{ A = "0.00210 rad", B = "-0.00208 rad" }}
 period = "{period}"
 """
+# a measured ball (radius 10 mm, steel) whose points lie exactly on the sphere, beside an ideal twin
+# 25 mm the other side of the fiber, and two 5 kg points 90 mm off, 4 mm above and below the plane
+# (invented); coarse facets (1280 triangles, its coarse 320) make the chord error large
+MEASURED_BALL = {"radius": 0.01, "density": 8000.0, "offset": 0.025, "reach": 0.09, "height": 0.004,
+                 "source_mass": 5.0, "subdivisions": 3}
+
+
+def exact_measured_ball_scene(G: float):
+    """(scene, test points, source points): the MEASURED_BALL layout as a scene whose 'pendulum-0' is the
+    measured form (a MeasuredMesh with its coarse), and the same bodies as [(mass kg, (x, y, z) m)]
+    for Newton's law (the exact ball pulls as a point: shell theorem)."""
+    import math
+    from dataclasses import replace
+
+    import numpy as np
+
+    from truepull.geometry.bodies import Body
+    from truepull.geometry.measured_form import MeasuredPoints, fitted_shape
+    from truepull.geometry.placement import Placement
+    from truepull.geometry.scene import load_scene_text
+
+    p = MEASURED_BALL
+    R, x0, y0, z0 = p["radius"], p["offset"], p["reach"], p["height"]
+    n = 400  # a Fibonacci lattice of directions, radius R on every one
+    k = np.arange(n) + 0.5
+    z = 1 - 2 * k / n
+    phi = math.pi * (1 + 5**0.5) * k
+    u = np.stack([np.sqrt(1 - z * z) * np.cos(phi), np.sqrt(1 - z * z) * np.sin(phi), z], axis=1)
+    shape = fitted_shape(MeasuredPoints("ball.csv", u, np.full(n, R), ("ux", "uy", "uz", "r")), 4,
+                         subdivisions=p["subdivisions"])
+    M = p["density"] * 4 * math.pi * R**3 / 3
+    test = [(M, (x0, 0.0, 0.0)), (M, (-x0, 0.0, 0.0))]
+    source = [(p["source_mass"], (0.0, y0, z0)), (p["source_mass"], (0.0, -y0, -z0))]
+    parts = [f"[scene]\nG = {G!r}\n"]
+    for group, pts, shape_text in (("pendulum", test, f'shape = "sphere"\nradius = {R!r}\n'),
+                                   ("attractor", source, 'shape = "point"\n')):
+        for i, (m, at) in enumerate(pts):
+            parts.append(f'[[body]]\nname = "{group}-{i}"\ngroup = "{group}"\n{shape_text}mass = {m!r}\n'
+                         f"at = [{at[0]!r}, {at[1]!r}, {at[2]!r}]\n")
+    scene = load_scene_text("\n".join(parts))
+    ball = Body("pendulum-0", "pendulum", shape, Placement.shift(np.array([x0, 0.0, 0.0])), p["density"])
+    scene = replace(scene, bodies=tuple(ball if b.name == "pendulum-0" else b for b in scene.bodies))
+    return scene, test, source

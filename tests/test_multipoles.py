@@ -3,7 +3,8 @@
 Outside references: scipy.special.sph_harm_y (spherical harmonics) and eval_legendre; the addition
 theorem for 1/|x - y| (closed form); Newton's law for point masses (computed here); the standard moments
 of inertia of the cylinder and the box (from memory); scipy.integrate.tplquad as a brute-force reference for
-volume integrals; and direct integration by the engine (compare_groups) for extended bodies.
+volume integrals; and direct integration by the engine (compare_groups) for extended bodies. A measured
+ball on the exact sphere pulls as a point (shell theorem): numpy.fft of Newton's torque for its harmonics.
 """
 
 from __future__ import annotations
@@ -465,3 +466,34 @@ def test_bodies_that_a_turn_brings_together_are_not_separated_by_centres():
     assert not never_meet(sc.body("bob-east"), sc.body("ball-north"), sc.frame.pivot, sc.frame.axis)
     sep = regions(sc.group("pendulum"), sc.group("attractor"), sc.frame.pivot, sc.frame.axis)
     assert not sep.ok and not sep.by_centres and "interleave" in sep.reason
+
+
+def test_measured_ball_series_errors_hold_its_chord_error():
+    """A measured form on the exact sphere (scene_fixtures.MEASURED_BALL) in the series: the torque's
+    harmonics against numpy's FFT of Newton's torque (the exact ball pulls as a point: shell theorem),
+    and torque, force and energy at a few turns against Newton's law, each within its error estimate,
+    which holds the pairs' change against the coarser tessellation; without that change it would not."""
+    from tests.scene_fixtures import exact_measured_ball_scene
+
+    sc, test, source = exact_measured_ball_scene(G)
+    series = interaction_series(sc.group("pendulum"), sc.group("attractor"), sc.frame.pivot, sc.frame.axis, G, 1e-9)
+    assert series.tessellation is not None and series.tessellation.pairs == (("pendulum-0", "attractor-0"),
+                                                                             ("pendulum-0", "attractor-1"))
+    n = 64  # reference: numpy.fft of Newton's torque; harmonics fall as (35 / 90)^m, no aliasing at 64
+    X = np.fft.rfft([_newton(test, source, 2 * np.pi * k / n)[1] for k in range(n)]) / n
+    chord = series.tessellation.harmonic_errors()
+    missed = 0
+    for m, C, S, err in series.torque_harmonics():
+        true = max(abs(C - 2 * X[m].real), abs(S + 2 * X[m].imag))
+        assert true <= err + series.bounds.torque, m
+        missed += true > err - chord[m - 1] + series.bounds.torque
+    assert missed > 0                                   # the chord change is what bounds them
+    phi = np.radians([10.0, 50.0, 100.0])
+    at = series.errors_at(phi)
+    uniform = series.errors()
+    for k, p in enumerate(phi):
+        E, tau, F = _newton(test, source, p)              # reference: Newton's law
+        assert abs(series.torque_axis(p)[0] - tau) <= at["torque_axis"][k]
+        assert np.linalg.norm(series.force(p)[0] - F) <= at["force"][k]
+        assert abs(series.energy(p)[0] - E) <= at["energy"][k]
+        assert all(at[q][k] <= uniform[q] for q in uniform)
