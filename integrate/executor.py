@@ -238,15 +238,18 @@ def _start_worker(threads: int, main_pid: int) -> None:
 
 
 def _limit_worker_threads(threads: int) -> None:
-    """Give numba in this worker its share of the cores."""
-    os.environ.setdefault("NUMBA_NUM_THREADS", str(threads))
-    if "numba" in sys.modules:
-        try:
-            import numba
+    """Give numba in this worker its share of the cores: by its environment variable before numba is
+    imported, else by set_num_threads only (changing the variable once numba's threads have launched
+    makes its next configuration reload raise)."""
+    if "numba" not in sys.modules:
+        os.environ.setdefault("NUMBA_NUM_THREADS", str(threads))
+        return
+    try:
+        import numba
 
-            numba.set_num_threads(min(threads, numba.config.NUMBA_NUM_THREADS))
-        except Exception:  # an unusual numba setup must not stop the worker
-            pass
+        numba.set_num_threads(min(threads, numba.config.NUMBA_NUM_THREADS))
+    except Exception:  # an unusual numba setup must not stop the worker
+        pass
 
 
 def _context():
