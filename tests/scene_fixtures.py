@@ -403,11 +403,14 @@ def measured_cylinder_points(R, H, eps, tau, noise, rng, n_phi=48, n_z=13, rings
 
 
 def measured_ball_scene(csv: str, fit_degree=3, period: str = "512.0 s", form: str = "",
-                        measured: str = "bob-east") -> str:
+                        measured: str = "bob-east", measurement: str | None = None, reach: float = 70) -> str:
     """A small balance with one measured body, the `csv` (mm) as `measured` ("bob-east", a 10 mm pendulum
     ball, or "lead-a", a 25 mm attractor ball; with form = 'cylinder' a measured cylinder, fit_degree
-    then '[M, K]'); deflection at turns +-35 deg."""
+    then '[M, K]'); the attractor balls' centres `reach` mm from the fiber (80 keeps them clear at every
+    turn); positions A, B at turns +-35 deg; deflection, unless `measurement` gives the lines of another
+    [measurement] table."""
     form_line = f'form = "{form}"' if form else ""
+    deflection = f'method = "deflection"\nangle = {{ A = "0.00210 rad", B = "-0.00208 rad" }}\nperiod = "{period}"'
 
     def ball(name, group, radius, density, x):
         if name == measured:
@@ -422,7 +425,7 @@ density = {density}
 at = [{x}, 0, 0]
 """
     bodies = (ball("bob-east", "pendulum", 10, 18.0, 40) + ball("bob-west", "pendulum", 10, 18.0, -40)
-              + ball("lead-a", "attractor", 25, 11.34, 70) + ball("lead-b", "attractor", 25, 11.34, -70))
+              + ball("lead-a", "attractor", 25, 11.34, reach) + ball("lead-b", "attractor", 25, 11.34, -reach))
     return f"""[units]
 length = "mm"
 density = "g/cm^3"
@@ -436,9 +439,7 @@ name = "B"
 group = "attractor"
 turn = -35
 [measurement]
-method = "deflection"
-angle = {{ A = "0.00210 rad", B = "-0.00208 rad" }}
-period = "{period}"
+{measurement or deflection}
 """
 # a measured ball (radius 10 mm, steel) whose points lie exactly on the sphere, beside an ideal twin
 # 25 mm the other side of the fiber, and two 5 kg points 90 mm off, 4 mm above and below the plane

@@ -85,11 +85,17 @@ def _cylinder_csv(path):
     np.savetxt(path, pts * 1e3, delimiter=",", header="x,y,z", comments="")
 
 
-@pytest.mark.parametrize("form", ["sphere", "cylinder", "attractor sphere"])
+SERVO = 'method = "servo"\nvoltage = { A = "1.8 V", B = "2.0 V" }\ntorque_per_volt2 = "2.0e-12 N m/V^2"'
+ACCELERATION = 'method = "acceleration"\nharmonic = 2\nacceleration = "2e-7 rad/s^2"'
+
+
+@pytest.mark.parametrize("form", ["sphere", "cylinder", "attractor sphere", "servo"])
 def test_modes_carry_the_whole_correlated_propagation(tmp_path, form):
     """u(G) from the budget's form modes against JCGM 100 eq. 13 over every coefficient: the 9 of a degree-2
     ball fit, the 22 of an order-2, degree-1 cylinder fit (side 5 x 2, faces 6 each), both pendulum bobs
-    with 2 um point noise; and a 25 mm attractor ball (degree 2, 3 um noise: the reaction's sign)."""
+    with 2 um point noise; a 25 mm attractor ball (degree 2, 3 um noise: the reaction's sign); the degree-2
+    ball under the servo method (its own rows of J). The acceleration method's full-turn harmonic of a
+    20,480-triangle body is too slow to step every coefficient in a test; its rows are checked below."""
     csv = tmp_path / "part.csv"
     measured = "bob-east"
     if form == "sphere":
@@ -98,10 +104,13 @@ def test_modes_carry_the_whole_correlated_propagation(tmp_path, form):
     elif form == "cylinder":
         _cylinder_csv(csv)
         text = measured_ball_scene(csv.name, "[2, 1]", form="cylinder")
-    else:
+    elif form == "attractor sphere":
         measured = "lead-a"
         write_measured_ball(csv, 25.0, 1e-3, 0.003, n=800)
         text = measured_ball_scene(csv.name, 2, measured=measured)
+    else:                                   # the servo's torques at each position
+        write_measured_ball(csv, 10.0, 1e-3, 0.002)
+        text = measured_ball_scene(csv.name, 2, measurement=SERVO, reach=80)
     path = str(tmp_path / "s.toml")
     scene = load_scene_text(text, path, str(tmp_path))
     red = reduce_measurement(scene, rtol=1e-9)
@@ -131,3 +140,27 @@ def test_modes_carry_the_whole_correlated_propagation(tmp_path, form):
     assert u_modes**2 >= (1 - lost) * u_all**2 * (1 - 1e-4)
     assert u_modes <= u_all * (1 + 1e-4)
     assert lost < 1e-2
+
+
+def test_acceleration_rows_are_newton_at_every_turn(tmp_path):
+    """The acceleration method's rows of J (torque at 16 turns of the pendulum, inertia, volume): the Y00
+    column against the shell theorem (a uniform layer pulls as a point at its centre) at every turn."""
+    from truepull.integrate.balance.form_modes import MIN_ACCELERATION_TURNS
+
+    csv = tmp_path / "ball.csv"
+    write_measured_ball(csv, 10.0, 0.0, 0.0)
+    scene = load_scene_text(measured_ball_scene(csv.name, 2, measurement=ACCELERATION, reach=80),
+                            str(tmp_path / "s.toml"), str(tmp_path))
+    s1 = per_unit_g(scene)
+    net = layer_net(s1.body("bob-east").shape.form.fit)
+    J = observation_rows(s1, "bob-east", net, "acceleration", None)
+    k = MIN_ACCELERATION_TURNS                 # 8 per order, at least 16: 16 for harmonic 2
+    assert J.shape[0] == k + 2
+    pivot, axis = s1.frame.pivot, s1.frame.axis
+    sources = [(a.mass, a.com) for a in s1.group("attractor")]
+    dm00 = RHO * math.sqrt(4 * math.pi) * R * R
+    for j in range(k):
+        theta = 2 * math.pi * j / k
+        c = s1.frame.turn(theta).apply(s1.body("bob-east").com)
+        tau = _newton_torque(c, pivot, axis, sources)
+        assert J[j, 0] == pytest.approx(dm00 * tau, rel=5e-3, abs=5e-3 * abs(J[:k, 0]).max())
