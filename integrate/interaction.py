@@ -20,7 +20,7 @@ import numpy as np
 from truepull.geometry.errors import InputError
 from truepull.geometry.overlaps import bodies_overlap
 from truepull.integrate import pair_cache
-from truepull.integrate.pairs import PairResult, pair_interaction
+from truepull.integrate.pairs import PairResult, pair_interaction, tolerance_scale_table
 from truepull.integrate.point_model import point_pair_values
 
 RTOL_FLOOR = 1e-14
@@ -128,19 +128,18 @@ def pair_tolerances(test_bodies, source_bodies, pivot, axis, G, rtol):
     """Absolute tolerances (n_test, n_source, 8) per pair, so that the summed errors stay within rtol of
     the group totals: each pair gets rtol times the smaller of its own point-model size and the group's
     point-model total shared among the pairs (a floor keeps totals that vanish by symmetry workable)."""
-    from truepull.integrate.pairs import tolerance_scales
-
     pp = point_pair_values(test_bodies, source_bodies, pivot, axis, G)
+    return _tolerances(pp, G * tolerance_scale_table(test_bodies, source_bodies, pivot), rtol)
+
+
+def _tolerances(pp, own, rtol):
+    """pair_tolerances from the point-model pairs pp and their sizes own (n_test, n_source, 8), SI."""
     n = max(pp.shape[0] * pp.shape[1], 1)
     tot = pp.sum(axis=(0, 1))
-    group = np.array([np.linalg.norm(tot[0:3])] * 3 + [np.linalg.norm(tot[3:6])] * 3 + [abs(tot[6]), abs(tot[7])])
-    tols = np.empty(pp.shape)
-    for i, t in enumerate(test_bodies):
-        for j, s in enumerate(source_bodies):
-            own = G * tolerance_scales(t, s, pivot)
-            share = np.maximum(group / n, SYMMETRY_FLOOR * own)
-            tols[i, j] = rtol * np.minimum(own, share)
-    return tols
+    f, t = np.linalg.norm(tot[0:3]), np.linalg.norm(tot[3:6])
+    group = np.array([f, f, f, t, t, t, abs(tot[6]), abs(tot[7])])
+    share = np.maximum(group / n, SYMMETRY_FLOOR * own)
+    return rtol * np.minimum(own, share)
 
 
 def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, tols=None):
@@ -152,10 +151,13 @@ def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, to
     tols = np.exp2(np.floor(np.log2(np.maximum(tols, 1e-300))))
     pivot = np.asarray(pivot, float)
     axis = np.asarray(axis, float)
+    frame = (pivot.tobytes(), axis.tobytes(), float(G))
+    source_keys = [pair_cache.body_key(s) for s in source_bodies]
     pairs = []
     for i, t in enumerate(test_bodies):
+        tk = pair_cache.body_key(t)
         for j, s in enumerate(source_bodies):
-            key = pair_cache.pair_key(t, s, pivot, axis, float(G), tols[i, j])
+            key = (tk, source_keys[j], frame + (tols[i, j].tobytes(),))
             result = pair_cache.lookup(key)
             if result is None:
                 result = pair_interaction(t, s, pivot, axis, G, rtol, tol=tols[i, j])
@@ -163,10 +165,12 @@ def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, to
             elif result.test != t.name or result.source != s.name:
                 result = replace(result, test=t.name, source=s.name)
             pairs.append(result)
-    values = np.sum([p.values for p in pairs], axis=0) if pairs else np.zeros(8)
+    if not pairs:
+        return np.zeros(8), np.zeros(8), pairs, True
+    values = np.array([p.values for p in pairs]).sum(axis=0)
     # absolute pair errors add; so does the rounding of summing the pairs, n ulps of the sum of their
     # sizes (which covers a total that cancels across pairs)
-    errors = np.sum([p.errors for p in pairs], axis=0) if pairs else np.zeros(8)
+    errors = np.array([p.errors for p in pairs]).sum(axis=0)
     errors = errors + len(pairs) * np.finfo(float).eps * _parts(pairs)
     return values, errors, pairs, all(p.reached for p in pairs)
 
@@ -214,11 +218,6 @@ def _parts(pairs) -> np.ndarray:
     return np.sum([np.abs(p.values) for p in pairs], axis=0) if pairs else np.zeros(8)
 
 
-def _point_scales(test_bodies, source_bodies, pivot, G) -> np.ndarray:
-    """Sum over the pairs of their point-model sizes (8,), SI (see pairs.tolerance_scales)."""
-    from truepull.integrate.pairs import tolerance_scales
-
-    return G * np.sum([tolerance_scales(t, s, pivot) for t in test_bodies for s in source_bodies], axis=0)
 
 
 def compare_groups(scene, test: str = "pendulum", source: str = "attractor", position=None,
@@ -237,8 +236,11 @@ def compare_groups(scene, test: str = "pendulum", source: str = "attractor", pos
         raise InputError(scene.path, "--source", "test and source groups must differ")
     pivot, axis, G = sc.frame.pivot, sc.frame.axis, sc.G.value
     notes = check_separated(tb, sb, scene.path)
-    values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, rtol)
-    scales = _point_scales(tb, sb, pivot, G)
+    # the point model's pairs and their sizes, once: for the pair tolerances, the floors and the output
+    pp = point_pair_values(tb, sb, pivot, axis, G)
+    sizes = tolerance_scale_table(tb, sb, pivot)
+    values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, rtol, _tolerances(pp, G * sizes, rtol))
+    scales = G * sizes.sum(axis=(0, 1))  # the pairs' point-model sizes summed (8,), SI
     short = _shortfall(values, errors, axis, rtol, _parts(pairs), scales)
     futile = False
     if short > 1.0:
@@ -252,13 +254,12 @@ def compare_groups(scene, test: str = "pendulum", source: str = "attractor", pos
             room = 1.0 - short_rounding
             tighter = max(rtol * room / (4.0 * max(short_refine, 1.0)), rtol / MAX_TIGHTENING, RTOL_FLOOR)
             values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, tighter,
-                                                                pair_tolerances(tb, sb, pivot, axis, G, tighter))
+                                                                _tolerances(pp, G * sizes, tighter))
             short = _shortfall(values, errors, axis, rtol, _parts(pairs), scales)
     if short > 1.0:
         reached = False
         why = " (mostly rounding bounds, which refinement cannot reduce)" if futile else ""
         notes.append(f"tolerance {rtol:g} not reached: errors are up to {short:.3g} times the tolerance{why}")
-    pp = point_pair_values(tb, sb, pivot, axis, G)
     pos_name = sc.position if position is not None else None
     return Comparison(
         position=pos_name, test=test, source=source, G=G, rtol=rtol, axis=np.asarray(axis, float),

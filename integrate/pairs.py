@@ -17,13 +17,16 @@ right-handed turn theta of the test body about the frame axis e.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 import numpy as np
+from numba import njit
 
 from truepull.geometry.errors import InputError
 from truepull.integrate.field_band import band_field
+from truepull.integrate.pair_cache import body_com, body_mass, body_sphere
 from truepull.integrate.patches import BAND, body_patches
+from truepull.integrate.point_response import point_response, point_response_errors
 from truepull.integrate.sources import CLOSED_FORM_KINDS, GRADIENT_KINDS, POINTLIKE_KINDS, SourceField
 from truepull.integrate.surface_quadrature import field_tolerances, integrate_surface
 from truepull.integrate.threads import PARALLEL_MIN_WORK, kernel_threads
@@ -63,47 +66,6 @@ class PairResult:
         return np.concatenate([self.force, self.torque, [self.stiffness_axis, self.energy]])
 
 
-def _cross3(a, b) -> np.ndarray:
-    """a x b of two 3-vectors, by the same products and differences as np.cross (bit for bit), without its
-    per-call array handling (a pair of points costs microseconds here, tens in np.cross)."""
-    (a0, a1, a2), (b0, b1, b2) = np.asarray(a, float).tolist(), np.asarray(b, float).tolist()
-    return np.array([a1 * b2 - a2 * b1, a2 * b0 - a0 * b2, a0 * b1 - a1 * b0])
-
-
-def point_response(mass, centre, U, g, T, pivot, axis):
-    """Force, torque, stiffness and energy on a point mass `mass` at `centre` in a field with potential
-    U, field g and gradient tensor T there (also exact for a sphere or shell, by the shell theorem)."""
-    r = np.asarray(centre, float) - pivot
-    F = mass * g
-    tau = _cross3(r, F)
-    exr = _cross3(axis, r)
-    dtau = mass * (np.dot(axis, _cross3(exr, g)) + np.dot(axis, _cross3(r, T @ exr)))
-    return F, tau, -dtau, mass * U
-
-
-def _point_response_errors(mass, centre, pivot, axis, g, T, U, eU, eg, eT):
-    """Absolute error bounds (8,) of `point_response` given absolute bounds on U, on g (vector norm)
-    and on T (Frobenius norm). Each quantity is bounded term by term, with absolute values, so that
-    cancellation is covered: K = -m (e.((e x r) x g) + e.(r x T (e x r))) gets
-    m (|e x r| eg + |r| |e x r| eT) from the field's errors, plus 16 eps times the sum of the two
-    terms' sizes and the rounding of r = centre - pivot (delta) through dK/dr."""
-    m = abs(float(mass))
-    r = np.asarray(centre, float) - pivot
-    nr = np.linalg.norm(r)
-    ng = np.linalg.norm(g)
-    nT = np.linalg.norm(T)
-    exr = np.linalg.norm(_cross3(axis, r))
-    delta = 4.0 * EPS * (np.abs(centre).max() + np.abs(pivot).max())
-    eF = m * eg + 4.0 * EPS * m * ng
-    etau = nr * eF + m * ng * (8.0 * EPS * nr + 2.0 * delta)
-    k1 = m * exr * ng
-    k2 = m * nr * exr * nT
-    eK = m * (exr * eg + nr * exr * eT) + 16.0 * EPS * (k1 + k2) + \
-        delta * m * (2.0 * ng + 3.0 * (nr + exr) * nT)
-    eE = m * eU + 4.0 * EPS * m * abs(U)
-    return np.array([eF] * 3 + [etau] * 3 + [eK, eE])
-
-
 def _inside_cavity(pointlike, other) -> bool:
     """True when `other` sits in the cavity of the shell `pointlike` (then the shortcut does not apply)."""
     return pointlike.shape.kind == "shell" and _cavity_holds(pointlike, other)
@@ -116,15 +78,42 @@ def _cavity_holds(shell_body, other_body) -> bool:
 
 
 def tolerance_scales(test_body, source_body, pivot) -> np.ndarray:
-    """Point-model sizes of the eight quantities, used to turn a relative tolerance into absolute ones."""
-    ct, rt = test_body.bounding_sphere()
-    cs, rs = source_body.bounding_sphere()
-    mm = abs(test_body.mass * source_body.mass)
-    d = max(np.linalg.norm(test_body.com - source_body.com), 0.5 * (rt + rs), 1e-300)
-    sF = mm / d**2
-    lever = max(np.linalg.norm(ct - pivot) + rt, np.linalg.norm(cs - pivot) + rs)
-    sT = sF * lever
-    return np.array([sF, sF, sF, sT, sT, sT, sT, mm / d])
+    """Point-model sizes of the eight quantities, used to turn a relative tolerance into absolute ones
+    (one pair of `tolerance_scale_table`)."""
+    return tolerance_scale_table([test_body], [source_body], pivot)[0, 0]
+
+
+def tolerance_scale_table(test_bodies, source_bodies, pivot) -> np.ndarray:
+    """tolerance_scales of every pair (n_test, n_source, 8), per G: |m_t m_s| / d^2 for the force, times
+    the larger lever (bounding sphere's reach from the pivot) for torque and stiffness, |m_t m_s| / d for
+    the energy; d the distance of the centres of mass, at least half the bounding radii's sum."""
+    ct, rt, mt, kt = _sphere_arrays(test_bodies)
+    cs, rs, ms, ks = _sphere_arrays(source_bodies)
+    return _scale_kernel(ct, rt, mt, kt, cs, rs, ms, ks, np.asarray(pivot, float).reshape(3))
+
+
+def _sphere_arrays(bodies):
+    """(bounding-sphere centres (n, 3), radii (n,), masses (n,), centres of mass (n, 3))."""
+    spheres = [body_sphere(b) for b in bodies]
+    return (np.array([c for c, _ in spheres], float).reshape(-1, 3), np.array([r for _, r in spheres], float),
+            np.array([body_mass(b) for b in bodies], float), np.array([body_com(b) for b in bodies], float).reshape(-1, 3))
+
+
+@njit(cache=True)
+def _scale_kernel(ct, rt, mt, kt, cs, rs, ms, ks, pivot):
+    out = np.empty((ct.shape[0], cs.shape[0], 8))
+    for i in range(ct.shape[0]):
+        reach_t = np.sqrt(np.sum((ct[i] - pivot) ** 2)) + rt[i]
+        for j in range(cs.shape[0]):
+            mm = abs(mt[i] * ms[j])
+            d = max(np.sqrt(np.sum((kt[i] - ks[j]) ** 2)), 0.5 * (rt[i] + rs[j]), 1e-300)
+            sF = mm / d ** 2
+            lever = max(reach_t, np.sqrt(np.sum((cs[j] - pivot) ** 2)) + rs[j])
+            sT = sF * lever
+            out[i, j, 0:3] = sF
+            out[i, j, 3:7] = sT
+            out[i, j, 7] = mm / d
+    return out
 
 
 ORDERS = ((1e-6, 8), (0.0, 10))
@@ -154,8 +143,36 @@ def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=No
         from truepull.integrate.linear_density import gradient_pair
 
         return gradient_pair(test_body, source_body, pivot, axis, G, rtol, order, tol)
+    direct = _point_box_route(test_body, source_body, pivot, axis, G)
+    if direct is not None:
+        return direct
     with kernel_threads(PARALLEL_MIN_WORK):
         return _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol)
+
+
+def _point_box_route(test_body, source_body, pivot, axis, G) -> PairResult | None:
+    """A point-like body (not holding the other in a shell's cavity) paired with a box: `_point_box_pair`
+    directly (one-thread numba, nothing to set up), with Newton's third law when the box is the test
+    body; None for every other pair."""
+    tk, sk = test_body.shape.kind, source_body.shape.kind
+    if not ((tk in POINTLIKE_KINDS and sk == "box") or (sk in POINTLIKE_KINDS and tk == "box")):
+        return None
+    pivot = np.asarray(pivot, float)
+    axis = np.asarray(axis, float)
+    axis = axis / np.sqrt(axis.dot(axis))
+    if sk == "box":
+        return None if _inside_cavity(test_body, source_body) else _point_box_pair(test_body, source_body, pivot,
+                                                                                  axis, G)
+    if _inside_cavity(source_body, test_body):
+        return None
+    return _third_law(_point_box_pair(source_body, test_body, pivot, axis, G), test_body, source_body)
+
+
+def _third_law(r, test_body, source_body) -> PairResult:
+    """The pair result `r` found for the other body, as felt by `test_body`: force and torque reversed
+    (Newton's third law; the torques about one pivot cancel too), stiffness and energy the same."""
+    return PairResult(test_body.name, source_body.name, -r.force, -r.torque, r.stiffness_axis, r.energy,
+                      r.errors, r.method, r.reached, r.evaluations, r.rounding)
 
 
 def _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol) -> PairResult:
@@ -169,8 +186,7 @@ def _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol) 
     if tk in POINTLIKE_KINDS and sk in GRADIENT_KINDS and not _inside_cavity(test_body, source_body):
         return _pointlike_pair(test_body, source_body, pivot, axis, G)
     if sk in POINTLIKE_KINDS and tk in GRADIENT_KINDS and not _inside_cavity(source_body, test_body):
-        r = _pointlike_pair(source_body, test_body, pivot, axis, G)
-        return replace(r, test=test_body.name, source=source_body.name, force=-r.force, torque=-r.torque)
+        return _third_law(_pointlike_pair(source_body, test_body, pivot, axis, G), test_body, source_body)
     swap = SOURCE_PREFERENCE.index(tk) < SOURCE_PREFERENCE.index(sk)
     integ, src = (source_body, test_body) if swap else (test_body, source_body)
     field = SourceField(src, G)
@@ -235,6 +251,8 @@ def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:
         z = np.zeros(3)
         return PairResult(test_body.name, source_body.name, z, z.copy(), 0.0, 0.0, np.zeros(8),
                           "shell theorem (source inside the test shell's cavity)", True)
+    if source_body.shape.kind == "box":
+        return _point_box_pair(test_body, source_body, pivot, axis, G)
     field = SourceField(source_body, G)
     c = test_body.com[None, :]
     # the values alone where a closed form's bounds would be computed twice (rounding_bounds below
@@ -243,16 +261,43 @@ def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:
     U, g = values(c) if values is not None else field.field(c)[:2]
     T = field.gradient(c)[0]
     if not np.all(np.isfinite(T)):
-        raise InputError(None, f"body[{test_body.name}] / body[{source_body.name}]",
-                         f"the centre of '{test_body.name}' lies on an edge or corner of "
-                         f"'{source_body.name}', where the gradient of its field (and so the stiffness) "
-                         "is infinite; move it off the edge (a point on a face is fine)")
+        _raise_on_edge(test_body, source_body)
     F, tau, K, E = point_response(test_body.mass, test_body.com, U[0], g[0], T, pivot, axis)
     eU, eg, eT = (x[0] for x in field.rounding_bounds(c, U, g, T[None]))
-    errs = _point_response_errors(test_body.mass, test_body.com, pivot, axis, g[0], T, U[0], eU, eg, eT)
-    how = ("Newton with the shell theorem (exact)" if source_body.shape.kind in POINTLIKE_KINDS else
-           f"{field.method} of {source_body.shape.kind} '{source_body.name}' at the centre of "
-           f"{test_body.shape.kind} '{test_body.name}' (mean-value property, exact)")
+    errs = point_response_errors(test_body.mass, test_body.com, pivot, axis, g[0], T, U[0], eU, eg, eT)
     # a closed form's errors are all rounding: no refinement can reduce them
-    return PairResult(test_body.name, source_body.name, F, tau, float(K), float(E), errs, how, True,
-                      rounding=errs)
+    return PairResult(test_body.name, source_body.name, F, tau, float(K), float(E), errs,
+                      _pointlike_method(test_body, source_body, field.method), True, rounding=errs)
+
+
+def _pointlike_method(test_body, source_body, field_method) -> str:
+    if source_body.shape.kind in POINTLIKE_KINDS:
+        return "Newton with the shell theorem (exact)"
+    return (f"{field_method} of {source_body.shape.kind} '{source_body.name}' at the centre of "
+            f"{test_body.shape.kind} '{test_body.name}' (mean-value property, exact)")
+
+
+def _point_box_pair(test_body, source_body, pivot, axis, G) -> PairResult:
+    """A point-like test body beside (or in) a box: the prism closed form's U, g, T and their bounds at its
+    centre in one numba call (field_prism.prism_at_point), then the point response and its bounds; the
+    numbers of the general point-like route (SourceField) within rounding, without its per-call set-up."""
+    from truepull.integrate.field_prism import prism_at_point
+
+    pl = source_body.placement
+    centre = body_com(test_body)
+    U, g, T, eU, eg, eT = prism_at_point(centre, pl.rotation, pl.translation, 0.5 * np.asarray(source_body.shape.size),
+                                         source_body.density, G)
+    if not np.all(np.isfinite(T)):
+        _raise_on_edge(test_body, source_body)
+    m = body_mass(test_body)
+    F, tau, K, E = point_response(m, centre, U, g, T, pivot, axis)
+    errs = point_response_errors(m, centre, pivot, axis, g, T, U, eU, eg, eT)
+    return PairResult(test_body.name, source_body.name, F, tau, K, E, errs,
+                      _pointlike_method(test_body, source_body, "prism closed form"), True, rounding=errs)
+
+
+def _raise_on_edge(test_body, source_body):
+    raise InputError(None, f"body[{test_body.name}] / body[{source_body.name}]",
+                     f"the centre of '{test_body.name}' lies on an edge or corner of "
+                     f"'{source_body.name}', where the gradient of its field (and so the stiffness) "
+                     "is infinite; move it off the edge (a point on a face is fine)")
