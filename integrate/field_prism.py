@@ -647,10 +647,11 @@ def prism_rounding_bounds(points, half_sizes, rho, G, position_error=0.0):
 
 
 @njit(cache=True)
-def _at_point_kernel(point, rotation, translation, hx, hy, hz, rho, G, nodes, weights, max_points):
-    """U, g (3,), T (3, 3) in world axes and their bounds (eU, eg, eT) at one world point: the numbers
-    of prism_field, prism_gradient and prism_rounding_bounds at the point's local position, turned to the
-    world, with the frame change's rounding as sources.SourceField adds it (see prism_at_point)."""
+def at_point_into(point, rotation, translation, hx, hy, hz, rho, G, nodes, weights, max_points, out):
+    """Write [U, g (3), T (9, row by row), eU, eg, eT] (16,) in world axes at one world point into `out`:
+    the numbers of prism_field, prism_gradient and prism_rounding_bounds at the point's local position,
+    turned to the world, with the frame change's rounding as sources.SourceField adds it (prism_at_point;
+    nodes, weights, max_points from `point_rule_tables`)."""
     eps = 2.220446049250313e-16
     local = np.empty(3)
     for j in range(3):
@@ -664,28 +665,43 @@ def _at_point_kernel(point, rotation, translation, hx, hy, hz, rho, G, nodes, we
     pot, jx, jy, jz = _field_at(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, D, Om, X, Y, Z, R)
     t = np.empty((3, 3))
     _gradient_at(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t, D, Om, X, Y, Z, R)
-    gl = np.array([scale * jx, scale * jy, scale * jz])
-    g = np.empty(3)
+    gl0, gl1, gl2 = scale * jx, scale * jy, scale * jz
+    out[0] = -scale * pot
     for i in range(3):
-        g[i] = gl[0] * rotation[i, 0] + gl[1] * rotation[i, 1] + gl[2] * rotation[i, 2]
+        out[1 + i] = gl0 * rotation[i, 0] + gl1 * rotation[i, 1] + gl2 * rotation[i, 2]
     # T = R (G rho t) R^T
     Rt = np.empty((3, 3))
     for i in range(3):
         for k in range(3):
             Rt[i, k] = (rotation[i, 0] * (scale * t[0, k]) + rotation[i, 1] * (scale * t[1, k])
                         + rotation[i, 2] * (scale * t[2, k]))
-    T = np.empty((3, 3))
+    nT2 = 0.0
     for i in range(3):
         for k in range(3):
-            T[i, k] = Rt[i, 0] * rotation[k, 0] + Rt[i, 1] * rotation[k, 1] + Rt[i, 2] * rotation[k, 2]
+            v = Rt[i, 0] * rotation[k, 0] + Rt[i, 1] * rotation[k, 1] + Rt[i, 2] * rotation[k, 2]
+            out[4 + 3 * i + k] = v
+            nT2 += v * v
     shift = 4.0 * eps * (max(abs(point[0]), max(abs(point[1]), abs(point[2])))
                          + max(abs(translation[0]), max(abs(translation[1]), abs(translation[2]))))
     c = np.empty((3, 2))
     eU, eg, eT = _bounds_at(px, py, pz, hx, hy, hz, nx, ny, nz, abs(G * rho), shift, c)
     # the rotation back to world axes: a few ulps of the rotated vector and tensor
-    eg += 4.0 * eps * np.sqrt(g[0] * g[0] + g[1] * g[1] + g[2] * g[2])
-    eT += 8.0 * eps * np.sqrt(np.sum(T * T))
-    return -scale * pot, g, T, eU, eg, eT
+    out[13] = eU
+    out[14] = eg + 4.0 * eps * np.sqrt(out[1] * out[1] + out[2] * out[2] + out[3] * out[3])
+    out[15] = eT + 8.0 * eps * np.sqrt(nT2)
+
+
+def point_rule_tables():
+    """(nodes, weights, max_points) of the far-field rule for `at_point_into` (one point per call)."""
+    return _GL_NODES, _GL_WEIGHTS, _max_points(1)
+
+
+def checked_half_sizes(half_sizes) -> tuple[float, float, float]:
+    """(hx, hy, hz) as floats; InputError unless all three are positive and finite."""
+    hx, hy, hz = (float(v) for v in half_sizes)
+    if not (0.0 < hx < math.inf and 0.0 < hy < math.inf and 0.0 < hz < math.inf):
+        raise InputError(None, "size", f"a box needs three positive half-sizes, got {[hx, hy, hz]}")
+    return hx, hy, hz
 
 
 def prism_at_point(point, rotation, translation, half_sizes, rho, G):
@@ -693,9 +709,10 @@ def prism_at_point(point, rotation, translation, half_sizes, rho, G):
     `point` (3,) m of the prism placed by `rotation` (local to world) and `translation` (m), with their
     rigorous rounding bounds (eU, eg, eT): what sources.SourceField gives for a box at one point
     (prism_field, prism_gradient, prism_rounding_bounds with the frame change's rounding) in one numba
-    call, for the point-like pairs. Returns (U, g, T, eU, eg, eT)."""
-    hx, hy, hz = (float(v) for v in half_sizes)
-    if not all(0.0 < v < math.inf for v in (hx, hy, hz)):
-        raise InputError(None, "size", f"a box needs three positive half-sizes, got {[hx, hy, hz]}")
-    return _at_point_kernel(np.ascontiguousarray(point, dtype=float).reshape(3), rotation, translation,
-                            hx, hy, hz, float(rho), float(G), _GL_NODES, _GL_WEIGHTS, _max_points(1))
+    call (`at_point_into`). Returns (U, g, T, eU, eg, eT)."""
+    hx, hy, hz = checked_half_sizes(half_sizes)
+    out = np.empty(16)
+    at_point_into(np.ascontiguousarray(point, dtype=float).reshape(3), np.ascontiguousarray(rotation, dtype=float),
+                  np.ascontiguousarray(translation, dtype=float), hx, hy, hz, float(rho), float(G),
+                  *point_rule_tables(), out)
+    return float(out[0]), out[1:4], out[4:13].reshape(3, 3), float(out[13]), float(out[14]), float(out[15])

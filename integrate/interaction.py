@@ -13,6 +13,7 @@ skipped and the note says so, and the tightening is capped at MAX_TIGHTENING.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -167,12 +168,12 @@ def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, to
             pairs.append(result)
     if not pairs:
         return np.zeros(8), np.zeros(8), pairs, True
-    values = np.array([p.values for p in pairs]).sum(axis=0)
+    each = np.array([p.values for p in pairs])
     # absolute pair errors add; so does the rounding of summing the pairs, n ulps of the sum of their
     # sizes (which covers a total that cancels across pairs)
     errors = np.array([p.errors for p in pairs]).sum(axis=0)
-    errors = errors + len(pairs) * np.finfo(float).eps * _parts(pairs)
-    return values, errors, pairs, all(p.reached for p in pairs)
+    errors = errors + len(pairs) * np.finfo(float).eps * np.abs(each).sum(axis=0)
+    return each.sum(axis=0), errors, pairs, all(p.reached for p in pairs)
 
 
 def rounding_totals(pairs) -> np.ndarray:
@@ -197,16 +198,19 @@ error means nothing, and its absolute error is then held to rtol / 100 of the pa
 def _shortfall(values, errors, axis, rtol, parts=None, scales=None) -> float:
     """How many times the errors of |F|, torque_axis and stiffness_axis exceed rtol of their sizes.
     `parts` (8,): sums of the pairs' absolute values, for the cancellation floor; `scales` (8,): sums of
-    the pairs' point-model sizes (pairs.tolerance_scales times G), for the symmetry floor."""
-    axis = np.asarray(axis, float)
-    f = np.linalg.norm(values[0:3])
-    sizes = [f, abs(values[3:6] @ axis), abs(values[6])]
+    the pairs' point-model sizes (pairs.tolerance_scales times G), for the symmetry floor.
+    (Eight numbers each: plain floats, not small numpy calls.)"""
+    v, e = np.asarray(values, float).tolist(), np.asarray(errors, float).tolist()
+    a = np.asarray(axis, float).tolist()
+    aa = [abs(x) for x in a]
+    sizes = [_norm3(v[0:3]), abs(_dot3(v[3:6], a)), abs(v[6])]
     if parts is not None:
-        floors = [np.linalg.norm(parts[0:3]), parts[3:6] @ np.abs(axis), parts[6]]
+        p = np.asarray(parts, float).tolist()
+        floors = [_norm3(p[0:3]), _dot3(p[3:6], aa), p[6]]
         sizes = [max(s, CANCELLATION_FLOOR * fl) for s, fl in zip(sizes, floors)]
     if scales is not None:
-        sizes = [max(s, SYMMETRY_FLOOR * sc) for s, sc in zip(sizes, (scales[0], scales[3], scales[6]))]
-    checks = [(np.linalg.norm(errors[0:3]), sizes[0]), (errors[3:6] @ np.abs(axis), sizes[1]), (errors[6], sizes[2])]
+        sizes = [max(s, SYMMETRY_FLOOR * float(sc)) for s, sc in zip(sizes, (scales[0], scales[3], scales[6]))]
+    checks = [(_norm3(e[0:3]), sizes[0]), (_dot3(e[3:6], aa), sizes[1]), (e[6], sizes[2])]
     worst = 0.0
     for err, size in checks:
         if size > 0:
@@ -214,10 +218,16 @@ def _shortfall(values, errors, axis, rtol, parts=None, scales=None) -> float:
     return worst
 
 
+def _norm3(x) -> float:
+    return math.sqrt(x[0] * x[0] + x[1] * x[1] + x[2] * x[2])
+
+
+def _dot3(x, y) -> float:
+    return x[0] * y[0] + x[1] * y[1] + x[2] * y[2]
+
+
 def _parts(pairs) -> np.ndarray:
     return np.sum([np.abs(p.values) for p in pairs], axis=0) if pairs else np.zeros(8)
-
-
 
 
 def compare_groups(scene, test: str = "pendulum", source: str = "attractor", position=None,
@@ -241,16 +251,17 @@ def compare_groups(scene, test: str = "pendulum", source: str = "attractor", pos
     sizes = tolerance_scale_table(tb, sb, pivot)
     values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, rtol, _tolerances(pp, G * sizes, rtol))
     scales = G * sizes.sum(axis=(0, 1))  # the pairs' point-model sizes summed (8,), SI
-    short = _shortfall(values, errors, axis, rtol, _parts(pairs), scales)
+    parts = _parts(pairs)
+    short = _shortfall(values, errors, axis, rtol, parts, scales)
     futile = False
     if short > 1.0:
         # only the refinement parts can be reduced by asking more; when the rounding parts alone fill
         # ROUNDING_SHARE of the tolerance, a retry would cost much and gain nothing
         rounding = rounding_totals(pairs)
-        short_rounding = _shortfall(values, rounding, axis, rtol, _parts(pairs), scales)
+        short_rounding = _shortfall(values, rounding, axis, rtol, parts, scales)
         futile = short_rounding >= ROUNDING_SHARE
         if not futile:
-            short_refine = _shortfall(values, np.maximum(errors - rounding, 0.0), axis, rtol, _parts(pairs), scales)
+            short_refine = _shortfall(values, np.maximum(errors - rounding, 0.0), axis, rtol, parts, scales)
             room = 1.0 - short_rounding
             tighter = max(rtol * room / (4.0 * max(short_refine, 1.0)), rtol / MAX_TIGHTENING, RTOL_FLOOR)
             values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, tighter,

@@ -16,7 +16,7 @@ MAX_ENTRIES = 4096
 _store: OrderedDict = OrderedDict()
 
 
-def _kept(body, name, make):
+def per_body(body, name, make):
     """make(body), kept in the body's own cache (a Body is frozen: its shape, placement and matter never
     change, and a changed copy gets a fresh cache); objects without one (point stand-ins) are not kept."""
     cache = getattr(body, "_cache", None)
@@ -37,12 +37,12 @@ def _frozen(a) -> np.ndarray:
 
 def body_com(body) -> np.ndarray:
     """The body's centre of mass (3,) m, world, computed once (read-only)."""
-    return _kept(body, "com", lambda b: _frozen(b.com))
+    return per_body(body, "com", lambda b: _frozen(b.com))
 
 
 def body_mass(body) -> float:
     """The body's signed mass (kg), computed once."""
-    return _kept(body, "mass", lambda b: float(b.mass))
+    return per_body(body, "mass", lambda b: float(b.mass))
 
 
 def body_sphere(body) -> tuple:
@@ -50,13 +50,13 @@ def body_sphere(body) -> tuple:
     def make(b):
         c, r = b.bounding_sphere()
         return _frozen(c), float(r)
-    return _kept(body, "sphere", make)
+    return per_body(body, "sphere", make)
 
 
 def body_key(body) -> tuple:
     """Exact identity of a body's geometry and matter (shape parameters, placement, density, mass),
     computed once per body."""
-    return _kept(body, "key", _body_key)
+    return per_body(body, "key", _body_key)
 
 
 def _body_key(body) -> tuple:

@@ -24,9 +24,11 @@ from numba import njit
 
 from truepull.geometry.errors import InputError
 from truepull.integrate.field_band import band_field
-from truepull.integrate.pair_cache import body_com, body_mass, body_sphere
+from truepull.integrate.pair_cache import body_com, body_mass, body_sphere, per_body
 from truepull.integrate.patches import BAND, body_patches
-from truepull.integrate.point_response import point_response, point_response_errors
+from truepull.integrate.field_prism import at_point_into
+from truepull.integrate.point_response import (point_response, point_response_errors, response_errors_into,
+                                              response_into)
 from truepull.integrate.sources import CLOSED_FORM_KINDS, GRADIENT_KINDS, POINTLIKE_KINDS, SourceField
 from truepull.integrate.surface_quadrature import field_tolerances, integrate_surface
 from truepull.integrate.threads import PARALLEL_MIN_WORK, kernel_threads
@@ -279,21 +281,32 @@ def _pointlike_method(test_body, source_body, field_method) -> str:
 
 def _point_box_pair(test_body, source_body, pivot, axis, G) -> PairResult:
     """A point-like test body beside (or in) a box: the prism closed form's U, g, T and their bounds at its
-    centre in one numba call (field_prism.prism_at_point), then the point response and its bounds; the
-    numbers of the general point-like route (SourceField) within rounding, without its per-call set-up."""
-    from truepull.integrate.field_prism import prism_at_point
+    centre, the point response and its bounds, in one numba call (`_point_box_kernel`); the numbers of
+    the general point-like route (SourceField, point_response) within rounding, without its set-up."""
+    from truepull.integrate.field_prism import checked_half_sizes, point_rule_tables
 
     pl = source_body.placement
-    centre = body_com(test_body)
-    U, g, T, eU, eg, eT = prism_at_point(centre, pl.rotation, pl.translation, 0.5 * np.asarray(source_body.shape.size),
-                                         source_body.density, G)
-    if not np.all(np.isfinite(T)):
+    half = per_body(source_body, "half_sizes", lambda b: checked_half_sizes(0.5 * np.asarray(b.shape.size)))
+    out = np.empty(32)
+    if not _point_box_kernel(body_mass(test_body), body_com(test_body), pl.rotation, pl.translation, *half,
+                             float(source_body.density), float(G), pivot, axis, *point_rule_tables(), out):
         _raise_on_edge(test_body, source_body)
-    m = body_mass(test_body)
-    F, tau, K, E = point_response(m, centre, U, g, T, pivot, axis)
-    errs = point_response_errors(m, centre, pivot, axis, g, T, U, eU, eg, eT)
-    return PairResult(test_body.name, source_body.name, F, tau, K, E, errs,
-                      _pointlike_method(test_body, source_body, "prism closed form"), True, rounding=errs)
+    errs = out[24:32]
+    return PairResult(test_body.name, source_body.name, out[16:19], out[19:22], float(out[22]), float(out[23]),
+                      errs, _pointlike_method(test_body, source_body, "prism closed form"), True, rounding=errs)
+
+
+@njit(cache=True)
+def _point_box_kernel(mass, centre, rotation, translation, hx, hy, hz, rho, G, pivot, axis, nodes, weights,
+                      max_points, out):
+    """out (32,): [U, g, T, eU, eg, eT] (16, field_prism.at_point_into) of the box at the centre, then the
+    point response [F, torque, K, E] (8) and its error bounds (8). False when the gradient is not finite
+    there (the centre on an edge or corner of the box)."""
+    at_point_into(centre, rotation, translation, hx, hy, hz, rho, G, nodes, weights, max_points, out[0:16])
+    T = out[4:13].reshape(3, 3)
+    response_into(mass, centre, out[0], out[1:4], T, pivot, axis, out[16:24])
+    response_errors_into(mass, centre, pivot, axis, out[1:4], T, out[0], out[13], out[14], out[15], out[24:32])
+    return np.all(np.isfinite(T))
 
 
 def _raise_on_edge(test_body, source_body):
