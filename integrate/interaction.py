@@ -136,8 +136,8 @@ def pair_tolerances(test_bodies, source_bodies, pivot, axis, G, rtol):
 def _tolerances(pp, own, rtol):
     """pair_tolerances from the point-model pairs pp and their sizes own (n_test, n_source, 8), SI."""
     n = max(pp.shape[0] * pp.shape[1], 1)
-    tot = pp.sum(axis=(0, 1))
-    f, t = np.linalg.norm(tot[0:3]), np.linalg.norm(tot[3:6])
+    tot = pp.sum(axis=(0, 1)).tolist()
+    f, t = _norm3(tot[0:3]), _norm3(tot[3:6])
     group = np.array([f, f, f, t, t, t, abs(tot[6]), abs(tot[7])])
     share = np.maximum(group / n, SYMMETRY_FLOOR * own)
     return rtol * np.minimum(own, share)
@@ -201,18 +201,20 @@ def _shortfall(values, errors, axis, rtol, parts=None, scales=None) -> float:
     the pairs' point-model sizes (pairs.tolerance_scales times G), for the symmetry floor.
     (Eight numbers each: plain floats, not small numpy calls.)"""
     v, e = np.asarray(values, float).tolist(), np.asarray(errors, float).tolist()
-    a = np.asarray(axis, float).tolist()
-    aa = [abs(x) for x in a]
-    sizes = [_norm3(v[0:3]), abs(_dot3(v[3:6], a)), abs(v[6])]
+    a = np.abs(np.asarray(axis, float)).tolist()
+    size_f, size_t, size_k = _norm3(v[0:3]), abs(_dot3(v[3:6], np.asarray(axis, float).tolist())), abs(v[6])
     if parts is not None:
         p = np.asarray(parts, float).tolist()
-        floors = [_norm3(p[0:3]), _dot3(p[3:6], aa), p[6]]
-        sizes = [max(s, CANCELLATION_FLOOR * fl) for s, fl in zip(sizes, floors)]
+        size_f = max(size_f, CANCELLATION_FLOOR * _norm3(p[0:3]))
+        size_t = max(size_t, CANCELLATION_FLOOR * _dot3(p[3:6], a))
+        size_k = max(size_k, CANCELLATION_FLOOR * p[6])
     if scales is not None:
-        sizes = [max(s, SYMMETRY_FLOOR * float(sc)) for s, sc in zip(sizes, (scales[0], scales[3], scales[6]))]
-    checks = [(_norm3(e[0:3]), sizes[0]), (_dot3(e[3:6], aa), sizes[1]), (e[6], sizes[2])]
+        sc = np.asarray(scales, float).tolist()
+        size_f = max(size_f, SYMMETRY_FLOOR * sc[0])
+        size_t = max(size_t, SYMMETRY_FLOOR * sc[3])
+        size_k = max(size_k, SYMMETRY_FLOOR * sc[6])
     worst = 0.0
-    for err, size in checks:
+    for err, size in ((_norm3(e[0:3]), size_f), (_dot3(e[3:6], a), size_t), (e[6], size_k)):
         if size > 0:
             worst = max(worst, err / (rtol * size))
     return worst

@@ -18,6 +18,7 @@ right-handed turn theta of the test body about the frame axis e.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 from numba import njit
@@ -63,9 +64,12 @@ class PairResult:
     def torque_axis(self, axis) -> float:
         return float(np.dot(self.torque, axis))
 
-    @property
+    @cached_property
     def values(self) -> np.ndarray:
-        return np.concatenate([self.force, self.torque, [self.stiffness_axis, self.energy]])
+        """[F, torque, K, E] (8,), read-only (formed once: results are kept and summed many times)."""
+        v = np.concatenate([self.force, self.torque, [self.stiffness_axis, self.energy]])
+        v.setflags(write=False)
+        return v
 
 
 def _inside_cavity(pointlike, other) -> bool:
@@ -97,8 +101,9 @@ def tolerance_scale_table(test_bodies, source_bodies, pivot) -> np.ndarray:
 def _sphere_arrays(bodies):
     """(bounding-sphere centres (n, 3), radii (n,), masses (n,), centres of mass (n, 3))."""
     spheres = [body_sphere(b) for b in bodies]
-    return (np.array([c for c, _ in spheres], float).reshape(-1, 3), np.array([r for _, r in spheres], float),
-            np.array([body_mass(b) for b in bodies], float), np.array([body_com(b) for b in bodies], float).reshape(-1, 3))
+    centres = np.array([c for c, _ in spheres], float).reshape(-1, 3)
+    coms = np.array([body_com(b) for b in bodies], float).reshape(-1, 3)
+    return centres, np.array([r for _, r in spheres], float), np.array([body_mass(b) for b in bodies], float), coms
 
 
 @njit(cache=True)
