@@ -125,12 +125,14 @@ class SourceField:
         return self._closed(U, g)
 
     def poly(self):
-        """The mesh's PolyhedronData (built once)."""
+        """The mesh's PolyhedronData (built once per body)."""
         if self._poly is None:
             from truepull.integrate.field_polyhedron import PolyhedronData
+            from truepull.integrate.pair_cache import per_body
 
-            b = self.body
-            self._poly = PolyhedronData(np.asarray(b.shape.vertices, float), np.asarray(b.shape.faces))
+            # kept with the body: every pair the body is in, and every call, share it
+            self._poly = per_body(self.body, "polyhedron", lambda b: PolyhedronData(
+                np.asarray(b.shape.vertices, float), np.asarray(b.shape.faces)))
         return self._poly
 
     def _frame_shift(self, points):
