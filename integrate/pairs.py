@@ -25,12 +25,14 @@ from numba import njit
 
 from truepull.geometry.errors import InputError
 from truepull.integrate.field_band import band_field
+from truepull.integrate.field_point import newton_into
+from truepull.integrate.field_prism import at_point_into
 from truepull.integrate.pair_cache import body_com, body_mass, body_sphere, per_body
 from truepull.integrate.patches import BAND, body_patches
-from truepull.integrate.field_prism import at_point_into
 from truepull.integrate.point_response import (point_response, point_response_errors, response_errors_into,
                                               response_into)
-from truepull.integrate.sources import CLOSED_FORM_KINDS, GRADIENT_KINDS, POINTLIKE_KINDS, SourceField
+from truepull.integrate.sources import (CLOSED_FORM_KINDS, CLOSED_FORM_RTOL, GRADIENT_KINDS, POINTLIKE_KINDS,
+                                       SourceField)
 from truepull.integrate.surface_quadrature import field_tolerances, integrate_surface
 from truepull.integrate.threads import PARALLEL_MIN_WORK, kernel_threads
 
@@ -160,13 +162,16 @@ def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=No
 def _point_box_route(test_body, source_body, pivot, axis, G) -> PairResult | None:
     """A point-like body (not holding the other in a shell's cavity) paired with a box: `_point_box_pair`
     directly (one-thread numba, nothing to set up), with Newton's third law when the box is the test
-    body; None for every other pair."""
+    body; two point-like bodies outside each other: `_newton_pair`; None for every other pair."""
     tk, sk = test_body.shape.kind, source_body.shape.kind
-    if not ((tk in POINTLIKE_KINDS and sk == "box") or (sk in POINTLIKE_KINDS and tk == "box")):
+    newton = tk in POINTLIKE_KINDS and sk in POINTLIKE_KINDS
+    if not (newton or (tk in POINTLIKE_KINDS and sk == "box") or (sk in POINTLIKE_KINDS and tk == "box")):
         return None
     pivot = np.asarray(pivot, float)
     axis = np.asarray(axis, float)
     axis = axis / np.sqrt(axis.dot(axis))
+    if newton:
+        return _newton_pair(test_body, source_body, pivot, axis, G)
     if sk == "box":
         return None if _inside_cavity(test_body, source_body) else _point_box_pair(test_body, source_body, pivot,
                                                                                   axis, G)
@@ -311,6 +316,52 @@ def _point_box_kernel(mass, centre, rotation, translation, hx, hy, hz, rho, G, p
     T = out[4:13].reshape(3, 3)
     response_into(mass, centre, out[0], out[1:4], T, pivot, axis, out[16:24])
     response_errors_into(mass, centre, pivot, axis, out[1:4], T, out[0], out[13], out[14], out[15], out[24:32])
+    return np.all(np.isfinite(T))
+
+
+def _newton_pair(test_body, source_body, pivot, axis, G) -> PairResult | None:
+    """Two point-like bodies, the test body's centre outside the source (a point, a sphere, or a shell
+    with the centre beyond its outer radius) and no source in a test shell's cavity: Newton's field of
+    the source's mass at the centre and the point response, with the bounds of
+    SourceField.rounding_bounds for point-like sources, in one numba call (`_newton_kernel`); None
+    otherwise (the general route then handles the cavity and the shell's inside)."""
+    if test_body.shape.kind == "shell" and _cavity_holds(test_body, source_body):
+        return None
+    centre, com = body_com(test_body), body_com(source_body)
+    if source_body.shape.kind == "shell":
+        d = centre - com
+        if not d.dot(d) >= source_body.shape.radius ** 2:
+            return None
+    out = np.empty(16)
+    if not _newton_kernel(body_mass(test_body), centre, body_mass(source_body), com,
+                          source_body.placement.translation, float(G), pivot, axis, out):
+        _raise_on_edge(test_body, source_body)
+    errs = out[8:16]
+    return PairResult(test_body.name, source_body.name, out[0:3], out[3:6], float(out[6]), float(out[7]), errs,
+                      _pointlike_method(test_body, source_body, ""), True, rounding=errs)
+
+
+@njit(cache=True)
+def _newton_kernel(mass, centre, source_mass, source_com, source_translation, G, pivot, axis, out):
+    """out (16,): the point response [F, torque, K, E] (8) of `mass` at `centre` in Newton's field of
+    `source_mass` at `source_com` (field_point.newton_into), and its error bounds (8) from the point-like
+    sources' rounding bounds (SourceField.rounding_bounds): CLOSED_FORM_RTOL of U, |g|, |T| plus the
+    frame change's shift of the point through the field's derivatives. False if T is not finite."""
+    eps = 2.220446049250313e-16
+    g = np.empty(3)
+    T = np.empty((3, 3))
+    U = newton_into(centre, source_com, G * source_mass, g, T)
+    response_into(mass, centre, U, g, T, pivot, axis, out[0:8])
+    shift = 4.0 * eps * (max(abs(centre[0]), max(abs(centre[1]), abs(centre[2])))
+                         + max(abs(source_translation[0]), max(abs(source_translation[1]), abs(source_translation[2]))))
+    gn = np.sqrt(g[0] * g[0] + g[1] * g[1] + g[2] * g[2])
+    nT = np.sqrt(np.sum(T * T))
+    d0, d1, d2 = centre[0] - source_com[0], centre[1] - source_com[1], centre[2] - source_com[2]
+    r = max(np.sqrt(d0 * d0 + d1 * d1 + d2 * d2), 1e-300)
+    eU = CLOSED_FORM_RTOL * abs(U) + shift * gn
+    eg = CLOSED_FORM_RTOL * gn + shift * nT
+    eT = CLOSED_FORM_RTOL * nT + shift * 3.0 * nT / r
+    response_errors_into(mass, centre, pivot, axis, g, T, U, eU, eg, eT, out[8:16])
     return np.all(np.isfinite(T))
 
 
