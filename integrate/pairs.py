@@ -267,10 +267,8 @@ def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:
         return _point_box_pair(test_body, source_body, pivot, axis, G)
     field = SourceField(source_body, G)
     c = test_body.com[None, :]
-    # the values alone where a closed form's bounds would be computed twice (rounding_bounds below
-    # bounds U, g and T together)
-    values = _values_function(field)
-    U, g = values(c) if values is not None else field.field(c)[:2]
+    # a mesh's field comes with its rounding bounds from one pass, kept for rounding_bounds below
+    U, g = field.field(c)[:2]
     T = field.gradient(c)[0]
     if not np.all(np.isfinite(T)):
         _raise_on_edge(test_body, source_body)
