@@ -25,6 +25,7 @@ from truepull.integrate.pairs import PairResult, pair_interaction, tolerance_sca
 from truepull.integrate.point_model import point_pair_values
 
 RTOL_FLOOR = 1e-14
+EPS = np.finfo(float).eps
 MAX_TIGHTENING = 1e3
 """The retry asks at most this many times less than the first pass (its cost grows with the digits)."""
 ROUNDING_SHARE = 0.5
@@ -148,6 +149,13 @@ def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, to
     absolute per-pair tolerances (default: pair_tolerances)."""
     if tols is None:
         tols = pair_tolerances(test_bodies, source_bodies, pivot, axis, G, rtol)
+    pairs = _pair_results(test_bodies, source_bodies, pivot, axis, G, rtol, tols)
+    values, errors, _ = _pair_totals(pairs)
+    return values, errors, pairs, all(p.reached for p in pairs)
+
+
+def _pair_results(test_bodies, source_bodies, pivot, axis, G, rtol, tols) -> list[PairResult]:
+    """Every pair's result at the tolerances `tols` (n_test, n_source, 8), from the pair memory or computed."""
     # tolerances rounded down to a power of two: a slightly changed scene keeps its other pairs' keys
     tols = np.exp2(np.floor(np.log2(np.maximum(tols, 1e-300))))
     pivot = np.asarray(pivot, float)
@@ -166,14 +174,20 @@ def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, to
             elif result.test != t.name or result.source != s.name:
                 result = replace(result, test=t.name, source=s.name)
             pairs.append(result)
+    return pairs
+
+
+def _pair_totals(pairs):
+    """(values (8,), errors (8,), parts (8,)) of a list of pair results: the summed values, the summed
+    errors with the rounding of the sum, and the sums of the pairs' absolute values."""
     if not pairs:
-        return np.zeros(8), np.zeros(8), pairs, True
+        return np.zeros(8), np.zeros(8), np.zeros(8)
     each = np.array([p.values for p in pairs])
+    parts = np.abs(each).sum(axis=0)
     # absolute pair errors add; so does the rounding of summing the pairs, n ulps of the sum of their
     # sizes (which covers a total that cancels across pairs)
-    errors = np.array([p.errors for p in pairs]).sum(axis=0)
-    errors = errors + len(pairs) * np.finfo(float).eps * np.abs(each).sum(axis=0)
-    return each.sum(axis=0), errors, pairs, all(p.reached for p in pairs)
+    errors = np.array([p.errors for p in pairs]).sum(axis=0) + len(pairs) * EPS * parts
+    return each.sum(axis=0), errors, parts
 
 
 def rounding_totals(pairs) -> np.ndarray:
@@ -181,7 +195,7 @@ def rounding_totals(pairs) -> np.ndarray:
     parts (zero for a pair that does not say) and the rounding of summing them."""
     known = [p.rounding for p in pairs if p.rounding is not None]
     own = np.sum(known, axis=0) if known else np.zeros(8)
-    return own + len(pairs) * np.finfo(float).eps * _parts(pairs)
+    return own + len(pairs) * EPS * _parts(pairs)
 
 
 SYMMETRY_FLOOR = 1e-3
@@ -251,9 +265,9 @@ def compare_groups(scene, test: str = "pendulum", source: str = "attractor", pos
     # the point model's pairs and their sizes, once: for the pair tolerances, the floors and the output
     pp = point_pair_values(tb, sb, pivot, axis, G)
     sizes = tolerance_scale_table(tb, sb, pivot)
-    values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, rtol, _tolerances(pp, G * sizes, rtol))
+    pairs = _pair_results(tb, sb, pivot, axis, G, rtol, _tolerances(pp, G * sizes, rtol))
+    values, errors, parts = _pair_totals(pairs)
     scales = G * sizes.sum(axis=(0, 1))  # the pairs' point-model sizes summed (8,), SI
-    parts = _parts(pairs)
     short = _shortfall(values, errors, axis, rtol, parts, scales)
     futile = False
     if short > 1.0:
@@ -266,9 +280,10 @@ def compare_groups(scene, test: str = "pendulum", source: str = "attractor", pos
             short_refine = _shortfall(values, np.maximum(errors - rounding, 0.0), axis, rtol, parts, scales)
             room = 1.0 - short_rounding
             tighter = max(rtol * room / (4.0 * max(short_refine, 1.0)), rtol / MAX_TIGHTENING, RTOL_FLOOR)
-            values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, tighter,
-                                                                _tolerances(pp, G * sizes, tighter))
-            short = _shortfall(values, errors, axis, rtol, _parts(pairs), scales)
+            pairs = _pair_results(tb, sb, pivot, axis, G, tighter, _tolerances(pp, G * sizes, tighter))
+            values, errors, parts = _pair_totals(pairs)
+            short = _shortfall(values, errors, axis, rtol, parts, scales)
+    reached = all(p.reached for p in pairs)
     if short > 1.0:
         reached = False
         why = " (mostly rounding bounds, which refinement cannot reduce)" if futile else ""
