@@ -30,6 +30,8 @@ the average of the two sides, on an edge or vertex it is not finite.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from numba import njit, prange
 
@@ -306,6 +308,29 @@ def _quadrature_point(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights):
     return pot * vol, jx * vol, jy * vol, jz * vol
 
 
+@njit(cache=True)
+def _scratch():
+    """Scratch arrays (D, Om, X, Y, Z, R) of _closed_form_parts for one point at a time."""
+    return np.empty((3, 2, 2)), np.empty((3, 2)), np.empty(2), np.empty(2), np.empty(2), np.empty((2, 2, 2))
+
+
+@njit(cache=True)
+def _rule(px, py, pz, hx, hy, hz, allow_quadrature, max_points):
+    """_choose_rule, or (0, 0, 0) (the closed form) when the quadrature is not allowed."""
+    if allow_quadrature:
+        return _choose_rule(px, py, pz, hx, hy, hz, max_points)
+    return 0, 0, 0
+
+
+@njit(cache=True)
+def _field_at(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, D, Om, X, Y, Z, R):
+    """(I, Jx, Jy, Jz) of _closed_form_point at one point, by the far-field rule (nx, ny, nz) of
+    _choose_rule, or by the closed form when nx is 0; D ... R are scratch arrays."""
+    if nx > 0:
+        return _quadrature_point(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights)
+    return _closed_form_point(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R)
+
+
 @njit(cache=True, parallel=True)
 def _prism_field_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights, max_points):
     n = points.shape[0]
@@ -314,24 +339,11 @@ def _prism_field_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, wei
     scale = G * rho
     n_chunks = (n + _CHUNK - 1) // _CHUNK
     for c in prange(n_chunks):
-        D = np.empty((3, 2, 2))
-        Om = np.empty((3, 2))
-        X = np.empty(2)
-        Y = np.empty(2)
-        Z = np.empty(2)
-        R = np.empty((2, 2, 2))
+        D, Om, X, Y, Z, R = _scratch()
         for i in range(c * _CHUNK, min(n, (c + 1) * _CHUNK)):
-            px = points[i, 0]
-            py = points[i, 1]
-            pz = points[i, 2]
-            nx, ny, nz = 0, 0, 0
-            if allow_quadrature:
-                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
-            if nx > 0:
-                pot, jx, jy, jz = _quadrature_point(px, py, pz, hx, hy, hz, nx, ny, nz,
-                                                    nodes, weights)
-            else:
-                pot, jx, jy, jz = _closed_form_point(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R)
+            px, py, pz = points[i, 0], points[i, 1], points[i, 2]
+            nx, ny, nz = _rule(px, py, pz, hx, hy, hz, allow_quadrature, max_points)
+            pot, jx, jy, jz = _field_at(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, D, Om, X, Y, Z, R)
             U[i] = -scale * pot
             g[i, 0] = scale * jx
             g[i, 1] = scale * jy
@@ -382,6 +394,31 @@ def _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t):
     t[2, 1] += vol * acc[5]
 
 
+@njit(cache=True)
+def _gradient_at(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t, D, Om, X, Y, Z, R):
+    """t (3, 3) = integral (3 d d^T - r^2 I) / r^5 dV at one point (G rho times it is the gradient), by
+    the far-field rule (nx, ny, nz) of _choose_rule, else (nx 0) from the closed form's edge logarithms
+    and face solid angles; D ... R are scratch arrays."""
+    t[:, :] = 0.0
+    if nx > 0:
+        _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t)
+        return
+    _closed_form_parts(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R)
+    for k in range(2):
+        s = 1.0 if k == 1 else -1.0
+        for a in range(3):
+            t[a, a] -= s * Om[a, k]
+    for i2 in range(2):
+        for j2 in range(2):
+            s = 1.0 if i2 == j2 else -1.0
+            t[0, 1] += s * D[0, i2, j2]
+            t[0, 2] += s * D[1, i2, j2]
+            t[1, 2] += s * D[2, i2, j2]
+    t[1, 0] = t[0, 1]
+    t[2, 0] = t[0, 2]
+    t[2, 1] = t[1, 2]
+
+
 @njit(cache=True, parallel=True)
 def _prism_gradient_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, weights, max_points):
     n = points.shape[0]
@@ -390,37 +427,11 @@ def _prism_gradient_kernel(points, hx, hy, hz, rho, G, allow_quadrature, nodes, 
     n_chunks = (n + _CHUNK - 1) // _CHUNK
     for c in prange(n_chunks):
         t = np.empty((3, 3))
-        D = np.empty((3, 2, 2))
-        Om = np.empty((3, 2))
-        X = np.empty(2)
-        Y = np.empty(2)
-        Z = np.empty(2)
-        R = np.empty((2, 2, 2))
+        D, Om, X, Y, Z, R = _scratch()
         for i in range(c * _CHUNK, min(n, (c + 1) * _CHUNK)):
-            px = points[i, 0]
-            py = points[i, 1]
-            pz = points[i, 2]
-            t[:, :] = 0.0
-            nx, ny, nz = 0, 0, 0
-            if allow_quadrature:
-                nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
-            if nx > 0:
-                _quadrature_gradient(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t)
-            else:
-                _closed_form_parts(px, py, pz, hx, hy, hz, D, Om, X, Y, Z, R)
-                for k in range(2):
-                    s = 1.0 if k == 1 else -1.0
-                    for a in range(3):
-                        t[a, a] -= s * Om[a, k]
-                for i2 in range(2):
-                    for j2 in range(2):
-                        s = 1.0 if i2 == j2 else -1.0
-                        t[0, 1] += s * D[0, i2, j2]
-                        t[0, 2] += s * D[1, i2, j2]
-                        t[1, 2] += s * D[2, i2, j2]
-                t[1, 0] = t[0, 1]
-                t[2, 0] = t[0, 2]
-                t[2, 1] = t[1, 2]
+            px, py, pz = points[i, 0], points[i, 1], points[i, 2]
+            nx, ny, nz = _rule(px, py, pz, hx, hy, hz, allow_quadrature, max_points)
+            _gradient_at(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t, D, Om, X, Y, Z, R)
             for a in range(3):
                 for b in range(3):
                     T[i, a, b] = scale * t[a, b]
@@ -569,41 +580,47 @@ def _closed_form_bounds(c, delta, s):
 @njit(cache=True, error_model="numpy")
 def _rounding_bounds_kernel(points, hx, hy, hz, s, position_error, max_points):
     """(eU, eg, eT) (N,) of prism_rounding_bounds, one point at a time; position_error (N,) m."""
-    eps = 2.220446049250313e-16
     n = points.shape[0]
     eU = np.empty(n)
     eg = np.empty(n)
     eT = np.empty(n)
     c = np.empty((3, 2))
-    m = s * 8.0 * hx * hy * hz
-    hmax = max(hx, max(hy, hz))
     for i in range(n):
         px, py, pz = points[i, 0], points[i, 1], points[i, 2]
-        # rounding of the corner offsets, plus that of the point itself (m, e.g. from the frame change)
-        delta = eps * (max(abs(px), max(abs(py), abs(pz))) + hmax) + position_error[i]
         nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
-        if nx == 0:
-            c[0, 0], c[0, 1] = -hx - px, hx - px
-            c[1, 0], c[1, 1] = -hy - py, hy - py
-            c[2, 0], c[2, 1] = -hz - pz, hz - pz
-            eU[i], eg[i], eT[i] = _closed_form_bounds(c, delta, s)
-            continue
-        # far-field quadrature: rounding of the nested sums of positive-weight terms, bounded by the
-        # sums of |integrand| over the nodes (at most G|rho| V / dist^k), plus the rule's truncation;
-        # each term has its own few roundings (sqrt, divisions, weights, offsets: 32 ulps) and one per
-        # addition on its way through the three nested sums
-        d, far = _distances(px, py, pz, hx, hy, hz)
-        tU = tg = tT = 0.0
-        for h, order in ((hx, nx), (hy, ny), (hz, nz)):
-            u, g, t = _axis_truncation(d, far, h, order)
-            tU += u
-            tg += g
-            tT += t
-        rel = (nx + ny + nz + 32.0) * eps
-        eU[i] = rel * m / d + m * tU + 2.0 * delta * m / d ** 2
-        eg[i] = rel * m / d ** 2 + m * tg + 4.0 * delta * m / d ** 3
-        eT[i] = (3.0 + np.sqrt(3.0)) * rel * m / d ** 3 + m * tT + 12.0 * delta * m / d ** 4
+        eU[i], eg[i], eT[i] = _bounds_at(px, py, pz, hx, hy, hz, nx, ny, nz, s, position_error[i], c)
     return eU, eg, eT
+
+
+@njit(cache=True, error_model="numpy")
+def _bounds_at(px, py, pz, hx, hy, hz, nx, ny, nz, s, position_error, c):
+    """(eU, eg, eT) of prism_rounding_bounds at one point with the rule (nx, ny, nz) of _choose_rule;
+    position_error (m); c (3, 2) scratch."""
+    eps = 2.220446049250313e-16
+    m = s * 8.0 * hx * hy * hz
+    hmax = max(hx, max(hy, hz))
+    # rounding of the corner offsets, plus that of the point itself (m, e.g. from the frame change)
+    delta = eps * (max(abs(px), max(abs(py), abs(pz))) + hmax) + position_error
+    if nx == 0:
+        c[0, 0], c[0, 1] = -hx - px, hx - px
+        c[1, 0], c[1, 1] = -hy - py, hy - py
+        c[2, 0], c[2, 1] = -hz - pz, hz - pz
+        return _closed_form_bounds(c, delta, s)
+    # far-field quadrature: rounding of the nested sums of positive-weight terms, bounded by the
+    # sums of |integrand| over the nodes (at most G|rho| V / dist^k), plus the rule's truncation;
+    # each term has its own few roundings (sqrt, divisions, weights, offsets: 32 ulps) and one per
+    # addition on its way through the three nested sums
+    d, far = _distances(px, py, pz, hx, hy, hz)
+    tU = tg = tT = 0.0
+    for h, order in ((hx, nx), (hy, ny), (hz, nz)):
+        u, g, t = _axis_truncation(d, far, h, order)
+        tU += u
+        tg += g
+        tT += t
+    rel = (nx + ny + nz + 32.0) * eps
+    return (rel * m / d + m * tU + 2.0 * delta * m / d ** 2,
+            rel * m / d ** 2 + m * tg + 4.0 * delta * m / d ** 3,
+            (3.0 + np.sqrt(3.0)) * rel * m / d ** 3 + m * tT + 12.0 * delta * m / d ** 4)
 
 
 def prism_rounding_bounds(points, half_sizes, rho, G, position_error=0.0):
@@ -627,3 +644,75 @@ def prism_rounding_bounds(points, half_sizes, rho, G, position_error=0.0):
     shift = np.ascontiguousarray(np.broadcast_to(np.asarray(position_error, dtype=float), (p.shape[0],)))
     return _rounding_bounds_kernel(np.ascontiguousarray(p, dtype=float), float(h[0]), float(h[1]), float(h[2]), s,
                                    shift, _max_points(p.shape[0]))
+
+
+@njit(cache=True)
+def at_point_into(point, rotation, translation, hx, hy, hz, rho, G, nodes, weights, max_points, out):
+    """Write [U, g (3), T (9, row by row), eU, eg, eT] (16,) in world axes at one world point into `out`:
+    the numbers of prism_field, prism_gradient and prism_rounding_bounds at the point's local position,
+    turned to the world, with the frame change's rounding as sources.SourceField adds it (prism_at_point;
+    nodes, weights, max_points from `point_rule_tables`)."""
+    eps = 2.220446049250313e-16
+    local = np.empty(3)
+    for j in range(3):
+        local[j] = ((point[0] - translation[0]) * rotation[0, j] + (point[1] - translation[1]) * rotation[1, j]
+                    + (point[2] - translation[2]) * rotation[2, j])
+    px, py, pz = local[0], local[1], local[2]
+    D, Om, X, Y, Z, R = _scratch()
+    scale = G * rho
+    # one rule for the three, as the separate kernels choose it for the same point
+    nx, ny, nz = _choose_rule(px, py, pz, hx, hy, hz, max_points)
+    pot, jx, jy, jz = _field_at(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, D, Om, X, Y, Z, R)
+    t = np.empty((3, 3))
+    _gradient_at(px, py, pz, hx, hy, hz, nx, ny, nz, nodes, weights, t, D, Om, X, Y, Z, R)
+    gl0, gl1, gl2 = scale * jx, scale * jy, scale * jz
+    out[0] = -scale * pot
+    for i in range(3):
+        out[1 + i] = gl0 * rotation[i, 0] + gl1 * rotation[i, 1] + gl2 * rotation[i, 2]
+    # T = R (G rho t) R^T
+    Rt = np.empty((3, 3))
+    for i in range(3):
+        for k in range(3):
+            Rt[i, k] = (rotation[i, 0] * (scale * t[0, k]) + rotation[i, 1] * (scale * t[1, k])
+                        + rotation[i, 2] * (scale * t[2, k]))
+    nT2 = 0.0
+    for i in range(3):
+        for k in range(3):
+            v = Rt[i, 0] * rotation[k, 0] + Rt[i, 1] * rotation[k, 1] + Rt[i, 2] * rotation[k, 2]
+            out[4 + 3 * i + k] = v
+            nT2 += v * v
+    shift = 4.0 * eps * (max(abs(point[0]), max(abs(point[1]), abs(point[2])))
+                         + max(abs(translation[0]), max(abs(translation[1]), abs(translation[2]))))
+    c = np.empty((3, 2))
+    eU, eg, eT = _bounds_at(px, py, pz, hx, hy, hz, nx, ny, nz, abs(G * rho), shift, c)
+    # the rotation back to world axes: a few ulps of the rotated vector and tensor
+    out[13] = eU
+    out[14] = eg + 4.0 * eps * np.sqrt(out[1] * out[1] + out[2] * out[2] + out[3] * out[3])
+    out[15] = eT + 8.0 * eps * np.sqrt(nT2)
+
+
+def point_rule_tables():
+    """(nodes, weights, max_points) of the far-field rule for `at_point_into` (one point per call)."""
+    return _GL_NODES, _GL_WEIGHTS, _max_points(1)
+
+
+def checked_half_sizes(half_sizes) -> tuple[float, float, float]:
+    """(hx, hy, hz) as floats; InputError unless all three are positive and finite."""
+    hx, hy, hz = (float(v) for v in half_sizes)
+    if not (0.0 < hx < math.inf and 0.0 < hy < math.inf and 0.0 < hz < math.inf):
+        raise InputError(None, "size", f"a box needs three positive half-sizes, got {[hx, hy, hz]}")
+    return hx, hy, hz
+
+
+def prism_at_point(point, rotation, translation, half_sizes, rho, G):
+    """Potential U (J/kg), field g (3,) m/s^2 and gradient T (3, 3) 1/s^2 in world axes at one world
+    `point` (3,) m of the prism placed by `rotation` (local to world) and `translation` (m), with their
+    rigorous rounding bounds (eU, eg, eT): what sources.SourceField gives for a box at one point
+    (prism_field, prism_gradient, prism_rounding_bounds with the frame change's rounding) in one numba
+    call (`at_point_into`). Returns (U, g, T, eU, eg, eT)."""
+    hx, hy, hz = checked_half_sizes(half_sizes)
+    out = np.empty(16)
+    at_point_into(np.ascontiguousarray(point, dtype=float).reshape(3), np.ascontiguousarray(rotation, dtype=float),
+                  np.ascontiguousarray(translation, dtype=float), hx, hy, hz, float(rho), float(G),
+                  *point_rule_tables(), out)
+    return float(out[0]), out[1:4], out[4:13].reshape(3, 3), float(out[13]), float(out[14]), float(out[15])

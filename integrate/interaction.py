@@ -13,6 +13,7 @@ skipped and the note says so, and the tightening is capped at MAX_TIGHTENING.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -20,10 +21,11 @@ import numpy as np
 from truepull.geometry.errors import InputError
 from truepull.geometry.overlaps import bodies_overlap
 from truepull.integrate import pair_cache
-from truepull.integrate.pairs import PairResult, pair_interaction
+from truepull.integrate.pairs import PairResult, pair_interaction, tolerance_scale_table
 from truepull.integrate.point_model import point_pair_values
 
 RTOL_FLOOR = 1e-14
+EPS = np.finfo(float).eps
 MAX_TIGHTENING = 1e3
 """The retry asks at most this many times less than the first pass (its cost grows with the digits)."""
 ROUNDING_SHARE = 0.5
@@ -128,19 +130,18 @@ def pair_tolerances(test_bodies, source_bodies, pivot, axis, G, rtol):
     """Absolute tolerances (n_test, n_source, 8) per pair, so that the summed errors stay within rtol of
     the group totals: each pair gets rtol times the smaller of its own point-model size and the group's
     point-model total shared among the pairs (a floor keeps totals that vanish by symmetry workable)."""
-    from truepull.integrate.pairs import tolerance_scales
-
     pp = point_pair_values(test_bodies, source_bodies, pivot, axis, G)
+    return _tolerances(pp, G * tolerance_scale_table(test_bodies, source_bodies, pivot), rtol)
+
+
+def _tolerances(pp, own, rtol):
+    """pair_tolerances from the point-model pairs pp and their sizes own (n_test, n_source, 8), SI."""
     n = max(pp.shape[0] * pp.shape[1], 1)
-    tot = pp.sum(axis=(0, 1))
-    group = np.array([np.linalg.norm(tot[0:3])] * 3 + [np.linalg.norm(tot[3:6])] * 3 + [abs(tot[6]), abs(tot[7])])
-    tols = np.empty(pp.shape)
-    for i, t in enumerate(test_bodies):
-        for j, s in enumerate(source_bodies):
-            own = G * tolerance_scales(t, s, pivot)
-            share = np.maximum(group / n, SYMMETRY_FLOOR * own)
-            tols[i, j] = rtol * np.minimum(own, share)
-    return tols
+    tot = pp.sum(axis=(0, 1)).tolist()
+    f, t = _norm3(tot[0:3]), _norm3(tot[3:6])
+    group = np.array([f, f, f, t, t, t, abs(tot[6]), abs(tot[7])])
+    share = np.maximum(group / n, SYMMETRY_FLOOR * own)
+    return rtol * np.minimum(own, share)
 
 
 def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, tols=None):
@@ -148,14 +149,24 @@ def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, to
     absolute per-pair tolerances (default: pair_tolerances)."""
     if tols is None:
         tols = pair_tolerances(test_bodies, source_bodies, pivot, axis, G, rtol)
+    pairs = _pair_results(test_bodies, source_bodies, pivot, axis, G, rtol, tols)
+    values, errors, _ = _pair_totals(pairs)
+    return values, errors, pairs, all(p.reached for p in pairs)
+
+
+def _pair_results(test_bodies, source_bodies, pivot, axis, G, rtol, tols) -> list[PairResult]:
+    """Every pair's result at the tolerances `tols` (n_test, n_source, 8), from the pair memory or computed."""
     # tolerances rounded down to a power of two: a slightly changed scene keeps its other pairs' keys
     tols = np.exp2(np.floor(np.log2(np.maximum(tols, 1e-300))))
     pivot = np.asarray(pivot, float)
     axis = np.asarray(axis, float)
+    frame = (pivot.tobytes(), axis.tobytes(), float(G))
+    source_keys = [pair_cache.body_key(s) for s in source_bodies]
     pairs = []
     for i, t in enumerate(test_bodies):
+        tk = pair_cache.body_key(t)
         for j, s in enumerate(source_bodies):
-            key = pair_cache.pair_key(t, s, pivot, axis, float(G), tols[i, j])
+            key = (tk, source_keys[j], frame + (tols[i, j].tobytes(),))
             result = pair_cache.lookup(key)
             if result is None:
                 result = pair_interaction(t, s, pivot, axis, G, rtol, tol=tols[i, j])
@@ -163,12 +174,20 @@ def interaction_totals(test_bodies, source_bodies, pivot, axis, G, rtol=1e-9, to
             elif result.test != t.name or result.source != s.name:
                 result = replace(result, test=t.name, source=s.name)
             pairs.append(result)
-    values = np.sum([p.values for p in pairs], axis=0) if pairs else np.zeros(8)
+    return pairs
+
+
+def _pair_totals(pairs):
+    """(values (8,), errors (8,), parts (8,)) of a list of pair results: the summed values, the summed
+    errors with the rounding of the sum, and the sums of the pairs' absolute values."""
+    if not pairs:
+        return np.zeros(8), np.zeros(8), np.zeros(8)
+    each = np.array([p.values for p in pairs])
+    parts = np.abs(each).sum(axis=0)
     # absolute pair errors add; so does the rounding of summing the pairs, n ulps of the sum of their
     # sizes (which covers a total that cancels across pairs)
-    errors = np.sum([p.errors for p in pairs], axis=0) if pairs else np.zeros(8)
-    errors = errors + len(pairs) * np.finfo(float).eps * _parts(pairs)
-    return values, errors, pairs, all(p.reached for p in pairs)
+    errors = np.array([p.errors for p in pairs]).sum(axis=0) + len(pairs) * EPS * parts
+    return each.sum(axis=0), errors, parts
 
 
 def rounding_totals(pairs) -> np.ndarray:
@@ -176,7 +195,7 @@ def rounding_totals(pairs) -> np.ndarray:
     parts (zero for a pair that does not say) and the rounding of summing them."""
     known = [p.rounding for p in pairs if p.rounding is not None]
     own = np.sum(known, axis=0) if known else np.zeros(8)
-    return own + len(pairs) * np.finfo(float).eps * _parts(pairs)
+    return own + len(pairs) * EPS * _parts(pairs)
 
 
 SYMMETRY_FLOOR = 1e-3
@@ -193,32 +212,38 @@ error means nothing, and its absolute error is then held to rtol / 100 of the pa
 def _shortfall(values, errors, axis, rtol, parts=None, scales=None) -> float:
     """How many times the errors of |F|, torque_axis and stiffness_axis exceed rtol of their sizes.
     `parts` (8,): sums of the pairs' absolute values, for the cancellation floor; `scales` (8,): sums of
-    the pairs' point-model sizes (pairs.tolerance_scales times G), for the symmetry floor."""
-    axis = np.asarray(axis, float)
-    f = np.linalg.norm(values[0:3])
-    sizes = [f, abs(values[3:6] @ axis), abs(values[6])]
+    the pairs' point-model sizes (pairs.tolerance_scales times G), for the symmetry floor.
+    (Eight numbers each: plain floats, not small numpy calls.)"""
+    v, e = np.asarray(values, float).tolist(), np.asarray(errors, float).tolist()
+    a = np.abs(np.asarray(axis, float)).tolist()
+    size_f, size_t, size_k = _norm3(v[0:3]), abs(_dot3(v[3:6], np.asarray(axis, float).tolist())), abs(v[6])
     if parts is not None:
-        floors = [np.linalg.norm(parts[0:3]), parts[3:6] @ np.abs(axis), parts[6]]
-        sizes = [max(s, CANCELLATION_FLOOR * fl) for s, fl in zip(sizes, floors)]
+        p = np.asarray(parts, float).tolist()
+        size_f = max(size_f, CANCELLATION_FLOOR * _norm3(p[0:3]))
+        size_t = max(size_t, CANCELLATION_FLOOR * _dot3(p[3:6], a))
+        size_k = max(size_k, CANCELLATION_FLOOR * p[6])
     if scales is not None:
-        sizes = [max(s, SYMMETRY_FLOOR * sc) for s, sc in zip(sizes, (scales[0], scales[3], scales[6]))]
-    checks = [(np.linalg.norm(errors[0:3]), sizes[0]), (errors[3:6] @ np.abs(axis), sizes[1]), (errors[6], sizes[2])]
+        sc = np.asarray(scales, float).tolist()
+        size_f = max(size_f, SYMMETRY_FLOOR * sc[0])
+        size_t = max(size_t, SYMMETRY_FLOOR * sc[3])
+        size_k = max(size_k, SYMMETRY_FLOOR * sc[6])
     worst = 0.0
-    for err, size in checks:
+    for err, size in ((_norm3(e[0:3]), size_f), (_dot3(e[3:6], a), size_t), (e[6], size_k)):
         if size > 0:
             worst = max(worst, err / (rtol * size))
     return worst
 
 
+def _norm3(x) -> float:
+    return math.sqrt(x[0] * x[0] + x[1] * x[1] + x[2] * x[2])
+
+
+def _dot3(x, y) -> float:
+    return x[0] * y[0] + x[1] * y[1] + x[2] * y[2]
+
+
 def _parts(pairs) -> np.ndarray:
     return np.sum([np.abs(p.values) for p in pairs], axis=0) if pairs else np.zeros(8)
-
-
-def _point_scales(test_bodies, source_bodies, pivot, G) -> np.ndarray:
-    """Sum over the pairs of their point-model sizes (8,), SI (see pairs.tolerance_scales)."""
-    from truepull.integrate.pairs import tolerance_scales
-
-    return G * np.sum([tolerance_scales(t, s, pivot) for t in test_bodies for s in source_bodies], axis=0)
 
 
 def compare_groups(scene, test: str = "pendulum", source: str = "attractor", position=None,
@@ -237,28 +262,32 @@ def compare_groups(scene, test: str = "pendulum", source: str = "attractor", pos
         raise InputError(scene.path, "--source", "test and source groups must differ")
     pivot, axis, G = sc.frame.pivot, sc.frame.axis, sc.G.value
     notes = check_separated(tb, sb, scene.path)
-    values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, rtol)
-    scales = _point_scales(tb, sb, pivot, G)
-    short = _shortfall(values, errors, axis, rtol, _parts(pairs), scales)
+    # the point model's pairs and their sizes, once: for the pair tolerances, the floors and the output
+    pp = point_pair_values(tb, sb, pivot, axis, G)
+    sizes = tolerance_scale_table(tb, sb, pivot)
+    pairs = _pair_results(tb, sb, pivot, axis, G, rtol, _tolerances(pp, G * sizes, rtol))
+    values, errors, parts = _pair_totals(pairs)
+    scales = G * sizes.sum(axis=(0, 1))  # the pairs' point-model sizes summed (8,), SI
+    short = _shortfall(values, errors, axis, rtol, parts, scales)
     futile = False
     if short > 1.0:
         # only the refinement parts can be reduced by asking more; when the rounding parts alone fill
         # ROUNDING_SHARE of the tolerance, a retry would cost much and gain nothing
         rounding = rounding_totals(pairs)
-        short_rounding = _shortfall(values, rounding, axis, rtol, _parts(pairs), scales)
+        short_rounding = _shortfall(values, rounding, axis, rtol, parts, scales)
         futile = short_rounding >= ROUNDING_SHARE
         if not futile:
-            short_refine = _shortfall(values, np.maximum(errors - rounding, 0.0), axis, rtol, _parts(pairs), scales)
+            short_refine = _shortfall(values, np.maximum(errors - rounding, 0.0), axis, rtol, parts, scales)
             room = 1.0 - short_rounding
             tighter = max(rtol * room / (4.0 * max(short_refine, 1.0)), rtol / MAX_TIGHTENING, RTOL_FLOOR)
-            values, errors, pairs, reached = interaction_totals(tb, sb, pivot, axis, G, tighter,
-                                                                pair_tolerances(tb, sb, pivot, axis, G, tighter))
-            short = _shortfall(values, errors, axis, rtol, _parts(pairs), scales)
+            pairs = _pair_results(tb, sb, pivot, axis, G, tighter, _tolerances(pp, G * sizes, tighter))
+            values, errors, parts = _pair_totals(pairs)
+            short = _shortfall(values, errors, axis, rtol, parts, scales)
+    reached = all(p.reached for p in pairs)
     if short > 1.0:
         reached = False
         why = " (mostly rounding bounds, which refinement cannot reduce)" if futile else ""
         notes.append(f"tolerance {rtol:g} not reached: errors are up to {short:.3g} times the tolerance{why}")
-    pp = point_pair_values(tb, sb, pivot, axis, G)
     pos_name = sc.position if position is not None else None
     return Comparison(
         position=pos_name, test=test, source=source, G=G, rtol=rtol, axis=np.asarray(axis, float),

@@ -16,8 +16,50 @@ MAX_ENTRIES = 4096
 _store: OrderedDict = OrderedDict()
 
 
+def per_body(body, name, make):
+    """make(body), kept in the body's own cache (a Body is frozen: its shape, placement and matter never
+    change, and a changed copy gets a fresh cache); objects without one (point stand-ins) are not kept."""
+    cache = getattr(body, "_cache", None)
+    if cache is None:
+        return make(body)
+    key = "pair_cache." + name
+    value = cache.get(key)
+    if value is None:
+        value = cache[key] = make(body)
+    return value
+
+
+def _frozen(a) -> np.ndarray:
+    a = np.array(a, dtype=float)
+    a.setflags(write=False)
+    return a
+
+
+def body_com(body) -> np.ndarray:
+    """The body's centre of mass (3,) m, world, computed once (read-only)."""
+    return per_body(body, "com", lambda b: _frozen(b.com))
+
+
+def body_mass(body) -> float:
+    """The body's signed mass (kg), computed once."""
+    return per_body(body, "mass", lambda b: float(b.mass))
+
+
+def body_sphere(body) -> tuple:
+    """The body's bounding sphere (centre (3,) m read-only, radius m), computed once."""
+    def make(b):
+        c, r = b.bounding_sphere()
+        return _frozen(c), float(r)
+    return per_body(body, "sphere", make)
+
+
 def body_key(body) -> tuple:
-    """Exact identity of a body's geometry and matter (shape parameters, placement, density, mass)."""
+    """Exact identity of a body's geometry and matter (shape parameters, placement, density, mass),
+    computed once per body."""
+    return per_body(body, "key", _body_key)
+
+
+def _body_key(body) -> tuple:
     shape = body.shape
     if shape.kind == "mesh":
         geom = ("mesh", np.asarray(shape.vertices).tobytes(), np.asarray(shape.faces).tobytes())

@@ -17,14 +17,22 @@ right-handed turn theta of the test body about the frame axis e.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
+from numba import njit
 
 from truepull.geometry.errors import InputError
 from truepull.integrate.field_band import band_field
+from truepull.integrate.field_point import newton_into
+from truepull.integrate.field_prism import at_point_into
+from truepull.integrate.pair_cache import body_com, body_mass, body_sphere, per_body
 from truepull.integrate.patches import BAND, body_patches
-from truepull.integrate.sources import CLOSED_FORM_KINDS, GRADIENT_KINDS, POINTLIKE_KINDS, SourceField
+from truepull.integrate.point_response import (point_response, point_response_errors, response_errors_into,
+                                              response_into)
+from truepull.integrate.sources import (CLOSED_FORM_KINDS, CLOSED_FORM_RTOL, GRADIENT_KINDS, POINTLIKE_KINDS,
+                                       SourceField)
 from truepull.integrate.surface_quadrature import field_tolerances, integrate_surface
 from truepull.integrate.threads import PARALLEL_MIN_WORK, kernel_threads
 
@@ -58,50 +66,12 @@ class PairResult:
     def torque_axis(self, axis) -> float:
         return float(np.dot(self.torque, axis))
 
-    @property
+    @cached_property
     def values(self) -> np.ndarray:
-        return np.concatenate([self.force, self.torque, [self.stiffness_axis, self.energy]])
-
-
-def _cross3(a, b) -> np.ndarray:
-    """a x b of two 3-vectors, by the same products and differences as np.cross (bit for bit), without its
-    per-call array handling (a pair of points costs microseconds here, tens in np.cross)."""
-    (a0, a1, a2), (b0, b1, b2) = np.asarray(a, float).tolist(), np.asarray(b, float).tolist()
-    return np.array([a1 * b2 - a2 * b1, a2 * b0 - a0 * b2, a0 * b1 - a1 * b0])
-
-
-def point_response(mass, centre, U, g, T, pivot, axis):
-    """Force, torque, stiffness and energy on a point mass `mass` at `centre` in a field with potential
-    U, field g and gradient tensor T there (also exact for a sphere or shell, by the shell theorem)."""
-    r = np.asarray(centre, float) - pivot
-    F = mass * g
-    tau = _cross3(r, F)
-    exr = _cross3(axis, r)
-    dtau = mass * (np.dot(axis, _cross3(exr, g)) + np.dot(axis, _cross3(r, T @ exr)))
-    return F, tau, -dtau, mass * U
-
-
-def _point_response_errors(mass, centre, pivot, axis, g, T, U, eU, eg, eT):
-    """Absolute error bounds (8,) of `point_response` given absolute bounds on U, on g (vector norm)
-    and on T (Frobenius norm). Each quantity is bounded term by term, with absolute values, so that
-    cancellation is covered: K = -m (e.((e x r) x g) + e.(r x T (e x r))) gets
-    m (|e x r| eg + |r| |e x r| eT) from the field's errors, plus 16 eps times the sum of the two
-    terms' sizes and the rounding of r = centre - pivot (delta) through dK/dr."""
-    m = abs(float(mass))
-    r = np.asarray(centre, float) - pivot
-    nr = np.linalg.norm(r)
-    ng = np.linalg.norm(g)
-    nT = np.linalg.norm(T)
-    exr = np.linalg.norm(_cross3(axis, r))
-    delta = 4.0 * EPS * (np.abs(centre).max() + np.abs(pivot).max())
-    eF = m * eg + 4.0 * EPS * m * ng
-    etau = nr * eF + m * ng * (8.0 * EPS * nr + 2.0 * delta)
-    k1 = m * exr * ng
-    k2 = m * nr * exr * nT
-    eK = m * (exr * eg + nr * exr * eT) + 16.0 * EPS * (k1 + k2) + \
-        delta * m * (2.0 * ng + 3.0 * (nr + exr) * nT)
-    eE = m * eU + 4.0 * EPS * m * abs(U)
-    return np.array([eF] * 3 + [etau] * 3 + [eK, eE])
+        """[F, torque, K, E] (8,), read-only (formed once: results are kept and summed many times)."""
+        v = np.concatenate([self.force, self.torque, [self.stiffness_axis, self.energy]])
+        v.setflags(write=False)
+        return v
 
 
 def _inside_cavity(pointlike, other) -> bool:
@@ -116,15 +86,43 @@ def _cavity_holds(shell_body, other_body) -> bool:
 
 
 def tolerance_scales(test_body, source_body, pivot) -> np.ndarray:
-    """Point-model sizes of the eight quantities, used to turn a relative tolerance into absolute ones."""
-    ct, rt = test_body.bounding_sphere()
-    cs, rs = source_body.bounding_sphere()
-    mm = abs(test_body.mass * source_body.mass)
-    d = max(np.linalg.norm(test_body.com - source_body.com), 0.5 * (rt + rs), 1e-300)
-    sF = mm / d**2
-    lever = max(np.linalg.norm(ct - pivot) + rt, np.linalg.norm(cs - pivot) + rs)
-    sT = sF * lever
-    return np.array([sF, sF, sF, sT, sT, sT, sT, mm / d])
+    """Point-model sizes of the eight quantities, used to turn a relative tolerance into absolute ones
+    (one pair of `tolerance_scale_table`)."""
+    return tolerance_scale_table([test_body], [source_body], pivot)[0, 0]
+
+
+def tolerance_scale_table(test_bodies, source_bodies, pivot) -> np.ndarray:
+    """tolerance_scales of every pair (n_test, n_source, 8), per G: |m_t m_s| / d^2 for the force, times
+    the larger lever (bounding sphere's reach from the pivot) for torque and stiffness, |m_t m_s| / d for
+    the energy; d the distance of the centres of mass, at least half the bounding radii's sum."""
+    ct, rt, mt, kt = _sphere_arrays(test_bodies)
+    cs, rs, ms, ks = _sphere_arrays(source_bodies)
+    return _scale_kernel(ct, rt, mt, kt, cs, rs, ms, ks, np.asarray(pivot, float).reshape(3))
+
+
+def _sphere_arrays(bodies):
+    """(bounding-sphere centres (n, 3), radii (n,), masses (n,), centres of mass (n, 3))."""
+    spheres = [body_sphere(b) for b in bodies]
+    centres = np.array([c for c, _ in spheres], float).reshape(-1, 3)
+    coms = np.array([body_com(b) for b in bodies], float).reshape(-1, 3)
+    return centres, np.array([r for _, r in spheres], float), np.array([body_mass(b) for b in bodies], float), coms
+
+
+@njit(cache=True)
+def _scale_kernel(ct, rt, mt, kt, cs, rs, ms, ks, pivot):
+    out = np.empty((ct.shape[0], cs.shape[0], 8))
+    for i in range(ct.shape[0]):
+        reach_t = np.sqrt(np.sum((ct[i] - pivot) ** 2)) + rt[i]
+        for j in range(cs.shape[0]):
+            mm = abs(mt[i] * ms[j])
+            d = max(np.sqrt(np.sum((kt[i] - ks[j]) ** 2)), 0.5 * (rt[i] + rs[j]), 1e-300)
+            sF = mm / d ** 2
+            lever = max(reach_t, np.sqrt(np.sum((cs[j] - pivot) ** 2)) + rs[j])
+            sT = sF * lever
+            out[i, j, 0:3] = sF
+            out[i, j, 3:7] = sT
+            out[i, j, 7] = mm / d
+    return out
 
 
 ORDERS = ((1e-6, 8), (0.0, 10))
@@ -154,8 +152,39 @@ def pair_interaction(test_body, source_body, pivot, axis, G, rtol=1e-9, order=No
         from truepull.integrate.linear_density import gradient_pair
 
         return gradient_pair(test_body, source_body, pivot, axis, G, rtol, order, tol)
+    direct = _point_box_route(test_body, source_body, pivot, axis, G)
+    if direct is not None:
+        return direct
     with kernel_threads(PARALLEL_MIN_WORK):
         return _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol)
+
+
+def _point_box_route(test_body, source_body, pivot, axis, G) -> PairResult | None:
+    """A point-like body (not holding the other in a shell's cavity) paired with a box: `_point_box_pair`
+    directly (one-thread numba, nothing to set up), with Newton's third law when the box is the test
+    body; two point-like bodies outside each other: `_newton_pair`; None for every other pair."""
+    tk, sk = test_body.shape.kind, source_body.shape.kind
+    newton = tk in POINTLIKE_KINDS and sk in POINTLIKE_KINDS
+    if not (newton or (tk in POINTLIKE_KINDS and sk == "box") or (sk in POINTLIKE_KINDS and tk == "box")):
+        return None
+    pivot = np.asarray(pivot, float)
+    axis = np.asarray(axis, float)
+    axis = axis / np.sqrt(axis.dot(axis))
+    if newton:
+        return _newton_pair(test_body, source_body, pivot, axis, G)
+    if sk == "box":
+        return None if _inside_cavity(test_body, source_body) else _point_box_pair(test_body, source_body, pivot,
+                                                                                  axis, G)
+    if _inside_cavity(source_body, test_body):
+        return None
+    return _third_law(_point_box_pair(source_body, test_body, pivot, axis, G), test_body, source_body)
+
+
+def _third_law(r, test_body, source_body) -> PairResult:
+    """The pair result `r` found for the other body, as felt by `test_body`: force and torque reversed
+    (Newton's third law; the torques about one pivot cancel too), stiffness and energy the same."""
+    return PairResult(test_body.name, source_body.name, -r.force, -r.torque, r.stiffness_axis, r.energy,
+                      r.errors, r.method, r.reached, r.evaluations, r.rounding)
 
 
 def _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol) -> PairResult:
@@ -169,8 +198,7 @@ def _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol) 
     if tk in POINTLIKE_KINDS and sk in GRADIENT_KINDS and not _inside_cavity(test_body, source_body):
         return _pointlike_pair(test_body, source_body, pivot, axis, G)
     if sk in POINTLIKE_KINDS and tk in GRADIENT_KINDS and not _inside_cavity(source_body, test_body):
-        r = _pointlike_pair(source_body, test_body, pivot, axis, G)
-        return replace(r, test=test_body.name, source=source_body.name, force=-r.force, torque=-r.torque)
+        return _third_law(_pointlike_pair(source_body, test_body, pivot, axis, G), test_body, source_body)
     swap = SOURCE_PREFERENCE.index(tk) < SOURCE_PREFERENCE.index(sk)
     integ, src = (source_body, test_body) if swap else (test_body, source_body)
     field = SourceField(src, G)
@@ -235,24 +263,108 @@ def _pointlike_pair(test_body, source_body, pivot, axis, G) -> PairResult:
         z = np.zeros(3)
         return PairResult(test_body.name, source_body.name, z, z.copy(), 0.0, 0.0, np.zeros(8),
                           "shell theorem (source inside the test shell's cavity)", True)
+    if source_body.shape.kind == "box":
+        return _point_box_pair(test_body, source_body, pivot, axis, G)
     field = SourceField(source_body, G)
     c = test_body.com[None, :]
-    # the values alone where a closed form's bounds would be computed twice (rounding_bounds below
-    # bounds U, g and T together)
-    values = _values_function(field)
-    U, g = values(c) if values is not None else field.field(c)[:2]
+    # a mesh's field comes with its rounding bounds from one pass, kept for rounding_bounds below
+    U, g = field.field(c)[:2]
     T = field.gradient(c)[0]
     if not np.all(np.isfinite(T)):
-        raise InputError(None, f"body[{test_body.name}] / body[{source_body.name}]",
-                         f"the centre of '{test_body.name}' lies on an edge or corner of "
-                         f"'{source_body.name}', where the gradient of its field (and so the stiffness) "
-                         "is infinite; move it off the edge (a point on a face is fine)")
+        _raise_on_edge(test_body, source_body)
     F, tau, K, E = point_response(test_body.mass, test_body.com, U[0], g[0], T, pivot, axis)
     eU, eg, eT = (x[0] for x in field.rounding_bounds(c, U, g, T[None]))
-    errs = _point_response_errors(test_body.mass, test_body.com, pivot, axis, g[0], T, U[0], eU, eg, eT)
-    how = ("Newton with the shell theorem (exact)" if source_body.shape.kind in POINTLIKE_KINDS else
-           f"{field.method} of {source_body.shape.kind} '{source_body.name}' at the centre of "
-           f"{test_body.shape.kind} '{test_body.name}' (mean-value property, exact)")
+    errs = point_response_errors(test_body.mass, test_body.com, pivot, axis, g[0], T, U[0], eU, eg, eT)
     # a closed form's errors are all rounding: no refinement can reduce them
-    return PairResult(test_body.name, source_body.name, F, tau, float(K), float(E), errs, how, True,
-                      rounding=errs)
+    return PairResult(test_body.name, source_body.name, F, tau, float(K), float(E), errs,
+                      _pointlike_method(test_body, source_body, field.method), True, rounding=errs)
+
+
+def _pointlike_method(test_body, source_body, field_method) -> str:
+    if source_body.shape.kind in POINTLIKE_KINDS:
+        return "Newton with the shell theorem (exact)"
+    return (f"{field_method} of {source_body.shape.kind} '{source_body.name}' at the centre of "
+            f"{test_body.shape.kind} '{test_body.name}' (mean-value property, exact)")
+
+
+def _point_box_pair(test_body, source_body, pivot, axis, G) -> PairResult:
+    """A point-like test body beside (or in) a box: the prism closed form's U, g, T and their bounds at its
+    centre, the point response and its bounds, in one numba call (`_point_box_kernel`); the numbers of
+    the general point-like route (SourceField, point_response) within rounding, without its set-up."""
+    from truepull.integrate.field_prism import checked_half_sizes, point_rule_tables
+
+    pl = source_body.placement
+    half = per_body(source_body, "half_sizes", lambda b: checked_half_sizes(0.5 * np.asarray(b.shape.size)))
+    out = np.empty(32)
+    if not _point_box_kernel(body_mass(test_body), body_com(test_body), pl.rotation, pl.translation, *half,
+                             float(source_body.density), float(G), pivot, axis, *point_rule_tables(), out):
+        _raise_on_edge(test_body, source_body)
+    errs = out[24:32]
+    return PairResult(test_body.name, source_body.name, out[16:19], out[19:22], float(out[22]), float(out[23]),
+                      errs, _pointlike_method(test_body, source_body, "prism closed form"), True, rounding=errs)
+
+
+@njit(cache=True)
+def _point_box_kernel(mass, centre, rotation, translation, hx, hy, hz, rho, G, pivot, axis, nodes, weights,
+                      max_points, out):
+    """out (32,): [U, g, T, eU, eg, eT] (16, field_prism.at_point_into) of the box at the centre, then the
+    point response [F, torque, K, E] (8) and its error bounds (8). False when the gradient is not finite
+    there (the centre on an edge or corner of the box)."""
+    at_point_into(centre, rotation, translation, hx, hy, hz, rho, G, nodes, weights, max_points, out[0:16])
+    T = out[4:13].reshape(3, 3)
+    response_into(mass, centre, out[0], out[1:4], T, pivot, axis, out[16:24])
+    response_errors_into(mass, centre, pivot, axis, out[1:4], T, out[0], out[13], out[14], out[15], out[24:32])
+    return np.all(np.isfinite(T))
+
+
+def _newton_pair(test_body, source_body, pivot, axis, G) -> PairResult | None:
+    """Two point-like bodies, the test body's centre outside the source (a point, a sphere, or a shell
+    with the centre beyond its outer radius) and no source in a test shell's cavity: Newton's field of
+    the source's mass at the centre and the point response, with the bounds of
+    SourceField.rounding_bounds for point-like sources, in one numba call (`_newton_kernel`); None
+    otherwise (the general route then handles the cavity and the shell's inside)."""
+    if test_body.shape.kind == "shell" and _cavity_holds(test_body, source_body):
+        return None
+    centre, com = body_com(test_body), body_com(source_body)
+    if source_body.shape.kind == "shell":
+        d = centre - com
+        if not d.dot(d) >= source_body.shape.radius ** 2:
+            return None
+    out = np.empty(16)
+    if not _newton_kernel(body_mass(test_body), centre, body_mass(source_body), com,
+                          source_body.placement.translation, float(G), pivot, axis, out):
+        _raise_on_edge(test_body, source_body)
+    errs = out[8:16]
+    return PairResult(test_body.name, source_body.name, out[0:3], out[3:6], float(out[6]), float(out[7]), errs,
+                      _pointlike_method(test_body, source_body, ""), True, rounding=errs)
+
+
+@njit(cache=True)
+def _newton_kernel(mass, centre, source_mass, source_com, source_translation, G, pivot, axis, out):
+    """out (16,): the point response [F, torque, K, E] (8) of `mass` at `centre` in Newton's field of
+    `source_mass` at `source_com` (field_point.newton_into), and its error bounds (8) from the point-like
+    sources' rounding bounds (SourceField.rounding_bounds): CLOSED_FORM_RTOL of U, |g|, |T| plus the
+    frame change's shift of the point through the field's derivatives. False if T is not finite."""
+    eps = 2.220446049250313e-16
+    g = np.empty(3)
+    T = np.empty((3, 3))
+    U = newton_into(centre, source_com, G * source_mass, g, T)
+    response_into(mass, centre, U, g, T, pivot, axis, out[0:8])
+    shift = 4.0 * eps * (max(abs(centre[0]), max(abs(centre[1]), abs(centre[2])))
+                         + max(abs(source_translation[0]), max(abs(source_translation[1]), abs(source_translation[2]))))
+    gn = np.sqrt(g[0] * g[0] + g[1] * g[1] + g[2] * g[2])
+    nT = np.sqrt(np.sum(T * T))
+    d0, d1, d2 = centre[0] - source_com[0], centre[1] - source_com[1], centre[2] - source_com[2]
+    r = max(np.sqrt(d0 * d0 + d1 * d1 + d2 * d2), 1e-300)
+    eU = CLOSED_FORM_RTOL * abs(U) + shift * gn
+    eg = CLOSED_FORM_RTOL * gn + shift * nT
+    eT = CLOSED_FORM_RTOL * nT + shift * 3.0 * nT / r
+    response_errors_into(mass, centre, pivot, axis, g, T, U, eU, eg, eT, out[8:16])
+    return np.all(np.isfinite(T))
+
+
+def _raise_on_edge(test_body, source_body):
+    raise InputError(None, f"body[{test_body.name}] / body[{source_body.name}]",
+                     f"the centre of '{test_body.name}' lies on an edge or corner of "
+                     f"'{source_body.name}', where the gradient of its field (and so the stiffness) "
+                     "is infinite; move it off the edge (a point on a face is fine)")

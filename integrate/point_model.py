@@ -3,28 +3,40 @@
 from __future__ import annotations
 
 import numpy as np
+from numba import njit
 
-from truepull.integrate.field_point import point_field, point_gradient
-from truepull.integrate.pairs import point_response
+from truepull.integrate.field_point import newton_into
+from truepull.integrate.pair_cache import body_com, body_mass
+from truepull.integrate.point_response import response_into
 
 
 def point_pair_values(test_bodies, source_bodies, pivot, axis, G) -> np.ndarray:
-    """(n_test, n_source, 8) array of [F(3), torque(3), K, E] on each test point from each source point."""
-    pivot = np.asarray(pivot, float)
-    axis = np.asarray(axis, float) / np.linalg.norm(axis)
-    out = np.zeros((len(test_bodies), len(source_bodies), 8))
-    for j, s in enumerate(source_bodies):
-        if s.mass == 0:
+    """(n_test, n_source, 8) array of [F(3), torque(3), K, E] on each test point from each source point
+    (NaN where a test point sits on a source point). Bodies need `mass` and `com`."""
+    pivot = np.asarray(pivot, float).reshape(3)
+    axis = np.asarray(axis, float).reshape(3)
+    axis = axis / np.linalg.norm(axis)
+    ct = np.array([body_com(t) for t in test_bodies], float).reshape(-1, 3)
+    cs = np.array([body_com(s) for s in source_bodies], float).reshape(-1, 3)
+    mt = np.array([body_mass(t) for t in test_bodies], float)
+    ms = np.array([body_mass(s) for s in source_bodies], float)
+    return _point_pairs_kernel(ct, mt, cs, ms, pivot, axis, float(G))
+
+
+@njit(cache=True)
+def _point_pairs_kernel(ct, mt, cs, ms, pivot, axis, G):
+    """Newton's field (field_point.newton_into) of each source point at each test point, through
+    response_into."""
+    out = np.zeros((ct.shape[0], cs.shape[0], 8))
+    g = np.empty(3)
+    T = np.empty((3, 3))
+    for j in range(cs.shape[0]):
+        if ms[j] == 0.0:
             continue
-        centres = np.array([t.com for t in test_bodies]).reshape(-1, 3)
-        U, g = point_field(centres, s.com[None, :], np.array([s.mass]), G)
-        T = point_gradient(centres, s.com[None, :], np.array([s.mass]), G)
-        for i, t in enumerate(test_bodies):
-            F, tau, K, E = point_response(t.mass, t.com, U[i], g[i], T[i], pivot, axis)
-            out[i, j, 0:3] = F
-            out[i, j, 3:6] = tau
-            out[i, j, 6] = K
-            out[i, j, 7] = E
+        gm = G * ms[j]
+        for i in range(ct.shape[0]):
+            U = newton_into(ct[i], cs[j], gm, g, T)
+            response_into(mt[i], ct[i], U, g, T, pivot, axis, out[i, j])
     return out
 
 

@@ -35,6 +35,7 @@ from scipy.spatial.transform import Rotation
 
 from truepull.geometry.errors import InputError
 from truepull.geometry.shapes import Box, MeshShape, Point
+from truepull.integrate.field_prism import prism_at_point
 from truepull.integrate.interaction import check_separated, interaction_totals
 from truepull.integrate.pairs import pair_interaction
 from truepull.integrate.sources import SourceField
@@ -211,6 +212,12 @@ def test_stated_errors_bound_the_true_errors_around_boxes_and_meshes(name):
         worst = max(worst, check(eU, true_error(Uc, U), sU * cond, "potential", where))
         worst = max(worst, check(eg, true_error(gc, g), sg * cond, "field", where))
         worst = max(worst, check(eT, true_error(Tc, T), sT * cond, "gradient", where))
+        if not kind_is_mesh:  # the one-call route of the point-like pairs (field_prism.prism_at_point)
+            Ua, ga, Ta, eUa, ega, eTa = prism_at_point(pw, src.placement.rotation, src.placement.translation, half,
+                                                       src.density, G)
+            worst = max(worst, check(eUa, true_error(Ua, U), sU * cond, "potential (one call)", where))
+            worst = max(worst, check(ega, true_error(ga, g), sg * cond, "field (one call)", where))
+            worst = max(worst, check(eTa, true_error(Ta, T), sT * cond, "gradient (one call)", where))
         p = point_body(pw)
         res = pair_interaction(p, src, pivot, axis, G)
         lever = np.linalg.norm(pw - pivot) + half.max()
