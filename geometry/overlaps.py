@@ -58,7 +58,7 @@ def world_bounds(body) -> tuple[np.ndarray, np.ndarray]:
 
 
 def signed_distance(shape, points_local):
-    """Signed distance (distance.py), imported on first use (numba start-up is not free)."""
+    """Signed distance (distance.py), imported on first use."""
     from truepull.geometry.distance import signed_distance as sd
 
     return sd(shape, points_local)
