@@ -11,7 +11,8 @@ Prints wall times (best of 5 new processes) and the load average before and afte
   back in front of it (building pint's unit registry, importing scipy.spatial.transform and
   scipy.constants), i.e. the time before the unit table, the Rodrigues rotations and the constant G;
   and the engine's work alone: compare again in the same process with the pair memory cleared (its
-  numba threads: one while the 1-minute load average is at least the cores less a half, threads.py).
+  numba threads: one while the 1-minute load average is at least the cores less a half, threads.py);
+- the CPU time of each stage of one drums-like compare process (less sensitive to load than wall).
 """
 
 import os
@@ -95,6 +96,44 @@ print(time.perf_counter() - t, 1 if cores_busy() else 2)
 """
 
 
+STAGES = """
+import sys, time
+c0 = time.process_time()
+marks = []
+def mark(name):
+    marks.append((name, time.process_time() - c0))
+import numpy
+mark("import numpy")
+import numba
+mark("import numba")
+import truepull.cli.main, truepull.cli.compare, truepull.api
+from truepull.geometry.scene import load_scene
+import truepull.integrate.interaction
+scene = load_scene(sys.argv[1])
+mark("truepull's modules and reading the scene")
+from numba.core.registry import cpu_target
+cpu_target.target_context.refresh()
+mark("numba's typing and target context (first dispatch)")
+from truepull.api import compare
+compare(scene)
+mark("compare: loading the cached kernels, integrating")
+last = 0.0
+for name, t in marks:
+    print(f"{t - last:.4f} {name}")
+    last = t
+"""
+
+
+def cpu_split(scene, n=3):
+    """[(stage, least CPU seconds over n processes)] of one compare process (STAGES)."""
+    runs = []
+    for _ in range(n):
+        out = subprocess.run([sys.executable, "-c", STAGES, scene], check=True, capture_output=True,
+                             text=True).stdout.splitlines()
+        runs.append([(line.split(" ", 1)[1], float(line.split(" ", 1)[0])) for line in out])
+    return [(name, min(r[k][1] for r in runs)) for k, (name, _) in enumerate(runs[0])]
+
+
 def best(code, n=5, args=()):
     t_best = float("inf")
     for _ in range(n):
@@ -138,6 +177,8 @@ def main():
             run = f"from truepull.cli.main import main; main(['compare', {scene!r}])"
             subprocess.run([sys.executable, "-c", run], check=True, stdout=subprocess.DEVNULL)  # kernels cached
             t_engine, threads = engine_alone(scene)
+            if name == "drums-like":
+                split = cpu_split(scene)
             rows += [
                 (f"{name}: truepull compare, before (old start-up work put back)", best(BEFORE + run)),
                 (f"{name}: truepull compare, now", best(run)),
@@ -147,6 +188,10 @@ def main():
     print(f"{'process':<68} {'wall s':>7}")
     for name, t in rows:
         print(f"{name:<68} {t:>7.2f}")
+    print()
+    print(f"{'drums-like compare: CPU of each stage (least of 3 processes)':<68} {'CPU s':>7}")
+    for name, t in split:
+        print(f"  {name:<66} {t:>7.3f}")
 
 
 if __name__ == "__main__":
