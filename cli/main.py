@@ -70,13 +70,25 @@ def _version() -> str:
         return "unknown"
 
 
+class _VersionAction(argparse.Action):
+    """--version: looks the installed version up only when asked (not at every start-up)."""
+
+    def __init__(self, option_strings, dest=argparse.SUPPRESS, default=argparse.SUPPRESS,
+                 help="show program's version number and exit"):
+        super().__init__(option_strings=option_strings, dest=dest, default=default, nargs=0, help=help)
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        sys.stdout.write(f"truepull {_version()}\n")
+        parser.exit()
+
+
 def build_parser(load_verbs: list[str] | None = None) -> argparse.ArgumentParser:
     parser = _OneLineParser(
         prog="truepull",
         description="Exact gravitational pull between extended bodies, beside the point-mass model.",
         epilog=EXIT_CODES, formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    parser.add_argument("--version", action="version", version=f"truepull {_version()}")
+    parser.add_argument("--version", action=_VersionAction)
     sub = parser.add_subparsers(dest="verb", metavar="VERB", parser_class=_OneLineParser)
     for verb, modname in VERBS.items():
         p = sub.add_parser(verb, help=VERB_HELP[verb], description=VERB_HELP[verb])

@@ -58,7 +58,7 @@ def world_bounds(body) -> tuple[np.ndarray, np.ndarray]:
 
 
 def signed_distance(shape, points_local):
-    """Signed distance (distance.py), imported on first use (numba start-up is not free)."""
+    """Signed distance (distance.py), imported on first use."""
     from truepull.geometry.distance import signed_distance as sd
 
     return sd(shape, points_local)
@@ -186,20 +186,44 @@ def candidate_pairs(bodies, touch_rtol: float = TOUCH_RTOL, between=None) -> lis
     return sphere_pairs(c, r, touch_rtol, between)
 
 
+DIRECT_PAIRS = 200
+"""Up to this many spheres every pair is tested directly (at most 19,900 pairs, well under a millisecond
+with numpy), which also spares a small scene the import of scipy.spatial (about 0.3 s of start-up)."""
+
+
 def sphere_pairs(c, r, touch_rtol: float = TOUCH_RTOL, between=None) -> list[tuple[int, int]]:
     """Index pairs (i < j, ascending) of the spheres (centres c (N, 3), radii r (N,), m) that meet
-    within touch_rtol of the larger radius. A k-d tree (scipy.spatial.cKDTree) over the centres finds
-    them in about N log N rather than N^2; spheres much larger than the typical one are compared with
-    all others directly, so one big body does not widen the tree's search for every small one.
-    `between` (a boolean mask) keeps only pairs with one sphere inside it and one outside."""
-    from scipy.spatial import cKDTree
-
+    within touch_rtol of the larger radius. Up to DIRECT_PAIRS spheres every pair is tested; beyond, a
+    k-d tree (scipy.spatial.cKDTree) over the centres finds the candidates in about N log N rather than
+    N^2 (`_tree_candidates`). `between` (a boolean mask) keeps only pairs with one sphere inside it and
+    one outside."""
     c = np.asarray(c, float).reshape(-1, 3)
     r = np.asarray(r, float)
     n = len(r)
     if n < 2:
         return []
     tol = touch_rtol * np.maximum(r, 1e-300)
+    if n <= DIRECT_PAIRS:
+        p = np.column_stack(np.triu_indices(n, 1)).astype(np.int64)
+    else:
+        p = _tree_candidates(c, r, touch_rtol)
+        if p is None:
+            return []
+    d = np.linalg.norm(c[p[:, 0]] - c[p[:, 1]], axis=1)
+    keep = d <= r[p[:, 0]] + r[p[:, 1]] + np.maximum(tol[p[:, 0]], tol[p[:, 1]])
+    if between is not None:
+        m = np.asarray(between, bool)
+        keep &= m[p[:, 0]] != m[p[:, 1]]
+    return [tuple(x) for x in p[keep].tolist()]
+
+
+def _tree_candidates(c, r, touch_rtol: float):
+    """Candidate pairs (M, 2) (i < j, ascending, each once) of many spheres from k-d trees, a superset
+    of the pairs that meet, or None: spheres much larger than the typical one are compared with all
+    others directly, so one big body does not widen the tree's search for every small one."""
+    from scipy.spatial import cKDTree
+
+    n = len(r)
     big = r > 4.0 * max(float(np.median(r)), 1e-300)
     found = []
     small, large = np.nonzero(~big)[0], np.nonzero(big)[0]
@@ -217,17 +241,11 @@ def sphere_pairs(c, r, touch_rtol: float = TOUCH_RTOL, between=None) -> list[tup
             if js:
                 found.append(np.column_stack([np.full(len(js), i), small[np.asarray(js, int)]]))
     if not found:
-        return []
+        return None
     p = np.vstack(found).astype(np.int64)
     # each pair once, (i, j) ascending: unique of the one-number keys i * n + j (as a row-wise unique)
     key = np.unique(np.minimum(p[:, 0], p[:, 1]) * n + np.maximum(p[:, 0], p[:, 1]))
-    p = np.column_stack([key // n, key % n])
-    d = np.linalg.norm(c[p[:, 0]] - c[p[:, 1]], axis=1)
-    keep = d <= r[p[:, 0]] + r[p[:, 1]] + np.maximum(tol[p[:, 0]], tol[p[:, 1]])
-    if between is not None:
-        m = np.asarray(between, bool)
-        keep &= m[p[:, 0]] != m[p[:, 1]]
-    return [tuple(x) for x in p[keep].tolist()]
+    return np.column_stack([key // n, key % n])
 
 
 def find_overlaps(bodies, touch_rtol: float = TOUCH_RTOL, between=None, spheres=None) -> list[tuple[str, str, str]]:

@@ -275,9 +275,8 @@ class GradientZero:
 def gradient_zeros(bodies, start, end, s_values, T_along, G, rtol=1e-9) -> list[GradientZero]:
     """Zeros of T_uu(s) = u . T . u (u the line's unit direction) between sign changes of the sampled
     values `T_along` at `s_values` (m from `start`), refined by brentq on the field itself; the
-    curvature d T_uu / d s there by a Richardson central difference of T_uu."""
-    from scipy.optimize import brentq
-
+    curvature d T_uu / d s there by a Richardson central difference of T_uu. scipy.optimize (about 0.2 s
+    to import) is imported only when there is a sign change to refine."""
     start = np.asarray(start, float)
     end = np.asarray(end, float)
     length = float(np.linalg.norm(end - start))
@@ -296,6 +295,8 @@ def gradient_zeros(bodies, start, end, s_values, T_along, G, rtol=1e-9) -> list[
         if fa == 0.0:
             root = a
         elif fa * fb < 0.0:
+            from scipy.optimize import brentq
+
             root = brentq(lambda s: float(tuu(s)[0][0]), a, b, xtol=1e-15 * max(length, 1.0), rtol=4.0 * np.finfo(float).eps)
         else:
             continue

@@ -84,3 +84,15 @@ def test_ctrl_c_exits_130_quietly(tmp_path):
     _, err = proc.communicate(timeout=60)
     assert proc.returncode == 130, err
     assert err.endswith("truepull: interrupted\n") and "Traceback" not in err and "Warning" not in err, err
+
+
+def test_version_is_the_installed_one(capsys):
+    # --version reads the version only when asked; it must be the installed distribution's
+    # (importlib.metadata, the standard library's record of the install, as the reference)
+    from importlib.metadata import version
+
+    try:
+        main(["--version"])
+    except SystemExit as exc:
+        assert exc.code in (0, None)
+    assert capsys.readouterr().out == f"truepull {version('truepull')}\n"

@@ -135,3 +135,32 @@ def test_sphere_pairs_are_the_meeting_spheres_of_a_brute_force_search():
     assert (10, 11) in expected
     mask = rng.uniform(size=n) < 0.3
     assert sphere_pairs(c, r, between=mask) == [p for p in expected if mask[p[0]] != mask[p[1]]]
+
+
+def test_sphere_pairs_without_the_tree_are_the_same_pairs(monkeypatch):
+    # a few spheres are tested pair by pair (no k-d tree); reference as above: scipy's cdist; and the
+    # tree on the same spheres (DIRECT_PAIRS lowered) gives the same list
+    from scipy.spatial.distance import cdist
+
+    from truepull.geometry import overlaps
+
+    rng = np.random.default_rng(11)
+    n = 120
+    c = rng.uniform(0, 1, (n, 3))
+    r = rng.uniform(0.01, 0.08, n)
+    r[:3] = 0.4
+    c[20] = c[21] + np.array([0, r[20] + r[21], 0])  # touching along y
+    assert n <= overlaps.DIRECT_PAIRS
+    d = cdist(c, c)
+    i, j = np.triu_indices(n, 1)
+    meet = d[i, j] <= r[i] + r[j] + overlaps.TOUCH_RTOL * np.maximum(r[i], r[j])
+    expected = [(int(a), int(b)) for a, b in zip(i[meet], j[meet])]
+    direct = overlaps.sphere_pairs(c, r)
+    assert direct == expected and (20, 21) in direct
+    mask = rng.uniform(size=n) < 0.4
+    direct_between = overlaps.sphere_pairs(c, r, between=mask)
+    assert direct_between == [p for p in expected if mask[p[0]] != mask[p[1]]]
+    monkeypatch.setattr(overlaps, "DIRECT_PAIRS", 1)
+    assert overlaps.sphere_pairs(c, r) == direct
+    assert overlaps.sphere_pairs(c, r, between=mask) == direct_between
+    assert overlaps.sphere_pairs(c[:2] + [[0, 0, 0], [5, 0, 0]], r[:2]) == []  # far apart: no pair at all

@@ -38,3 +38,19 @@ def test_other_units_fall_back_to_pint():
         si_factor("mm", "mass")
     assert parse_scalar("12.7 +- 0.01 mm", "length", "m").value == pytest.approx(0.0127, rel=1e-15)
     assert lookup("g / cm^3", "density") == 1e3
+
+
+def test_spaces_read_as_pint_reads_them():
+    # pint (the reference) reads a space between two symbols as a product: "N m/V^2" is N*m/V^2, the
+    # servo's calibration unit, found in the table with pint's factor exactly (1); "m m" is m^2 and
+    # "k g" Boltzmann's constant times a gram, so neither is taken as mm or kg
+    assert lookup("N m/V^2", "torque_per_volt2") == UREG.Quantity(1.0, "N m/V^2").to("N*m/V^2").magnitude == 1.0
+    assert lookup(" m^3 / (kg s^2) ", "gravitational_constant") == 1.0
+    assert UREG.Quantity(1.0, "m m").dimensionality == UREG.Quantity(1.0, "m^2").dimensionality
+    assert lookup("m m", "length") is None and lookup("k g", "mass") is None
+    from truepull.geometry.errors import InputError
+
+    with pytest.raises(InputError, match="not a length unit"):
+        si_factor("m m", "length")
+    with pytest.raises(InputError, match="not a mass unit"):
+        si_factor("k g", "mass")
