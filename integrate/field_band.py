@@ -246,8 +246,9 @@ def _two_sum(s, x):
 
 
 @njit(cache=True, inline="always")
-def _panel_sum(r0, z0, dr, dz, rho, z, a, L, x, w, bound):
-    """One azimuth panel [a, a + L] by the Gauss rule (x, w) on [0, 1]: the panel's shares of IU,
+def _panel_sum(r0, z0, dr, dz, rho, z, nodes, bound):
+    """One azimuth panel by its Gauss nodes (`azimuth_tables`: vers, cos and weight times the panel's
+    length of each node): the panel's shares of IU,
     IG_rho and IG_z, and (when `bound`) first-order bounds of their rounding errors: each node's J
     error and its coefficient's times the other factor, and the products'. The node terms are summed
     with their rounding errors carried (TwoSum, Ogita, Rump and Oishi's Sum2, SIAM J. Sci. Comput. 26,
@@ -266,13 +267,12 @@ def _panel_sum(r0, z0, dr, dz, rho, z, a, L, x, w, bound):
     er = 0.0
     ez = 0.0
     U = U_ROUND
-    for i in range(x.shape[0]):
-        ph = a + L * x[i]
-        sh = math.sin(0.5 * ph)
-        vers = 2.0 * sh * sh
-        c = 1.0 - vers
+    n = nodes.shape[0]
+    for i in range(n):
+        vers = nodes[i, 0]
+        c = nodes[i, 1]
+        wl = nodes[i, 2]
         Jg, eJg = _generator_integral(r0, z0, dr, dz, rho, z, vers, bound)
-        wl = w[i] * L
         J = Jg * wl
         cu = dr * (z0 - z) - dz * (r0 - rho + rho * vers)
         tu = cu * J
@@ -300,15 +300,63 @@ def _panel_sum(r0, z0, dr, dz, rho, z, a, L, x, w, bound):
     sr += cr_
     sz += cz_
     if bound:
-        g2 = 1.01 * (x.shape[0] * U) ** 2
+        g2 = 1.01 * (n * U) ** 2
         eu += U * abs(su) + g2 * au
         er += U * abs(sr) + g2 * ar
         ez += U * abs(sz) + g2 * az
     return su, sr, sz, eu, er, ez
 
 
+MAX_PANELS = 40
+"""Rows of the azimuth tables: the grading gives at most 32 panels (eps floored at 1e-14)."""
+
+
+@njit(cache=True)
+def _azimuth_nodes(x, w):
+    """(2, MAX_PANELS, n, 3) table of a Gauss rule (x, w) on [0, 1] placed on the graded azimuth panels:
+    [0, m] the first panel [0, pi q^-m] of a point graded in m panels, [1, j] the panel
+    [pi q^-j, pi q^-(j-1)] (q = GRADING); for each node vers = 1 - cos phi' = 2 sin^2(phi'/2), cos phi'
+    = 1 - vers and the weight times the panel's length. The same for every point and band, so computed
+    once for each rule."""
+    n = x.shape[0]
+    t = np.zeros((2, MAX_PANELS, n, 3))
+    for j in range(1, MAX_PANELS):
+        for side in range(2):
+            if side == 0:
+                a = 0.0
+                b = math.pi * GRADING ** (-j)
+            else:
+                a = math.pi * GRADING ** (-j)
+                b = GRADING * a
+            L = b - a
+            for i in range(n):
+                ph = a + L * x[i]
+                sh = math.sin(0.5 * ph)
+                vers = 2.0 * sh * sh
+                t[side, j, i, 0] = vers
+                t[side, j, i, 1] = 1.0 - vers
+                t[side, j, i, 2] = w[i] * L
+    return t
+
+
+_TABLES = {}
+
+
+def azimuth_tables(high: int, low: int):
+    """The azimuth node tables (`_azimuth_nodes`) of the high and the low Gauss rule, kept per pair."""
+    key = (high, low)
+    if key not in _TABLES:
+        xh, wh = gauss_unit(high)
+        xl, wl = gauss_unit(low)
+        th, tl = _azimuth_nodes(xh, wh), _azimuth_nodes(xl, wl)
+        th.setflags(write=False)
+        tl.setflags(write=False)
+        _TABLES[key] = (th, tl)
+    return _TABLES[key]
+
+
 @njit(cache=True, inline="always")
-def _band_at_point(p, rho, z, xh, wh, xl, wl):
+def _band_at_point(p, rho, z, th, tl):
     """(IU, IG_rho, IG_z), their signed refinement differences (high minus low rule) and first-order
     bounds of the high rule's rounding errors, for one band at a point (rho, 0, z) of its frame.
     IU = integral of ((x'-x).N')/R, IG = integral of N'/R (components along e_rho and the axis)."""
@@ -339,15 +387,10 @@ def _band_at_point(p, rho, z, xh, wh, xl, wl):
     U = U_ROUND
     # panels [0, pi q^-m], then [pi q^-k, pi q^-(k-1)] for k = m .. 1 (q = GRADING)
     for k in range(m + 1):
-        if k == 0:
-            a = 0.0
-            b = math.pi * GRADING ** (-m)
-        else:
-            a = math.pi * GRADING ** (-(m - k + 1))
-            b = GRADING * a
-        L = b - a
-        hu, hr, hz, bu, br, bz = _panel_sum(r0, z0, dr, dz, rho, z, a, L, xh, wh, True)
-        lu, lr, lz, _, _, _ = _panel_sum(r0, z0, dr, dz, rho, z, a, L, xl, wl, False)
+        side = 0 if k == 0 else 1
+        j = m if k == 0 else m - k + 1
+        hu, hr, hz, bu, br, bz = _panel_sum(r0, z0, dr, dz, rho, z, th[side, j], True)
+        lu, lr, lz, _, _, _ = _panel_sum(r0, z0, dr, dz, rho, z, tl[side, j], False)
         iu += hu
         igr += hr
         igz += hz
@@ -388,7 +431,7 @@ def _point_in_frame(point, p):
 
 
 @njit(cache=True, parallel=True)
-def band_body_field(points, kinds, params, xh, wh, xl, wl):
+def band_body_field(points, kinds, params, th, tl):
     """Unit-density, unit-G integrals IU (N,), IG (N, 3) over all BAND patches of one body (rows of
     `params` that share the body's frame); DU, DG the same minus their low-order values (signed); RU
     (N,) and RG (N,) first-order bounds of the rounding errors of IU and of IG (2-norm), in their units:
@@ -451,7 +494,7 @@ def band_body_field(points, kinds, params, xh, wh, xl, wl):
                 sdgz = 0.0
                 ru = 0.0
                 rg = 0.0
-            iu, igr, igz, du, dgr, dgz, bu, bgr, bgz = _band_at_point(p, rho, z, xh, wh, xl, wl)
+            iu, igr, igz, du, dgr, dgz, bu, bgr, bgz = _band_at_point(p, rho, z, th, tl)
             su += iu
             sgr += igr
             sgz += igz
@@ -493,10 +536,9 @@ def band_field(points, patchset, density, G, rtol: float | None = None):
         raise ValueError("band_field needs a body bounded by bands only")
     points = np.ascontiguousarray(points, float).reshape(-1, 3)
     high, low = RULE_LADDER[rung_for(rtol)]
-    xh, wh = gauss_unit(high)
-    xl, wl = gauss_unit(low)
+    th, tl = azimuth_tables(high, low)
     with kernel_threads(points.shape[0] * len(patchset.kinds) * 50):
-        IU, IG, DU, DG, RU, RG = band_body_field(points, patchset.kinds, patchset.params, xh, wh, xl, wl)
+        IU, IG, DU, DG, RU, RG = band_body_field(points, patchset.kinds, patchset.params, th, tl)
     fu = -0.5 * G * density
     fg = -G * density
     return fu * IU, fg * IG, fu * DU, fg * DG, abs(fu) * RU, abs(fg) * RG
