@@ -42,23 +42,30 @@ LIB_ULPS = 4.0
 for these, from memory)."""
 
 
+ODD_RECIPROCALS = np.array([1.0 / (2 * k + 1) for k in range(40)])
+"""1 / (2k + 1), the coefficients of the atanh series (each within U_ROUND of its value)."""
+
+
 @njit(cache=True, inline="always")
-def _log1p_gap(x):
-    """x - log1p(x) for x >= 0 without cancellation: with y = x / (2 + x), log1p(x) = 2 atanh(y), so
-    x - log1p(x) = x y - 2 (y^3/3 + y^5/5 + ...), summed to rounding for x < 0.5 (y < 0.2, no term
-    larger than 5 % of the first); directly above, where it is at least a fifth of x."""
+def _log1p_and_gap(x):
+    """(log1p(x), x - log1p(x)) for x >= 0, the second without cancellation: with y = x / (2 + x),
+    log1p(x) = 2 atanh(y) = 2 (y + s), s = y^3/3 + y^5/5 + ..., and x - log1p(x) = x y - 2 s, the
+    series summed to rounding for x < 0.5 (y < 0.2, no term larger than 5 % of the first; y within
+    2 U_ROUND and s within a few, so log1p within 3.1 U_ROUND, inside LIB_ULPS); above, log1p(x) from
+    the library and the gap directly, where it is at least a fifth of x."""
     if x >= 0.5:
-        return x - math.log1p(x)
+        L = math.log1p(x)
+        return L, x - L
     y = x / (2.0 + x)
     y2 = y * y
     t = y * y2
     s = 0.0
     for k in range(1, 40):
-        s += t / (2 * k + 1)
+        s += t * ODD_RECIPROCALS[k]
         t *= y2
         if t < 1e-18 * s:
             break
-    return x * y - 2.0 * s
+    return 2.0 * (y + s), x * y - 2.0 * s
 
 
 @njit(cache=True, inline="always")
@@ -74,7 +81,7 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
     sqrt(a^2 + h^2), J = r0 i0 + dr i1. Three branches, none of which cancels near the generator or far:
     - a0 >= 0 (the foot of the perpendicular before s = 0): with D = sqrt(a^2 + h^2) + a,
       L = log1p(d), d = D1/D0 - 1 = (sqrt A + P1 - P0) / (P0 + a0), P1 - P0 = (A + B)/(P0 + P1) (>= 0),
-      and K = a0 (d - log1p d) + h^2 d^2 / (2 D1): both terms positive (d - log1p d by `_log1p_gap`,
+      and K = a0 (d - log1p d) + h^2 d^2 / (2 D1): both terms positive (d - log1p d by `_log1p_and_gap`,
       h^2 = (P0 - a0)(P0 + a0), good to a few ulps of P0 / h where h << P0 makes its term (h/P0)^2 of K);
     - a1 < 0 (foot past s = 1): the same about the s = 1 end (b = -a), J = r1 i0 - dr i1' with
       i1' = integral of (1 - s)/|x' - x|;
@@ -140,8 +147,7 @@ def _generator_integral(r0, z0, dr, dz, rho, z, vers, bound):
             num = sa - dP
         den = Pn + n
         d = num / den
-        L = math.log1p(d)
-        gap = _log1p_gap(d)
+        L, gap = _log1p_and_gap(d)
         Df = den + num
         # h^2 d^2 / (2 D1) with h^2 = (Pn - n)(Pn + n) from the near end's own digits (where h << n the
         # difference loses digits but the term is then (h/n)^2 of K)
