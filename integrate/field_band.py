@@ -369,10 +369,11 @@ def azimuth_tables(high: int, low: int):
 
 
 @njit(cache=True, inline="always")
-def _band_at_point(p, rho, z, th, tl):
+def _band_at_point(p, rho, z, th, tl, full):
     """(IU, IG_rho, IG_z), their signed refinement differences (high minus low rule) and first-order
     bounds of the high rule's rounding errors, for one band at a point (rho, 0, z) of its frame.
-    IU = integral of ((x'-x).N')/R, IG = integral of N'/R (components along e_rho and the axis)."""
+    IU = integral of ((x'-x).N')/R, IG = integral of N'/R (components along e_rho and the axis).
+    With `full` False the high rule's values alone (the same bits; differences and bounds 0)."""
     r0 = p[12]
     z0 = p[13]
     r1 = p[14]
@@ -403,6 +404,12 @@ def _band_at_point(p, rho, z, th, tl):
     for k in range(m + 1):
         side = 0 if k == 0 else 1
         j = m if k == 0 else m - k + 1
+        if not full:
+            hu, hr, hz, _, _, _ = _panel_sum(bc, z0, z, th[side, j], False)
+            iu += hu
+            igr += hr
+            igz += hz
+            continue
         hu, hr, hz, bu, br, bz = _panel_sum(bc, z0, z, th[side, j], True)
         lu, lr, lz, _, _, _ = _panel_sum(bc, z0, z, tl[side, j], False)
         iu += hu
@@ -445,7 +452,7 @@ def _point_in_frame(point, p):
 
 
 @njit(cache=True, parallel=True)
-def band_body_field(points, kinds, params, th, tl):
+def band_body_field(points, kinds, params, th, tl, full=True):
     """Unit-density, unit-G integrals IU (N,), IG (N, 3) over all BAND patches of one body (rows of
     `params` that share the body's frame); DU, DG the same minus their low-order values (signed); RU
     (N,) and RG (N,) first-order bounds of the rounding errors of IU and of IG (2-norm), in their units:
@@ -508,7 +515,7 @@ def band_body_field(points, kinds, params, th, tl):
                 sdgz = 0.0
                 ru = 0.0
                 rg = 0.0
-            iu, igr, igz, du, dgr, dgz, bu, bgr, bgz = _band_at_point(p, rho, z, th, tl)
+            iu, igr, igz, du, dgr, dgz, bu, bgr, bgz = _band_at_point(p, rho, z, th, tl, full)
             su += iu
             sgr += igr
             sgz += igz
@@ -539,20 +546,34 @@ def rung_for(rtol: float | None) -> int:
     return len(RULE_LADDER) - 1
 
 
-def band_field(points, patchset, density, G, rtol: float | None = None):
-    """Field of a uniform body bounded by BAND patches only (cylinder, tube, cone, frustum) at world
-    points: (U J/kg, g m/s^2, dU, dg, rU, rg) with dU, dg the signed differences between a high and a
-    low azimuth rule (a refinement error estimate that keeps its sign, so that integrals over a test
-    surface can estimate their own error with the cancellations they have) and rU, rg bounds of the
-    rounding errors of U and of g (2-norm; `band_body_field`). rtol: the relative accuracy wanted, which picks the rules (`rung_for`); None gives
-    N_HIGH and N_LOW."""
+def _band_integrals(points, patchset, rtol, full):
+    """band_body_field at world points with the rules `rtol` picks; a body of bands only."""
     if np.any(patchset.kinds != BAND):
         raise ValueError("band_field needs a body bounded by bands only")
     points = np.ascontiguousarray(points, float).reshape(-1, 3)
     high, low = RULE_LADDER[rung_for(rtol)]
     th, tl = azimuth_tables(high, low)
-    with kernel_threads(points.shape[0] * len(patchset.kinds) * 50):
-        IU, IG, DU, DG, RU, RG = band_body_field(points, patchset.kinds, patchset.params, th, tl)
+    work = points.shape[0] * len(patchset.kinds) * (50 if full else 25)
+    with kernel_threads(work):
+        return band_body_field(points, patchset.kinds, patchset.params, th, tl, full)
+
+
+def band_field(points, patchset, density, G, rtol: float | None = None):
+    """Field of a uniform body bounded by BAND patches only (cylinder, tube, cone, frustum) at world
+    points: (U J/kg, g m/s^2, dU, dg, rU, rg) with dU, dg the signed differences between a high and a
+    low azimuth rule (a refinement error estimate that keeps its sign, so that integrals over a test
+    surface can estimate their own error with the cancellations they have) and rU, rg bounds of the
+    rounding errors of U and of g (2-norm; `band_body_field`). rtol: the relative accuracy wanted, which
+    picks the rules (`rung_for`); None gives N_HIGH and N_LOW."""
+    IU, IG, DU, DG, RU, RG = _band_integrals(points, patchset, rtol, True)
     fu = -0.5 * G * density
     fg = -G * density
     return fu * IU, fg * IG, fu * DU, fg * DG, abs(fu) * RU, abs(fg) * RG
+
+
+def band_values(points, patchset, density, G, rtol: float | None = None):
+    """(U J/kg, g m/s^2) of `band_field` alone, the same bits, without the low rule and the rounding
+    bounds (about a third of the work: for nodes where only the values are used, such as the smaller
+    rules of a surface quadrature)."""
+    IU, IG, _, _, _, _ = _band_integrals(points, patchset, rtol, False)
+    return -0.5 * G * density * IU, -G * density * IG
