@@ -24,7 +24,7 @@ import numpy as np
 from numba import njit
 
 from truepull.geometry.errors import InputError
-from truepull.integrate.field_band import band_field
+from truepull.integrate.field_band import band_field, band_values
 from truepull.integrate.field_point import newton_into
 from truepull.integrate.field_prism import at_point_into
 from truepull.integrate.pair_cache import body_com, body_mass, body_sphere, per_body
@@ -210,7 +210,8 @@ def _pair_interaction(test_body, source_body, pivot, axis, G, rtol, order, tol) 
     pair_rtol = float(np.min(np.asarray(tol, float) / (G * tolerance_scales(integ, src, pivot))))
     tol_u, tol_g = field_tolerances(patches, integ.density, pivot, axis, centroid, tol, order)
     res = integrate_surface(patches, integ.density, _field_function(field, tol_u, tol_g, pair_rtol), pivot, axis,
-                            centroid, tol, order=order, distance=field.distance, values=_values_function(field))
+                            centroid, tol, order=order, distance=field.distance,
+                            values=_values_function(field, pair_rtol))
     vals = res.values
     # rounding floor: a few hundred ulps of the magnitude of each result
     floor = 256 * EPS * np.abs(vals)
@@ -235,10 +236,15 @@ def _field_function(field, tol_u, tol_g, rtol):
     return lambda X: field.field_with_differences(X, tol_u, tol_g)
 
 
-def _values_function(field):
+def _values_function(field, rtol=None):
     """points -> (U, g) of a box's or mesh's closed form without its rounding bounds (which cost several
-    times the values; integrate_surface needs them only at the kept rule's nodes); None for others."""
+    times the values; integrate_surface needs them only at the kept rule's nodes), or of a body bounded
+    by bands alone (field_band.band_values: the same bits as _field_function's band field, at the same
+    `rtol`, without its low rule and bound); None for others."""
     b = field.body
+    if field.kind not in CLOSED_FORM_KINDS and np.all(field.patches().kinds == BAND):
+        ps, rho, G = field.patches(), b.density, field.G
+        return lambda X: band_values(X, ps, rho, G, rtol)
     if field.kind == "box":
         from truepull.integrate.field_prism import prism_field
 
