@@ -7,11 +7,12 @@ A turn of the attractor (or of the pendulum) about the frame axis takes the mult
 when the pendulum lies inside and the attractor outside a sphere about the pivot (spheres and points
 by their centres, when no turn can bring two bodies together; `multipoles.regions`): the torque is
 then a Fourier series in the turn (`multipoles`), checked against direct integration at a few
-values and dropped for direct integration if any check disagrees beyond the two error estimates.
+values and dropped if any check disagrees beyond the two error estimates.
 A tessellated part (STEP, measured form) adds to each row its change against the coarser
 tessellation, as the pairs do (`multipole_tessellation`); a row whose torque error then exceeds
 rtol of the sweep's largest torque is marked not reached.
-Otherwise every value is integrated directly, in parallel (`executor.map_parallel`: local processes
+A long sweep otherwise takes the Chebyshev interpolant through 17 values (`sweep_interpolation`),
+checked in the same way. Otherwise every value is integrated directly, in parallel (`executor.map_parallel`: local processes
 or a Dask cluster); a worker re-loads the scene from its file when one is given, so only the path
 and the value travel.
 """
@@ -387,7 +388,7 @@ def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor",
         try:
             rows, series = _multipole_rows(scene, sweep, test, source, position, rtol, point_tau, point_K)
         except MultipoleRefused as exc:
-            notes.append(f"multipole fast path not used: {exc.reason}; every value integrated directly")
+            notes.append(f"multipole fast path not used: {exc.reason}")
         else:
             idx = _check_indices(len(rows), checks)
             direct = _check_values(run, [rows[i].value for i in idx], workers, scheduler, progress)
@@ -413,7 +414,7 @@ def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor",
                                   series)
             worst = max(bad, key=lambda c: abs(c.multipole - c.direct) / max(c.allowed, 1e-300))
             notes.append(f"multipole series disagreed with direct integration at {_show(sweep, worst.value)} "
-                         f"({worst.multipole:.10g} against {worst.direct:.10g} N m); every value integrated directly")
+                         f"({worst.multipole:.10g} against {worst.direct:.10g} N m)")
     from truepull.integrate import sweep_interpolation
 
     if interpolate and sweep_interpolation.worth_it(len(sweep.values)):
@@ -422,7 +423,9 @@ def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor",
             rows, checked = found
             notes.append(why)
             return ScanResult(sweep, test, source, rows, "interpolated", None, checked, tuple(notes))
-        notes.append(f"interpolation in the {sweep.kind} not used: {why}; every value integrated directly")
+        notes.append(f"interpolation in the {sweep.kind} not used: {why}")
+    if notes:
+        notes.append("every value integrated directly")
     rows = map_parallel(run, list(sweep.values), workers=workers, scheduler=scheduler, progress=progress,
                         desc=f"{sweep.kind} of {sweep.group}")
     overlaps = [r for r in rows if r.overlap]
