@@ -164,3 +164,4 @@ def test_acceleration_rows_are_newton_at_every_turn(tmp_path):
         c = s1.frame.turn(theta).apply(s1.body("bob-east").com)
         tau = _newton_torque(c, pivot, axis, sources)
         assert J[j, 0] == pytest.approx(dm00 * tau, rel=5e-3, abs=5e-3 * abs(J[:k, 0]).max())
+

@@ -446,6 +446,9 @@ def reduction_budget(scene, reduction: Reduction, scene_text: str, *, test: str 
 
 def _form_note(b) -> str:
     k = len(b.modes)
+    if k == 0:
+        return (f"the measured form of '{b.body}' has a fit without uncertainty (its {b.coefficients} coefficients' "
+                "covariance vanishes, as for points exactly on the surface): it adds nothing to the budget")
     return (f"the measured form of '{b.body}' enters as {k} independent modes (form.mode1..{k}) of its {b.coefficients} "
             "fitted coefficients' covariance, carrying the fit's first-order effect on the torques, stiffnesses, "
             "moment of inertia and volume the reduction uses (layer integrals over the fitted surface; at most "
