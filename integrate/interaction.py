@@ -286,7 +286,14 @@ def compare_groups(scene, test: str = "pendulum", source: str = "attractor", pos
     reached = all(p.reached for p in pairs)
     if short > 1.0:
         reached = False
-        why = " (mostly rounding bounds, which refinement cannot reduce)" if futile else ""
+        why = ""
+        if futile:
+            from truepull.integrate.tessellation import TESSELLATION_METHOD
+
+            tessellated = any(p.method.endswith(TESSELLATION_METHOD) for p in pairs)
+            why = (" (mostly what refinement cannot reduce: rounding bounds and a tessellated part's change "
+                   "against its coarser tessellation)" if tessellated
+                   else " (mostly rounding bounds, which refinement cannot reduce)")
         notes.append(f"tolerance {rtol:g} not reached: errors are up to {short:.3g} times the tolerance{why}")
     pos_name = sc.position if position is not None else None
     return Comparison(

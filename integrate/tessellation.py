@@ -13,6 +13,9 @@ from dataclasses import replace
 
 import numpy as np
 
+TESSELLATION_METHOD = "; tessellation error from two chord tolerances"
+"""Appended to the method of a pair whose errors include the change against the coarser tessellation."""
+
 
 def coarse_body(body):
     """The body with its mesh replaced by its coarser tessellation, or None if it has none."""
@@ -41,5 +44,7 @@ def tessellated_pair(test_body, source_body, pivot, axis, G, rtol=1e-9, order=10
     ct, cs = coarse_body(test_body) or t, coarse_body(source_body) or s
     coarse = pair_interaction(ct, cs, pivot, axis, G, rtol, order, tol)
     change = np.abs(fine.values - coarse.values)
-    return replace(fine, errors=fine.errors + change,
-                   method=fine.method + "; tessellation error from two chord tolerances")
+    # no refinement of the quadrature reduces the change either: it joins the irreducible part
+    rounding = change if fine.rounding is None else fine.rounding + change
+    return replace(fine, errors=fine.errors + change, rounding=rounding,
+                   method=fine.method + TESSELLATION_METHOD)
