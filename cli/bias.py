@@ -140,10 +140,14 @@ def _ppm(x) -> str:
     return "-" if x is None else f"{x:+.4g}"
 
 
+def _err(x) -> str:
+    return "-" if x is None else f"{x:.2g}"
+
+
 def what_if_rows(what_ifs) -> list[list[str]]:
-    """Table rows [change, torque before, after, torque ppm, G ppm] of the what-ifs."""
-    return [[w.description, fmt(w.torque_before, 10), fmt(w.torque_after, 10), _ppm(w.torque_ppm), _ppm(w.G_ppm)]
-            for w in what_ifs]
+    """Table rows [change, torque before, after, torque ppm, G ppm, its error] of the what-ifs."""
+    return [[w.description, fmt(w.torque_before, 10), fmt(w.torque_after, 10), _ppm(w.torque_ppm), _ppm(w.G_ppm),
+             _err(w.G_ppm_error)] for w in what_ifs]
 
 
 def not_reached(result, what_ifs) -> list[str]:
@@ -170,21 +174,22 @@ def render(scene, result, what_ifs) -> str:
         if result.G_model:
             lines.append(f"G model: {result.G_model}")
         headers = ["body", "parameter", "value (SI)", "d torque / d parameter (N m per SI unit)", "u (SI)",
-                   "torque (ppm)", "d G / d parameter (per SI unit)", "G (ppm)"]
+                   "torque (ppm)", "d G / d parameter (per SI unit)", "G (ppm)", "+- (ppm)"]
         rows = [[r.body, r.parameter, fmt(r.value, 6), fmt(r.d_torque_axis, 6), fmt(r.u, 3) if r.u else "-",
-                 _ppm(r.torque_ppm), fmt(r.d_G, 4) if r.d_G is not None else "-", _ppm(r.G_ppm)]
+                 _ppm(r.torque_ppm), fmt(r.d_G, 4) if r.d_G is not None else "-", _ppm(r.G_ppm), _err(r.G_ppm_error)]
                 for r in result.rows]
         lines.append("")
-        lines.append(format_table(headers, rows, "llrrrrrr"))
+        lines.append(format_table(headers, rows, "llrrrrrrr"))
         lines.append("")
-        lines.append("values and u in SI (m, kg/m^3, kg, rad); derivatives per SI unit; ppm per stated u")
+        lines.append("values and u in SI (m, kg/m^3, kg, rad); derivatives per SI unit; ppm per stated u; "
+                     "+- bounds G's ppm from the engine's errors")
         for n in result.notes:
             lines.append(f"note: {n}")
     if what_ifs:
         lines.append("")
         lines.append("what if")
-        headers = ["change", "torque before (N m)", "after (N m)", "torque (ppm)", "G (ppm)"]
-        lines.append(format_table(headers, what_if_rows(what_ifs), "lrrrr"))
+        headers = ["change", "torque before (N m)", "after (N m)", "torque (ppm)", "G (ppm)", "+- (ppm)"]
+        lines.append(format_table(headers, what_if_rows(what_ifs), "lrrrrr"))
     missed = not_reached(result, what_ifs)
     rtol = result.rtol if result is not None else None
     lines.append("")

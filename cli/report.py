@@ -386,18 +386,19 @@ def section_bias(ctx: Context) -> Section:
                                 scene_path=ctx.scene_path, progress=False)
     s.data = result.to_json()
     where = f"position {result.position}" if result.position else "the scene as drawn"
-    head = ["body", "parameter", "value (SI)", "d torque / d parameter", "u (SI)", "torque ppm", "G ppm"]
+    head = ["body", "parameter", "value (SI)", "d torque / d parameter", "u (SI)", "torque ppm", "G ppm", "+- ppm"]
     rows = [[r.body, r.parameter, fmt(r.value, 6), fmt(r.d_torque_axis, 6), fmt(r.u, 3) if r.u else "-",
              "-" if r.torque_ppm is None else f"{r.torque_ppm:+.4g}",
-             "-" if r.G_ppm is None else f"{r.G_ppm:+.4g}"] for r in result.rows[:BIAS_ROWS_SHOWN]]
+             "-" if r.G_ppm is None else f"{r.G_ppm:+.4g}",
+             "-" if r.G_ppm_error is None else f"{r.G_ppm_error:.2g}"] for r in result.rows[:BIAS_ROWS_SHOWN]]
     parts = [f"Sensitivity of the torque about the fiber axis at {where} "
              f"({fmt(result.torque_axis, 10)} N m) to each body's placement, size and density, ranked by the "
              f"change a stated uncertainty makes (ppm per u); derivatives per SI unit, at tolerance "
              f"{ctx.args.survey_rtol:g}." + (f" G model: {result.G_model}." if result.G_model else ""),
-             _md_table(head, rows, "llrrrrr")
+             _md_table(head, rows, "llrrrrrr")
              + "\n\nColumns: the body; its parameter; the parameter's value; the torque's derivative with respect "
              "to it; its stated standard uncertainty; the torque's change for one u, in ppm; G's change for one u, "
-             "in ppm."]
+             "in ppm, and a bound on that figure's error from the engine's errors."]
     if len(result.rows) > BIAS_ROWS_SHOWN:
         parts.append(f"The {BIAS_ROWS_SHOWN} largest of {len(result.rows)} rows; all are in report.json.")
     from truepull.cli.bias import what_if_rows, write_png as bias_png
@@ -410,10 +411,10 @@ def section_bias(ctx: Context) -> Section:
         parts.append(f"What if a sphere is not round: each {ctx.args.source} sphere as an ellipsoid of equal mass and "
                      f"density, flattened by {REPORT_FLATTENING:g} along the fiber axis (semi-axes a, a, a (1 - f)), "
                      f"the others unchanged (torque at {where}; G by {what_ifs[0].G_method or NO_G_MODEL}).")
-        parts.append(_md_table(["change", "torque before (N m)", "after (N m)", "torque ppm", "G ppm"],
-                               what_if_rows(what_ifs), "lrrrr")
+        parts.append(_md_table(["change", "torque before (N m)", "after (N m)", "torque ppm", "G ppm", "+- ppm"],
+                               what_if_rows(what_ifs), "lrrrrr")
                      + "\n\nColumns: the change made; the torque before and after it; the torque's change in ppm; "
-                     "G's change in ppm.")
+                     "G's change in ppm, and a bound on its error from the engine's errors.")
     if what_ifs or any(r.torque_ppm is not None for r in result.rows):
         png, caption = FIGURES["bias"]
         bias_png(ctx.folder / png, result, what_ifs, ctx.scene.title or "")

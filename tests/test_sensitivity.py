@@ -470,3 +470,71 @@ def test_what_ifs_refuse_impossible_changes():
         void_what_if(sc, "ball", 0.01, [0.015, 0, 0])
     with pytest.raises(InputError):
         flatten_what_if(sc, "ball", 1.5)
+
+
+CYLINDER_ON_AXIS = """
+[scene]
+G = 6.6743e-11
+[[body]]
+name = "p"
+group = "pendulum"
+shape = "point"
+mass = 0.05
+at = [0.05, 0, 0]
+[[body]]
+name = "drum"
+group = "attractor"
+shape = "cylinder"
+radius = 0.03
+length = 0.06
+axis = [0, 1, 0]
+density = 11340
+at = [0.05, 0.08, 0]
+[[position]]
+name = "A"
+group = "attractor"
+[[position]]
+name = "B"
+group = "attractor"
+shift = [0, -0.16, 0]
+[measurement]
+method = "deflection"
+angle = { A = "0.002 rad", B = "-0.002 rad" }
+period = "400 s"
+"""
+
+
+def _on_axis_torque(gap, a=0.03, L=0.06, rho=11340.0, m=0.05, lever=0.05):
+    """Torque about z on the point `lever` from the fiber whose pull runs along y, from the cylinder's
+    on-axis field g = 2 pi G rho (L + sqrt(a^2 + z^2) - sqrt(a^2 + (z + L)^2)), z the gap to the near face
+    (Telford, Geldart and Sheriff, Applied Geophysics, 2nd ed.; from memory)."""
+    g = 2 * math.pi * G * rho * (L + math.hypot(a, gap) - math.hypot(a, gap + L))
+    return lever * m * g
+
+
+def test_what_if_g_error_bounds_the_true_error_against_the_on_axis_closed_form():
+    # a point on the axis of a cylinder at A (beyond it along +y) and B (mirrored); the what-if moves the
+    # cylinder 2 mm farther along its axis: every torque is the on-axis closed form, the engine's band
+    # field at rtol 1e-6 is not, and the G figure's error bound must cover the difference
+    sc = load_scene_text(CYLINDER_ON_AXIS)
+    w = offset_what_if(sc, "drum", np.array([0.0, 0.002, 0.0]), rtol=1e-6)
+    gap0, gap1 = 0.08 - 0.03, 0.082 - 0.03
+    tA0, tA1 = _on_axis_torque(gap0), _on_axis_torque(gap1)
+    tB0, tB1 = -tA0, -_on_axis_torque(gap1 - 0.004)          # B: the shifted cylinder is 2 mm nearer
+    ref = 1e6 * ((tA0 - tB0) / (tA1 - tB1) - 1)              # G ~ I / (tau_A - tau_B), I unchanged
+    assert w.G_ppm_error is not None and w.G_ppm_error > 0
+    assert abs(w.G_ppm - ref) <= w.G_ppm_error
+    assert w.G_ppm_error < 1e-3 * abs(ref)                    # and it is not vacuous
+
+
+def test_bias_g_error_bounds_the_true_error_on_the_cylinder_axis():
+    # G ~ I / (tau_A - tau_B) and every torque is linear in the drum's density, so d ln G = -d rho / rho
+    # exactly; moving the drum along its axis lengthens A's gap and shortens B's by the same amount, so
+    # by the mirror symmetry of the closed form G does not change to first order
+    text = (CYLINDER_ON_AXIS.replace("at = [0.05, 0.08, 0]", 'at = [0.05, "0.08 +- 0.0001", 0]')
+            .replace("density = 11340", 'density = "11340 +- 10"'))
+    res = sensitivities(load_scene_text(text), workers=1, bodies=["drum"], rtol=1e-6)
+    rows = {r.parameter: r for r in res.rows}
+    density, shift = rows["density"], rows["at.y"]
+    assert abs(density.G_ppm - (-1e6 * 10 / 11340)) <= density.G_ppm_error
+    assert abs(shift.G_ppm - 0.0) <= shift.G_ppm_error

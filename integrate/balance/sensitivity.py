@@ -73,7 +73,7 @@ def step_factor(rtol: float) -> float:
 class SensitivityRow:
     """d(torque_axis)/d(parameter) (N m per SI unit), its error bound, the step used (SI), the stated
     uncertainty u (SI or None), the torque change in ppm per u, and the G columns (None without a
-    measurement): d_G (G per SI unit) and G_ppm (per u)."""
+    measurement): d_G (G per SI unit), G_ppm (per u) and its error bound."""
 
     body: str
     parameter: str
@@ -87,11 +87,13 @@ class SensitivityRow:
     G_ppm: float | None
     method: str
     reached: bool = True
+    G_ppm_error: float | None = None
+    """bound on G_ppm's error from the torque (or stiffness) derivatives' errors, ppm per u"""
 
     def to_json(self) -> dict:
         return {"body": self.body, "parameter": self.parameter, "value": self.value,
                 "d_torque_axis": self.d_torque_axis, "u": self.u, "torque_ppm": self.torque_ppm,
-                "d_G": self.d_G, "G_ppm": self.G_ppm, "d_error": self.d_error,
+                "d_G": self.d_G, "G_ppm": self.G_ppm, "error_G_ppm": self.G_ppm_error, "d_error": self.d_error,
                 "error_d_torque_axis": self.d_error, "step": self.step,
                 "method": self.method, "reached": self.reached}
 
@@ -111,6 +113,9 @@ class WhatIfResult:
     error_torque: float
     G_method: str | None = None
     reached: bool = True
+    G_ppm_error: float | None = None
+    """bound on G_ppm's error from the engine's errors before and after (the reductions' numerical errors
+    on the full-reduction route)"""
 
     @property
     def d_torque_axis(self) -> float:
@@ -120,7 +125,7 @@ class WhatIfResult:
         return {"kind": self.kind, "body": self.body, "description": self.description,
                 "torque_before": self.torque_before, "torque_after": self.torque_after,
                 "d_torque_axis": self.d_torque_axis, "torque_ppm": self.torque_ppm, "G_ppm": self.G_ppm,
-                "error_torque": self.error_torque, "error_torque_axis": self.error_torque,
+                "error_G_ppm": self.G_ppm_error, "error_torque": self.error_torque, "error_torque_axis": self.error_torque,
                 "G_method": self.G_method, "reached": self.reached}
 
 
@@ -521,6 +526,12 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
             return None
         return model.dlnG(I0, q0, dI, dq)
 
+    coefficients = _lnG_coefficients(model, I0, q0)
+
+    def dlnG_error(de):
+        """Bound on d ln G's error from the errors `de` (per model position) of dq (dlnG is linear in dq)."""
+        return None if model is None else float(coefficients @ np.asarray(de, float))
+
     chosen = [b for b in scene.bodies if b.group in (test, source) and (bodies is None or b.name in bodies)]
     if bodies is not None:
         missing = set(bodies) - {b.name for b in chosen}
@@ -581,7 +592,8 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
                   - placed(scene, Im, mp0).inertia_about(scene.frame.pivot, scene.frame.axis)) / (2 * hI)
         lnG = dlnG(dI, d[model_i, q_index]) if model else None
         rows.append(_row(b.name, param, meas, d[0, 0], de[0, 0], h, tau0, lnG, G,
-                         "central differences (Richardson, steps h and 2h)", reached))
+                         "central differences (Richardson, steps h and 2h)", reached,
+                         dlnG_error(de[model_i, q_index]) if model else None))
 
     # density and mass: linear, exact
     for b in chosen:
@@ -600,8 +612,10 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
         if model is not None and b.group == test:
             dI = placed(scene, b, model.positions[0]).inertia_about(scene.frame.pivot, scene.frame.axis) / meas.value
         lnG = dlnG(dI, d_all[model_i, q_index]) if model else None
+        de_all = share[:, 2:4] / abs(meas.value)
         rows.append(_row(b.name, key, meas, d_all[0, 0], err, None, tau0, lnG, G,
-                         "exact: the torque is linear in the " + key, reached))
+                         "exact: the torque is linear in the " + key, reached,
+                         dlnG_error(de_all[model_i, q_index]) if model else None))
 
     # turns: each position that turns the test or source group about the frame axis (its own stated
     # uncertainty); without positions, the source group's turn as drawn
@@ -615,16 +629,18 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
         sign = 1.0 if grp == source else -1.0
         k = sign * comps[pname].exact.stiffness_axis
         d_here = k if pname == position else 0.0
-        lnG = None
+        lnG = lnG_err = None
         if model is not None and model.method == "acceleration":
-            lnG = 0.0  # exact: a turn of the start shifts the harmonic's phase, not its amplitude
+            lnG = lnG_err = 0.0  # exact: a turn of the start shifts the harmonic's phase, not its amplitude
         elif model is not None and model.quantity == "torque":
             dq = np.array([k if p == pname else 0.0 for p in model.positions])
             lnG = dlnG(0.0, dq)
+            ek = comps[pname].error.stiffness_axis
+            lnG_err = dlnG_error([ek if p == pname else 0.0 for p in model.positions])
         err = comps[pname].error.stiffness_axis if pname == position else 0.0
         rows.append(_row(grp, label, meas, d_here, err, None, tau0, lnG, G,
                          f"exact: d(torque)/d(turn) = {'+' if sign > 0 else '-'}stiffness at that position",
-                         comps[pname].reached))
+                         comps[pname].reached, lnG_err))
 
     notes = []
     if model is not None:
@@ -644,14 +660,24 @@ def sensitivities(scene, test: str = "pendulum", source: str = "attractor", posi
                       torque_reached=all(c.reached for c in comps.values()))
 
 
-def _row(body, param, meas, d, err, h, tau0, lnG, G, method, reached=True) -> SensitivityRow:
+def _row(body, param, meas, d, err, h, tau0, lnG, G, method, reached=True, lnG_err=None) -> SensitivityRow:
     u = meas.u if meas is not None else None
     u = float(u) if u else None
     ppm = 1e6 * d * u / tau0 if (u is not None and tau0 != 0) else None
     dG = G * lnG if lnG is not None else None
     Gppm = 1e6 * lnG * u if (lnG is not None and u is not None) else None
+    Gppm_err = 1e6 * lnG_err * u if (Gppm is not None and lnG_err is not None) else None
     return SensitivityRow(body, param, float(meas.value) if meas is not None else 0.0, float(d), float(err),
-                          None if h is None else float(h), u, ppm, dG, Gppm, method, bool(reached))
+                          None if h is None else float(h), u, ppm, dG, Gppm, method, bool(reached), Gppm_err)
+
+
+def _lnG_coefficients(model, I0, q0) -> np.ndarray:
+    """|d ln G / d q_i| at the model's positions (dlnG is linear in dq): the weights that turn the quantities'
+    errors into a bound on ln G's (empty without a model)."""
+    if model is None:
+        return np.zeros(0)
+    n = len(model.positions)
+    return np.abs(np.array([model.dlnG(I0, q0, 0.0, np.eye(n)[i]) for i in range(n)], float))
 
 
 def _rank_key(r: SensitivityRow):
@@ -719,13 +745,13 @@ def void_sphere(scene, name: str, radius: float, offset) -> Body:
 
 
 def _state(scene, positions, test, source, rtol):
-    """((per-position torque, stiffness, torque error), all reached) of the whole scene."""
+    """((per-position torque, stiffness, torque error, stiffness error), all reached) of the whole scene."""
     from truepull.integrate.interaction import compare_groups
 
     out, reached = [], True
     for p in positions:
         c = compare_groups(scene, test, source, p, rtol)
-        out.append((c.exact.torque_axis, c.exact.stiffness_axis, c.error.torque_axis))
+        out.append((c.exact.torque_axis, c.exact.stiffness_axis, c.error.torque_axis, c.error.stiffness_axis))
         reached = reached and c.reached
     return np.array(out), reached
 
@@ -742,23 +768,28 @@ def what_if(scene, kind: str, body: str, new_scene, description: str, test="pend
     after, reached_after = _state(new_scene, positions, test, source, rtol)
     t0, t1 = before[0, 0], after[0, 0]
     ppm = 1e6 * (t1 - t0) / t0 if t0 != 0 else float("nan")
-    G_ppm, how = None, None
+    G_ppm, G_err, how = None, None, None
     if model is not None and full_reduction:
         from truepull.integrate.balance.reduction import reduce_measurement
 
         r0 = reduce_measurement(scene, test=test, source=source, rtol=rtol)
         r1 = reduce_measurement(new_scene, test=test, source=source, rtol=rtol)
         G_ppm, how = 1e6 * (r1.G / r0.G - 1.0), "full reduction"
+        G_err = 1e6 * abs(r1.G / r0.G) * (r0.numerical_error / abs(r0.G) + r1.numerical_error / abs(r1.G))
         reached_after = reached_after and r0.reached and r1.reached
     elif model is not None:
         idx = [positions.index(p) for p in model.positions]
         qi = 1 if model.quantity == "stiffness" else 0
         I0 = pendulum_inertia(scene, test, model.positions[0])
         I1 = pendulum_inertia(new_scene, test, model.positions[0])
-        G_ppm = 1e6 * math.expm1(model.log_change(I0, I1, before[idx, qi], after[idx, qi]))
+        change = model.log_change(I0, I1, before[idx, qi], after[idx, qi])
+        G_ppm = 1e6 * math.expm1(change)
+        # ln G's error: the quantities' errors before and after through its linear coefficients
+        weights = _lnG_coefficients(model, I0, before[idx, qi])
+        G_err = 1e6 * math.exp(change) * float(weights @ (before[idx, 2 + qi] + after[idx, 2 + qi]))
         how = model.description
     return WhatIfResult(kind, body, description, float(t0), float(t1), float(ppm), G_ppm,
-                        float(before[0, 2] + after[0, 2]), how, reached_before and reached_after)
+                        float(before[0, 2] + after[0, 2]), how, reached_before and reached_after, G_err)
 
 
 def offset_what_if(scene, name, vector, **kw) -> WhatIfResult:
