@@ -81,12 +81,20 @@ class ScanRow:
 
 @dataclass(frozen=True)
 class CheckResult:
-    """A multipole value set beside direct integration at one sweep value."""
+    """A fast route's value (multipole or interpolated; field named `multipole`) beside direct integration
+    at one sweep value."""
 
     value: float
     multipole: float
     direct: float
     allowed: float
+
+    @staticmethod
+    def of(fast: "ScanRow", direct: "ScanRow") -> "CheckResult":
+        """A fast route's row beside the direct one at its value: allowed twice the two estimates plus rounding."""
+        allowed = (2.0 * (fast.error_torque_axis + direct.error_torque_axis)
+                   + 64 * np.finfo(float).eps * abs(direct.exact_torque_axis))
+        return CheckResult(fast.value, fast.exact_torque_axis, direct.exact_torque_axis, allowed)
 
     @property
     def agrees(self) -> bool:
@@ -343,8 +351,7 @@ def _interpolated_rows(scene, sweep, job, position, workers, scheduler, progress
     checks = []
     for d in direct:
         i = int(np.argmin(np.abs(values - d.value)))
-        allowed = 2.0 * (rows[i].error_torque_axis + d.error_torque_axis) + 64 * np.finfo(float).eps * abs(d.exact_torque_axis)
-        checks.append(CheckResult(d.value, rows[i].exact_torque_axis, d.exact_torque_axis, allowed))
+        checks.append(CheckResult.of(rows[i], d))
     bad = [c for c in checks if not c.agrees]
     if bad or any(d.overlap or not d.reached for d in direct):
         return None, "the interpolant disagreed with direct integration at a check value"
@@ -395,8 +402,7 @@ def scan(scene, sweep: Sweep, test: str = "pendulum", source: str = "attractor",
             results = []
             for i, d in zip(idx, direct):
                 mp = rows[i]
-                allowed = 2.0 * (mp.error_torque_axis + d.error_torque_axis) + 64 * np.finfo(float).eps * abs(d.exact_torque_axis)
-                results.append(CheckResult(mp.value, mp.exact_torque_axis, d.exact_torque_axis, allowed))
+                results.append(CheckResult.of(mp, d))
             bad = [c for c in results if not c.agrees]
             if not bad:
                 if idx:
